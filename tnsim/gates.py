@@ -168,9 +168,7 @@ def _specs() -> dict[str, GateSpec]:
         GateSpec("cz", 2, 0, _const(controlled(_Z)), True),
         GateSpec("ch", 2, 0, _const(controlled(_H))),
         GateSpec("swap", 2, 0, _const(_swap_matrix())),
-        GateSpec(
-            "iswap", 2, 0, _const([[1, 0, 0, 0], [0, 0, 1j, 0], [0, 1j, 0, 0], [0, 0, 0, 1]])
-        ),
+        GateSpec("iswap", 2, 0, _const([[1, 0, 0, 0], [0, 0, 1j, 0], [0, 1j, 0, 0], [0, 0, 0, 1]])),
         GateSpec("cp", 2, 1, lambda lam: controlled(phase(lam)), True),
         GateSpec("cu1", 2, 1, lambda lam: controlled(phase(lam)), True),
         GateSpec("crx", 2, 1, lambda t: controlled(rx(t))),

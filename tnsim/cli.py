@@ -1,0 +1,164 @@
+"""The ``tnsim`` command line.
+
+Each subcommand is a function ``_cmd_<name>(args) -> int`` registered in
+:func:`build_parser`.  A user's mistake (any :class:`~tnsim.errors.TnsimError`,
+or a bad option) prints one line on stderr and exits with status 2; nothing is
+written in that case.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import tempfile
+from collections.abc import Sequence
+
+import numpy as np
+
+from .bits import format_bits, parse_many, read_bits_file
+from .circuit import Circuit
+from .errors import InputError, TnsimError
+
+__all__ = ["main", "build_parser"]
+
+BITS_HELP = "character i of a bitstring is qubit i (the leftmost character is qubit 0)"
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line and exit status 2."""
+
+    def error(self, message: str):  # noqa: D401 - argparse API
+        raise InputError(f"{self.prog}: {message} (see '{self.prog} --help')")
+
+
+def write_atomic(path: str, text: str) -> None:
+    """Write ``text`` to ``path`` through a temporary file and a rename.
+
+    A failure leaves no partial file behind.
+    """
+    directory = os.path.dirname(os.path.abspath(path))
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=".tnsim-", dir=directory)
+    except OSError as exc:
+        raise InputError(f"cannot write {path!r}: {exc.strerror}") from None
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        os.unlink(tmp)
+        raise
+
+
+def load_circuit(path: str) -> Circuit:
+    """Read an OpenQASM 2.0 file for a subcommand (errors name file:line:column)."""
+    from .qasm import read_qasm
+
+    if not os.path.isfile(path):
+        raise InputError(f"{path}: no such file; give the path of an OpenQASM 2.0 circuit")
+    return read_qasm(path)
+
+
+def _gather_bits(args: argparse.Namespace, n: int) -> np.ndarray:
+    rows = []
+    if args.bits:
+        rows.append(parse_many(args.bits, n))
+    if args.bits_file:
+        rows.append(read_bits_file(args.bits_file, n))
+    if not rows:
+        raise InputError("give at least one bitstring with --bits or --bits-file")
+    return np.concatenate(rows)
+
+
+def _amp_rows(circuit: Circuit, rows: np.ndarray, dtype) -> list[dict]:
+    from .queries import amplitude
+
+    out = []
+    for row in rows:
+        a = amplitude(circuit, row, dtype=dtype, scaled=True)
+        value = complex(a)
+        out.append(
+            {
+                "bits": format_bits(row),
+                "real": value.real,
+                "imag": value.imag,
+                "probability": abs(value) ** 2,
+                "log10_abs": a.log10_abs(),
+                "phase": a.phase(),
+            }
+        )
+    return out
+
+
+def _print_amp_table(rows: list[dict], stream=sys.stdout) -> None:
+    width = max(12, *(len(r["bits"]) for r in rows)) if len(rows[0]["bits"]) <= 64 else 12
+    print(f"{'bitstring':<{width}}  {'amplitude':>34}  {'probability':>12}  log10|a|", file=stream)
+    for r in rows:
+        bits = r["bits"] if len(r["bits"]) <= 64 else r["bits"][:9] + "..."
+        amp = f"{r['real']:+.10e}{r['imag']:+.10e}j"
+        print(
+            f"{bits:<{width}}  {amp:>34}  {r['probability']:12.6e}  {r['log10_abs']:.6f}",
+            file=stream,
+        )
+
+
+def _cmd_amp(args: argparse.Namespace) -> int:
+    circuit = load_circuit(args.circuit)
+    rows = _gather_bits(args, circuit.num_qubits)
+    dtype = np.complex64 if args.single else np.complex128
+    result = _amp_rows(circuit, rows, dtype)
+    if args.json:
+        print(json.dumps({"num_qubits": circuit.num_qubits, "amplitudes": result}))
+    else:
+        _print_amp_table(result)
+    return 0
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from .demo import run_demo
+
+    return run_demo(quick=args.quick)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """Return the argument parser of the ``tnsim`` command."""
+    parser = _Parser(
+        prog="tnsim",
+        description="Exact amplitudes and more of wide, shallow quantum circuits by "
+        f"tensor-network contraction. Bitstrings: {BITS_HELP}.",
+    )
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    amp = sub.add_parser(
+        "amp",
+        help="amplitudes <x|C|0...0> of bitstrings",
+        description=f"Print amplitudes <x|C|0...0>. {BITS_HELP}.",
+    )
+    amp.add_argument("circuit", help="OpenQASM 2.0 file")
+    amp.add_argument(
+        "--bits", action="append", metavar="BITS", help=f"a bitstring (repeatable); {BITS_HELP}"
+    )
+    amp.add_argument("--bits-file", metavar="FILE", help="file with one bitstring per line")
+    amp.add_argument("--single", action="store_true", help="contract in complex64")
+    amp.add_argument("--json", action="store_true", help="machine-readable output")
+    amp.set_defaults(func=_cmd_amp)
+
+    demo = sub.add_parser("demo", help="run a built-in example end to end")
+    demo.add_argument("--quick", action="store_true", help="smaller instances")
+    demo.set_defaults(func=_cmd_demo)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status (2 for a user's mistake)."""
+    try:
+        args = build_parser().parse_args(argv)
+        return args.func(args)
+    except TnsimError as exc:
+        print(f"tnsim: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("tnsim: interrupted", file=sys.stderr)
+        return 130
