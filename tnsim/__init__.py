@@ -9,10 +9,13 @@ from .errors import (
     ResourceLimitError,
     TnsimError,
 )
+from .queries import amplitude, amplitudes
 
 __all__ = [
     "Circuit",
     "Operation",
+    "amplitude",
+    "amplitudes",
     "TnsimError",
     "InputError",
     "QasmError",

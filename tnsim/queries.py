@@ -15,7 +15,7 @@ from .circuit import Circuit
 from .errors import InputError
 from .execute import Scaled, execute
 from .network import TensorNetwork, amplitude_network
-from .plan import greedy_tree
+from .plan import make_plan
 from .simplify import absorb_small
 
 __all__ = ["amplitude", "amplitudes", "contract_network"]
@@ -52,8 +52,8 @@ def contract_network(network: TensorNetwork) -> Scaled:
         ``mantissa * 2**exponent``, axes in the order of ``network.output``.
     """
     small = absorb_small(network)
-    tree = greedy_tree(small.indices, small.output, small.size)
-    return execute(small, tree)
+    plan = make_plan(small)
+    return execute(small, plan.tree, plan.sliced)
 
 
 def amplitude(
