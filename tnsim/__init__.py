@@ -9,6 +9,7 @@ from .errors import (
     ResourceLimitError,
     TnsimError,
 )
+from .qasm import read_qasm, write_qasm
 from .queries import amplitude, amplitudes
 
 __all__ = [
@@ -22,5 +23,7 @@ __all__ = [
     "PlanningError",
     "ResourceLimitError",
     "CheckpointError",
+    "read_qasm",
+    "write_qasm",
 ]
 __version__ = "0.1.0"
