@@ -92,7 +92,8 @@ def _amp_rows(circuit: Circuit, rows: np.ndarray, dtype) -> list[dict]:
     return out
 
 
-def _print_amp_table(rows: list[dict], stream=sys.stdout) -> None:
+def _print_amp_table(rows: list[dict], stream=None) -> None:
+    stream = stream or sys.stdout
     width = max(12, *(len(r["bits"]) for r in rows)) if len(rows[0]["bits"]) <= 64 else 12
     print(f"{'bitstring':<{width}}  {'amplitude':>34}  {'probability':>12}  log10|a|", file=stream)
     for r in rows:
