@@ -11,14 +11,22 @@ from __future__ import annotations
 
 import itertools
 import math
+import os
 from collections import Counter
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
+from concurrent.futures import Executor
 from dataclasses import dataclass
 
 import numpy as np
 
+from .backends import ArrayBackend, get_backend
+from .checkpoint import Checkpoint, OrderedSum, run_fingerprint
+from .errors import InputError, ResourceLimitError
+from .executors import SliceError, chunk_bounds, local_workers, run_chunks
+from .memory import default_memory_limit, format_bytes, parse_memory
 from .network import TensorNetwork
 from .plan.tree import ContractionTree
+from .progress import SliceProgress
 
 __all__ = [
     "Scaled",
@@ -28,6 +36,10 @@ __all__ = [
     "normalize",
     "compile_tree",
     "contract_tree",
+    "count_flops",
+    "peak_memory",
+    "SliceJob",
+    "contract_slices",
     "execute",
 ]
 
@@ -203,11 +215,67 @@ def compile_tree(tree: ContractionTree, removed: Iterable[int] = ()) -> list[Pai
     return steps
 
 
+def count_flops(steps: Sequence[PairStep]) -> int:
+    """Return the real FLOPs of compiled steps: ``8*B*L*K*R`` per pairwise contraction.
+
+    A complex multiply-add is 8 real floating-point operations; the summations
+    of axes only one operand holds (``pre_a``, ``pre_b``) are not counted.
+
+    Examples
+    --------
+    >>> from tnsim.plan import greedy_tree
+    >>> tree = greedy_tree([(0, 1), (1, 2)], (0, 2), {0: 4, 1: 5, 2: 6})
+    >>> count_flops(compile_tree(tree))
+    960
+    """
+    return sum(8 * s.mat_a[0] * s.mat_a[1] * s.mat_a[2] * s.mat_b[2] for s in steps)
+
+
+def peak_memory(tree: ContractionTree, steps: Sequence[PairStep], itemsize: int) -> int:
+    """Return the most bytes of intermediates alive at once while contracting ``tree``.
+
+    Counts every intermediate not yet consumed, plus what one step allocates:
+    the summed and transposed copies of both operands and the result.  Input
+    arrays (and their slices, which are views) are not counted.
+
+    Parameters
+    ----------
+    tree : ContractionTree
+        The tree the steps were compiled from.
+    steps : sequence of PairStep
+        From :func:`compile_tree` (with the sliced labels removed).
+    itemsize : int
+        Bytes per element of the dtype (16 for complex128).
+
+    Examples
+    --------
+    >>> from tnsim.plan import greedy_tree
+    >>> tree = greedy_tree([(0, 1), (1, 2)], (0, 2), {0: 4, 1: 5, 2: 6})
+    >>> peak_memory(tree, compile_tree(tree), 16)  # 4*5 + 5*6 copies + 4*6 result
+    1184
+    """
+    n = tree.num_leaves
+    held: list[int] = [0] * n
+    live = peak = 0
+    for (x, y), step in zip(tree.path, steps):
+        copy_a = math.prod(step.mat_a) * (2 if step.pre_a else 1)
+        copy_b = math.prod(step.mat_b) * (2 if step.pre_b else 1)
+        out = math.prod(step.out_shape)
+        peak = max(peak, live + copy_a + copy_b + out)
+        live += out - held[x] - held[y]
+        held.append(out)
+    if steps:
+        peak = max(peak, live + held[-1])
+    return peak * itemsize
+
+
 def contract_tree(
     arrays: Sequence[np.ndarray],
     tree: ContractionTree,
     steps: Sequence[PairStep] | None = None,
     labels: Sequence[Sequence[int]] | None = None,
+    *,
+    backend: ArrayBackend | str | None = None,
 ) -> Scaled:
     """Contract ``arrays`` along ``tree`` with a running power-of-two scale.
 
@@ -222,6 +290,9 @@ def contract_tree(
         From :func:`compile_tree`; computed if omitted.
     labels : sequence of sequence of int, optional
         Labels of ``arrays`` when they differ from ``tree.inputs`` (sliced).
+    backend : str or ArrayBackend, optional
+        Array library of the pairwise contractions (default numpy, see
+        :mod:`tnsim.backends`).
 
     Returns
     -------
@@ -231,17 +302,12 @@ def contract_tree(
     if steps is None:
         steps = compile_tree(tree)
     labels = list(tree.inputs if labels is None else labels)
-    nodes: list[np.ndarray | None] = list(arrays)
-    exponent = 0
-    for (x, y), step in zip(tree.path, steps):
-        c = apply_step(step, nodes[x], nodes[y])
-        nodes[x] = nodes[y] = None
-        c, e = normalize(c)
-        exponent += e
-        nodes.append(c)
-        labels.append(step.out_labels)
-    root = nodes[-1]
-    final = labels[-1]
+    ops = get_backend(backend)
+    if ops.is_numpy:
+        root, exponent = _run_numpy(arrays, tree, steps)
+    else:
+        root, exponent = _run_other(ops, arrays, tree, steps, labels)
+    final = steps[-1].out_labels if steps else tuple(labels[0])
     extra = tuple(k for k, i in enumerate(final) if i not in tree.output)
     if extra:
         root = root.sum(axis=extra)
@@ -251,20 +317,181 @@ def contract_tree(
     return Scaled(root, exponent + e)
 
 
+def _normalize_owned(array: np.ndarray) -> tuple[np.ndarray, int]:
+    """:func:`normalize` in place, for a freshly computed intermediate."""
+    flat = array.reshape(-1)
+    if np.iscomplexobj(flat):
+        flat = flat.view(flat.real.dtype)
+    if flat.size == 0:
+        return array, 0
+    peak = float(max(flat.max(), -flat.min()))
+    if peak == 0.0 or not math.isfinite(peak):
+        return array, 0
+    e = math.frexp(peak)[1]
+    if e:
+        np.ldexp(flat, -e, out=flat)
+    return array, e
+
+
+def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
+    nodes: list[np.ndarray | None] = list(arrays)
+    exponent = 0
+    for (x, y), step in zip(tree.path, steps):
+        c = apply_step(step, nodes[x], nodes[y])
+        nodes[x] = nodes[y] = None
+        c, e = _normalize_owned(c)
+        exponent += e
+        nodes.append(c)
+    return nodes[-1], exponent
+
+
+def _run_other(ops: ArrayBackend, arrays, tree, steps, labels) -> tuple[np.ndarray, int]:
+    nodes = [ops.to_backend(a) for a in arrays]
+    labels = list(labels)
+    exponent = 0
+    for (x, y), step in zip(tree.path, steps):
+        c = ops.contract_pair(nodes[x], labels[x], nodes[y], labels[y], step.out_labels)
+        nodes[x] = nodes[y] = None
+        c, e = ops.normalize(c)
+        exponent += e
+        nodes.append(c)
+        labels.append(step.out_labels)
+    return ops.to_numpy(nodes[-1]), exponent
+
+
 def _slice_arrays(
-    network: TensorNetwork, sliced: Sequence[int], values: Sequence[int]
+    arrays: Sequence[np.ndarray],
+    indices: Sequence[Sequence[int]],
+    sliced: Sequence[int],
+    values: Sequence[int],
 ) -> list[np.ndarray]:
     fixed = dict(zip(sliced, values))
     out = []
-    for arr, ix in zip(network.arrays, network.indices):
+    for arr, ix in zip(arrays, indices):
         if any(i in fixed for i in ix):
             arr = arr[tuple(fixed.get(i, slice(None)) for i in ix)]
         out.append(arr)
     return out
 
 
-def execute(network: TensorNetwork, tree: ContractionTree, sliced: Sequence[int] = ()) -> Scaled:
+@dataclass(frozen=True)
+class SliceJob:
+    """Everything a worker needs to contract slices: arrays, tree, sliced labels.
+
+    Sent once to each worker process; :func:`contract_slices` runs a chunk of it.
+    """
+
+    arrays: tuple[np.ndarray, ...]
+    tree: ContractionTree
+    sliced: tuple[int, ...]
+    backend: str = "numpy"
+
+    @property
+    def dims(self) -> tuple[int, ...]:
+        """Sizes of the sliced labels."""
+        return tuple(self.tree.size[i] for i in self.sliced)
+
+    def describe(self, k: int) -> str:
+        """Name slice ``k``: its number and the value of each sliced label."""
+        values = np.unravel_index(k, self.dims) if self.sliced else ()
+        fixed = ", ".join(f"label {i}={int(v)}" for i, v in zip(self.sliced, values))
+        return f"slice {k} of {math.prod(self.dims)}" + (f" ({fixed})" if fixed else "")
+
+
+_COMPILED: dict = {}
+
+
+def _compiled(job: SliceJob) -> tuple[list[PairStep], list[tuple[int, ...]]]:
+    """Steps and sliced labels of ``job``, compiled once per worker."""
+    if _COMPILED.get("job") is not job:
+        gone = set(job.sliced)
+        labels = [tuple(i for i in ix if i not in gone) for ix in job.tree.inputs]
+        _COMPILED.update(job=job, steps=compile_tree(job.tree, job.sliced), labels=labels)
+    return _COMPILED["steps"], _COMPILED["labels"]
+
+
+def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
+    """Return the sum of slices ``start .. stop-1`` of ``job``, added in slice order.
+
+    Raises
+    ------
+    SliceError
+        If a slice fails; the message names the slice.
+    """
+    steps, labels = _compiled(job)
+    total: Scaled | None = None
+    for k in range(start, stop):
+        try:
+            values = np.unravel_index(k, job.dims) if job.sliced else ()
+            arrays = _slice_arrays(job.arrays, job.tree.inputs, job.sliced, values)
+            part = contract_tree(arrays, job.tree, steps, labels, backend=job.backend)
+        except Exception as exc:
+            raise SliceError(f"{job.describe(k)} failed: {type(exc).__name__}: {exc}") from exc
+        total = part if total is None else total + part
+    return total
+
+
+def _check_sliced(network: TensorNetwork, sliced: tuple[int, ...]) -> None:
+    out = set(network.output)
+    for i in sliced:
+        if i not in network.size or i in out:
+            raise InputError(
+                f"cannot slice label {i}: it is {'an output' if i in out else 'not a'} label "
+                "of the network; slice only labels that are summed over"
+            )
+    if len(set(sliced)) != len(sliced):
+        raise InputError(f"sliced labels {sliced} repeat a label; give each label once")
+
+
+def _check_memory(need: int, limit: int, workers: int) -> None:
+    if need * workers <= limit:
+        return
+    what = f"{workers} worker processes each need" if workers > 1 else "the contraction needs"
+    smallest = need * workers
+    raise ResourceLimitError(
+        f"{what} {format_bytes(need)} of intermediates per slice, above the memory limit "
+        f"of {format_bytes(limit)}; the smallest limit that works for this plan is "
+        f"{smallest} bytes ({format_bytes(smallest)}): raise --memory/memory_limit to at least "
+        "that, use fewer workers, or plan with a smaller limit so more labels are sliced"
+    )
+
+
+def _fingerprint(network: TensorNetwork, job: SliceJob, bounds) -> str:
+    tree = job.tree
+    description = {
+        "indices": [list(ix) for ix in tree.inputs],
+        "output": list(tree.output),
+        "size": sorted([int(k), int(v)] for k, v in tree.size.items()),
+        "path": [list(p) for p in tree.path],
+        "sliced": list(job.sliced),
+        "chunks": [list(b) for b in bounds],
+        "dtype": np.dtype(network.dtype).str,
+        "exponent": int(network.exponent),
+        "backend": job.backend,
+    }
+    return run_fingerprint(job.arrays, description)
+
+
+def execute(
+    network: TensorNetwork,
+    tree: ContractionTree,
+    sliced: Sequence[int] = (),
+    *,
+    memory_limit: int | str | None = None,
+    executor: Executor | None = None,
+    workers: int | None = None,
+    checkpoint: str | os.PathLike | None = None,
+    progress: bool | None | Callable[[int, int], None] = None,
+    backend: str = "numpy",
+    chunk_size: int | None = None,
+) -> Scaled:
     """Contract a network along a tree, summing over the ``sliced`` labels one value at a time.
+
+    Slices are grouped into chunks of consecutive slices
+    (:func:`tnsim.executors.chunk_bounds`); each chunk sums its slices in order
+    and chunk sums are added in chunk order, so the result is bit-for-bit the
+    same for the same plan whatever runs it (serially, a process pool, Dask)
+    and however often it was stopped and resumed.
 
     Parameters
     ----------
@@ -274,20 +501,92 @@ def execute(network: TensorNetwork, tree: ContractionTree, sliced: Sequence[int]
         The plan.
     sliced : sequence of int
         Labels fixed to each of their values in turn (not output labels).
+    memory_limit : int or str, optional
+        Bytes (or text such as ``"4GiB"``) the intermediates of the running
+        slices may use; default half of the available memory.  A run that
+        would exceed it is refused before it starts.
+    executor : concurrent.futures.Executor, optional
+        Where chunks run, e.g. ``distributed.Client.get_executor()``.
+    workers : int, optional
+        Without an executor: size of a local process pool (1 = serial).  By
+        default work above 1e11 FLOPs uses every core the memory limit allows.
+    checkpoint : path, optional
+        File recording finished chunks; a rerun of the same network and plan
+        resumes from it (see :mod:`tnsim.checkpoint`).
+    progress : bool, None or callable
+        Show a progress bar (``None``: only on a terminal, for large work); a
+        callable is called as ``progress(chunks_done, num_chunks)`` instead.
+    backend : str
+        Array library of the contractions (``"numpy"``; see :mod:`tnsim.backends`).
+    chunk_size : int, optional
+        Slices per chunk, overriding the automatic choice (changes the rounding
+        of the sum, hence the checkpoint fingerprint).
 
     Returns
     -------
     Scaled
         The network's value, including ``network.exponent``.
+
+    Raises
+    ------
+    ResourceLimitError
+        If a slice's intermediates exceed ``memory_limit``.
+    CheckpointError
+        If ``checkpoint`` is corrupt or belongs to another run.
+    SliceError
+        If a slice fails (finished chunks stay in the checkpoint).
+
+    Examples
+    --------
+    >>> from tnsim.plan import greedy_tree
+    >>> tn = TensorNetwork([np.ones((2, 2)), np.ones((2, 2))], [(0, 1), (1, 2)], {0: 2, 1: 2, 2: 2})
+    >>> tree = greedy_tree(tn.indices, tn.output, tn.size)
+    >>> complex(execute(tn, tree)), complex(execute(tn, tree, sliced=[1, 2]))
+    ((8+0j), (8+0j))
     """
     if len(network.arrays) == 0:
         return Scaled(np.asarray(np.ones((), network.dtype)), network.exponent)
-    sliced = tuple(sliced)
+    sliced = tuple(int(i) for i in sliced)
+    _check_sliced(network, sliced)
+    ops = get_backend(backend)
+    limit = default_memory_limit() if memory_limit is None else parse_memory(memory_limit)
     steps = compile_tree(tree, sliced)
-    labels = [tuple(i for i in ix if i not in sliced) for ix in tree.inputs]
-    total: Scaled | None = None
-    for values in itertools.product(*(range(network.size[i]) for i in sliced)):
-        arrays = _slice_arrays(network, sliced, values) if sliced else network.arrays
-        part = contract_tree(arrays, tree, steps, labels)
-        total = part if total is None else total + part
+    need = peak_memory(tree, steps, np.dtype(network.dtype).itemsize)
+    job = SliceJob(tuple(network.arrays), tree, sliced, ops.name)
+    num_slices = math.prod(job.dims)
+    slice_flops = count_flops(steps)
+    bounds = chunk_bounds(num_slices, slice_flops, chunk_size)
+    if executor is None and workers is None:
+        big = slice_flops * num_slices >= 1e11 and len(bounds) > 1
+        workers = min(local_workers(), len(bounds), max(1, limit // max(need, 1))) if big else 1
+    pool = 1 if executor is not None else max(1, int(workers))
+    _check_memory(need, limit, pool)
+    if checkpoint is not None:
+        store = Checkpoint(checkpoint, _fingerprint(network, job, bounds), len(bounds), Scaled)
+        sums, record = store.sums, store.add
+    else:
+        sums = OrderedSum(len(bounds))
+        record = sums.add
+    done = sums.done()
+    todo = [i for i in range(len(bounds)) if i not in done]
+    done_slices = sum(bounds[i][1] - bounds[i][0] for i in done)
+    bar = SliceProgress(progress, num_slices, len(bounds), slice_flops, done_slices, len(done))
+
+    def finished(index: int, value: Scaled) -> None:
+        record(index, value)
+        bar.advance(bounds[index][1] - bounds[index][0])
+
+    try:
+        run_chunks(
+            contract_slices,
+            job,
+            bounds,
+            todo,
+            finished,
+            executor=executor,
+            workers=min(pool, max(len(todo), 1)),
+        )
+    finally:
+        bar.close()
+    total = sums.total()
     return Scaled(total.mantissa, total.exponent + network.exponent)

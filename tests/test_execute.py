@@ -1,0 +1,160 @@
+"""The executor: slicing, chunking, executors, memory checks, array backends."""
+
+import tracemalloc
+from concurrent.futures import ThreadPoolExecutor
+
+import numpy as np
+import pytest
+
+import tnsim.execute as ex
+from tnsim.errors import InputError, ResourceLimitError
+from tnsim.execute import (
+    Scaled,
+    compile_tree,
+    count_flops,
+    execute,
+    normalize,
+    peak_memory,
+)
+from tnsim.executors import SliceError, chunk_bounds
+from tnsim.network import TensorNetwork
+from tnsim.plan import greedy_tree
+from tnsim.testing import dense_state
+
+
+def _same_bits(a: Scaled, b: Scaled) -> bool:
+    return a.exponent == b.exponent and a.mantissa.tobytes() == b.mantissa.tobytes()
+
+
+def _index(bits: str) -> int:
+    return int(bits, 2)  # qubit 0 is the most significant bit of dense_state
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_sliced_amplitude_equals_unsliced_and_state_vector(sliced_case, seed):
+    # Reference: the dense state vector of tnsim.testing (numpy.tensordot gate by gate).
+    circuit, bits, network, tree, sliced = sliced_case(14, 90, seed=seed, num_sliced=4)
+    assert len(sliced) == 4
+    whole = complex(execute(network, tree))
+    parts = complex(execute(network, tree, sliced, chunk_size=3))
+    expected = dense_state(circuit)[_index(bits)]
+    assert parts == pytest.approx(expected, abs=1e-12)
+    assert parts == pytest.approx(whole, abs=1e-13)
+
+
+def test_sliced_open_qubits_match_state_vector(sliced_case):
+    # Reference: dense state vector; qubits 0 and 3 left open give a 2x2 block of amplitudes.
+    circuit, bits, network, tree, sliced = sliced_case(10, 60, seed=5, open_qubits=(0, 3))
+    assert sliced and not set(sliced) & set(network.output)
+    got = execute(network, tree, sliced, chunk_size=1).value()
+    psi = dense_state(circuit).reshape((2,) * 10)
+    fixed = [int(b) for b in bits]
+    want = psi[(slice(None), *fixed[1:3], slice(None), *fixed[4:])]
+    np.testing.assert_allclose(got, want, atol=1e-12)
+
+
+def test_chunking_and_executor_do_not_change_bits(sliced_case):
+    _, _, network, tree, sliced = sliced_case(16, 110, seed=4, num_sliced=4)
+    serial = execute(network, tree, sliced, chunk_size=3)
+    with ThreadPoolExecutor(3) as pool:
+        threaded = execute(network, tree, sliced, chunk_size=3, executor=pool)
+    assert _same_bits(serial, threaded)
+    other = execute(network, tree, sliced, chunk_size=5)
+    assert complex(other) == pytest.approx(complex(serial), abs=1e-13)
+
+
+def test_process_pool_matches_serial_bit_for_bit(sliced_case):
+    _, _, network, tree, sliced = sliced_case(16, 110, seed=4, num_sliced=4)
+    serial = execute(network, tree, sliced, chunk_size=2)
+    pooled = execute(network, tree, sliced, chunk_size=2, workers=2)
+    assert _same_bits(serial, pooled)
+
+
+def test_count_flops_matches_matrix_product_formula():
+    # An (m x k)(k x n) complex matrix product is m*n*k multiply-adds of 8 real
+    # FLOPs each (common practice).
+    tree = greedy_tree([(0, 1), (1, 2)], (0, 2), {0: 3, 1: 7, 2: 5})
+    assert count_flops(compile_tree(tree)) == 8 * 3 * 7 * 5
+    # batched: a hyperedge kept as a batch axis multiplies the work by its size
+    tree = greedy_tree([(9, 0, 1), (9, 1, 2)], (9, 0, 2), {0: 3, 1: 7, 2: 5, 9: 4})
+    assert count_flops(compile_tree(tree)) == 8 * 4 * 3 * 7 * 5
+
+
+def test_peak_memory_bounds_measured_allocation(sliced_case):
+    _, _, network, tree, _ = sliced_case(16, 110, seed=4)
+    steps = compile_tree(tree)
+    estimate = peak_memory(tree, steps, 16)
+    ex.contract_tree(network.arrays, tree, steps)  # warm caches outside the measurement
+    tracemalloc.start()
+    try:
+        ex.contract_tree(network.arrays, tree, steps)
+        _, measured = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert measured <= estimate + 64 * 1024
+    assert estimate <= 8 * measured
+
+
+def test_too_small_memory_limit_is_refused_with_smallest_limit(sliced_case):
+    _, _, network, tree, sliced = sliced_case(16, 110, seed=4, num_sliced=4)
+    need = peak_memory(tree, compile_tree(tree, sliced), 16)
+    with pytest.raises(ResourceLimitError, match=f"smallest limit .* is {need} bytes"):
+        execute(network, tree, sliced, memory_limit=need - 1)
+    assert execute(network, tree, sliced, memory_limit=need).exponent is not None
+    with pytest.raises(ResourceLimitError, match=f"is {2 * need} bytes"):
+        execute(network, tree, sliced, memory_limit=need, workers=2)
+
+
+def test_bad_sliced_labels_are_input_errors(sliced_case):
+    _, _, network, tree, _ = sliced_case(8, 30, seed=1, open_qubits=(2,))
+    with pytest.raises(InputError, match="output"):
+        execute(network, tree, [network.output[0]])
+    with pytest.raises(InputError, match="not a"):
+        execute(network, tree, [10**9])
+
+
+def test_failing_slice_is_named(sliced_case, monkeypatch):
+    _, _, network, tree, sliced = sliced_case(10, 60, seed=2, num_sliced=3)
+    real = ex.contract_tree
+    calls = []
+
+    def flaky(*args, **kwargs):
+        calls.append(1)
+        if len(calls) == 5:
+            raise FloatingPointError("injected")
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(ex, "contract_tree", flaky)
+    with pytest.raises(SliceError, match=r"slice 4 of 8 \(label \d+=1, label \d+=0, label \d+=0\)"):
+        execute(network, tree, sliced, chunk_size=2)
+
+
+def test_normalize_in_place_matches_normalize():
+    rng = np.random.default_rng(0)
+    x = (rng.normal(size=50) + 1j * rng.normal(size=50)) * 2.0**-70
+    ref, e = normalize(x)
+    got, e2 = ex._normalize_owned(x.copy())
+    assert e == e2 and ref.tobytes() == got.tobytes()
+    assert 0.5 <= np.max(np.abs(ref.view(np.float64))) < 1
+
+
+def test_chunk_bounds_cover_every_slice_once():
+    for n, flops, size in [(1, 1.0, None), (1000, 10.0, None), (37, 5e9, None), (37, 1, 4)]:
+        bounds = chunk_bounds(n, flops, size)
+        covered = [k for a, b in bounds for k in range(a, b)]
+        assert covered == list(range(n))
+
+
+def test_dask_array_backend_matches_numpy(sliced_case):
+    # dask.array reached through opt_einsum's backend dispatch stands in for GPU libraries.
+    pytest.importorskip("dask.array")
+    _, _, network, tree, sliced = sliced_case(8, 30, seed=3, num_sliced=2)
+    ref = complex(execute(network, tree, sliced))
+    got = complex(execute(network, tree, sliced, backend="dask"))
+    assert got == pytest.approx(ref, abs=1e-13)
+
+
+def test_missing_backend_is_an_input_error():
+    tn = TensorNetwork([np.ones(2)], [(0,)], {0: 2})
+    with pytest.raises(InputError, match="not installed"):
+        execute(tn, greedy_tree(tn.indices, tn.output, tn.size), backend="no_such_array_lib")
