@@ -123,6 +123,70 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return run_demo(quick=args.quick)
 
 
+def _cmd_gen(args: argparse.Namespace) -> int:
+    from .families import describe_families, make_family, parse_params
+
+    if args.list:
+        print(describe_families())
+        return 0
+    if not args.family:
+        raise InputError("give a family name (list them with 'tnsim gen --list')")
+    text = make_family(args.family, **parse_params(args.param)).to_qasm()
+    if args.output:
+        write_atomic(args.output, text)
+    else:
+        sys.stdout.write(text)
+    return 0
+
+
+def _cmd_bench(args: argparse.Namespace) -> int:
+    from .bench import bench_command
+
+    return bench_command(args, write_atomic)
+
+
+def _add_gen_and_bench(sub) -> None:
+    gen = sub.add_parser(
+        "gen",
+        help="write a circuit of a built-in family as OpenQASM 2.0",
+        description="Write a circuit of a built-in family as OpenQASM 2.0 "
+        "(e.g. tnsim gen grid --param rows=5 --param cols=5 -o grid.qasm).",
+    )
+    gen.add_argument("family", nargs="?", help="family name (see --list)")
+    gen.add_argument("--param", action="append", metavar="KEY=VALUE", help="family parameter")
+    gen.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
+    gen.add_argument("--list", action="store_true", help="list families and their parameters")
+    gen.set_defaults(func=_cmd_gen)
+
+    bench = sub.add_parser(
+        "bench",
+        help="sweep a circuit family: plan (and contract) one amplitude per size and planner",
+        description="Sweep a circuit family over sizes; plan one amplitude of each instance "
+        "with each planner, optionally contract it; record real FLOPs (complex "
+        "multiply-add = 8), width, slices, seconds and memory.",
+    )
+    bench.add_argument("--family", default="grid", help="family name (default grid)")
+    bench.add_argument("--sizes", required=True,
+                       help="comma-separated sizes: RxC for grid/ising, N for the others")
+    bench.add_argument("--cycles", type=int, help="the family's depth (cycles, layers, p, ...)")
+    bench.add_argument("--param", action="append", metavar="KEY=VALUE",
+                       help="other family parameter (repeatable)")
+    bench.add_argument("--planners", default="tnsim,greedy,random-greedy",
+                       help="comma-separated: tnsim, greedy, random-greedy")
+    bench.add_argument("--execute", action="store_true", help="contract plans under --flop-cap")
+    bench.add_argument("--flop-cap", type=float, default=1e10,
+                       help="largest real-FLOP count contracted (default 1e10)")
+    bench.add_argument("--time-budget", type=float, default=2.0,
+                       help="seconds per instance for searching planners (default 2)")
+    bench.add_argument("--double", action="store_true", help="complex128 (default complex64)")
+    bench.add_argument("--csv", metavar="FILE", help="write the records as CSV")
+    bench.add_argument("--json", metavar="FILE", help="write records, units and machine as JSON")
+    bench.add_argument("--plot", metavar="FILE.png", help="plot cost against size (matplotlib)")
+    bench.add_argument("--seed", type=int, default=0, help="seed of bitstring and planners")
+    bench.add_argument("--quiet", action="store_true", help="no progress bar")
+    bench.set_defaults(func=_cmd_bench)
+
+
 def build_parser() -> argparse.ArgumentParser:
     """Return the argument parser of the ``tnsim`` command."""
     parser = _Parser(
@@ -149,6 +213,7 @@ def build_parser() -> argparse.ArgumentParser:
     demo = sub.add_parser("demo", help="run a built-in example end to end")
     demo.add_argument("--quick", action="store_true", help="smaller instances")
     demo.set_defaults(func=_cmd_demo)
+    _add_gen_and_bench(sub)
     return parser
 
 

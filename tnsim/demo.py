@@ -2,35 +2,16 @@
 
 from __future__ import annotations
 
-import math
 import time
 
 import numpy as np
 
 from .circuit import Circuit
+from .families import brickwork
+from .families import ghz as relay_chain
 from .queries import amplitude
 
 __all__ = ["run_demo", "relay_chain", "brickwork"]
-
-
-def relay_chain(n: int) -> Circuit:
-    """A GHZ-preparing chain: ``h`` on qubit 0, then ``cx`` down the line."""
-    c = Circuit(n).h(0)
-    for q in range(n - 1):
-        c.cx(q, q + 1)
-    return c
-
-
-def brickwork(n: int, depth: int, seed: int = 0) -> Circuit:
-    """Random single-qubit ``u3`` layers alternating with ``cz`` bricks on a line."""
-    rng = np.random.default_rng(seed)
-    c = Circuit(n)
-    for layer in range(depth):
-        for q in range(n):
-            c.u3(*rng.uniform(0, 2 * math.pi, 3), q)
-        for q in range(layer % 2, n - 1, 2):
-            c.cz(q, q + 1)
-    return c
 
 
 def _line(bits: str, a, seconds: float) -> str:

@@ -1,0 +1,103 @@
+"""Reproduce every benchmark figure of the README in one command.
+
+``python benchmarks/run_all.py`` runs the full set (tens of minutes on a
+2-core machine) and writes CSV/JSON/markdown under ``benchmarks/results/``
+and the README's plot to ``docs/bench_grid.png``.  ``--quick`` runs a small
+smoke version of each step (CI) into ``--out`` and leaves ``docs/`` alone.
+
+Steps, each in its own process:
+
+1. ``tnsim bench`` on 2D grid circuits (8 cycles), three planners, contracting
+   plans under 1e10 FLOPs; the plot.
+2. ``tnsim bench`` on QAOA MaxCut (p = 1, 3-regular graphs) by node count.
+3. ``benchmarks/crossover.py``: tnsim against the dense state vector.
+4. The other benchmark scripts, when present: ``planners.py``, ``scaling.py``,
+   ``queries.py`` (given ``--quick`` in quick mode).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(HERE)
+OTHERS = ["planners.py", "scaling.py", "queries.py"]
+
+GRID_FULL = "4x4,5x5,6x6,7x7,8x8,9x9,10x10"
+QAOA_FULL = "16,32,64,128,256,512"
+
+
+def _bench(out: str, name: str, extra: list[str]) -> list[str]:
+    files = ["--csv", os.path.join(out, f"{name}.csv"), "--json", os.path.join(out, f"{name}.json")]
+    return [sys.executable, "-m", "tnsim", "bench", *extra, "--quiet", *files]
+
+
+def steps(quick: bool, out: str) -> list[tuple[str, list[str]]]:
+    """The commands to run, as ``(name, argv)`` pairs."""
+    if quick:
+        grid = "--family grid --sizes 2x2,3x3 --cycles 4 --time-budget 0.2 --flop-cap 1e7"
+        qaoa = "--family qaoa --sizes 8,12 --planners tnsim,greedy --flop-cap 1e7"
+        plot = os.path.join(out, "bench_grid_quick.png")
+    else:
+        grid = f"--family grid --sizes {GRID_FULL} --cycles 8 --time-budget 5 --flop-cap 1e10"
+        qaoa = f"--family qaoa --sizes {QAOA_FULL} --param p=1 --time-budget 5 --flop-cap 1e10"
+        plot = os.path.join(ROOT, "docs", "bench_grid.png")
+    grid = grid.split() + ["--execute", "--plot", plot]
+    qaoa = qaoa.split() + ["--execute"]
+    suffix = "_quick" if quick else ""
+    out_steps = [
+        ("bench_grid", _bench(out, "bench_grid" + suffix, grid)),
+        ("bench_qaoa", _bench(out, "bench_qaoa" + suffix, qaoa)),
+        (
+            "crossover",
+            [sys.executable, os.path.join(HERE, "crossover.py"), "--out", out]
+            + (["--quick", "--repeats", "1"] if quick else []),
+        ),
+    ]
+    for script in OTHERS:
+        path = os.path.join(HERE, script)
+        if os.path.isfile(path):
+            out_steps.append((script[:-3], [sys.executable, path] + (["--quick"] if quick else [])))
+    return out_steps
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description="Reproduce the README's benchmark figures.")
+    ap.add_argument("--quick", action="store_true", help="small smoke run (< 2 minutes)")
+    ap.add_argument("--out", help="output folder (default benchmarks/results)")
+    args = ap.parse_args(argv)
+    out = os.path.abspath(args.out or os.path.join(HERE, "results"))
+    os.makedirs(out, exist_ok=True)
+    if not args.quick:
+        os.makedirs(os.path.join(ROOT, "docs"), exist_ok=True)
+    env = {**os.environ, "PYTHONPATH": ROOT + os.pathsep + os.environ.get("PYTHONPATH", "")}
+    failed = []
+    for name, cmd in steps(args.quick, out):
+        t0 = time.perf_counter()
+        shown = " ".join(os.path.relpath(c, ROOT) if c.startswith(ROOT) else c for c in cmd[1:])
+        print(f"== {name}: {shown}", flush=True)
+        result = subprocess.run(cmd, cwd=ROOT, env=env, capture_output=True, text=True)
+        log = os.path.join(out, f"{name}{'_quick' if args.quick else ''}.log")
+        with open(log, "w") as fh:
+            fh.write(result.stdout + result.stderr)
+        print(result.stdout, end="", flush=True)
+        print(
+            f"== {name}: exit {result.returncode} in {time.perf_counter() - t0:.1f} s "
+            f"(log: {os.path.relpath(log, ROOT)})",
+            flush=True,
+        )
+        if result.returncode:
+            print(result.stderr[-2000:], file=sys.stderr)
+            failed.append(name)
+    if failed:
+        print(f"failed: {', '.join(failed)}", file=sys.stderr)
+        return 1
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,260 @@
+"""Benchmark machinery: cost model, dense baseline, ``tnsim bench``/``gen``, run_all smoke run."""
+
+from __future__ import annotations
+
+import csv
+import importlib.util
+import json
+import math
+import os
+import subprocess
+import sys
+
+import numpy as np
+import opt_einsum
+import pytest
+
+from tnsim.bench import (
+    FAMILIES,
+    crossing_size,
+    parse_sizes,
+    plan_with,
+    run_bench,
+    tree_cost,
+)
+from tnsim.cli import main
+from tnsim.errors import InputError
+from tnsim.families import grid_circuit, make_family
+from tnsim.network import amplitude_network
+from tnsim.plan.tree import ContractionTree
+from tnsim.qasm import read_qasm
+from tnsim.testing import dense_state, random_circuit
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+
+
+def _load(name):
+    spec = importlib.util.spec_from_file_location(
+        name, os.path.join(ROOT, "benchmarks", name + ".py")
+    )
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+dense = _load("dense")
+
+
+@pytest.mark.parametrize("dtype,tol", [(np.complex128, 1e-12), (np.complex64, 2e-6)])
+@pytest.mark.parametrize(
+    "circuit",
+    [
+        random_circuit(6, 80, seed=11),  # every gate kind, including 3-qubit ones
+        grid_circuit(3, 3, 6, two_qubit="fsim", seed=2),
+        make_family("qft", n=5),
+    ],
+)
+def test_dense_baseline_matches_reference(circuit, dtype, tol):
+    state = dense.simulate(circuit, dtype)
+    assert state.dtype == dtype
+    np.testing.assert_allclose(state, dense_state(circuit), atol=tol)
+
+
+def test_dense_amplitude_bit_order():
+    c = grid_circuit(2, 2, 3, seed=1)
+    ref = dense_state(c)
+    assert abs(dense.dense_amplitude(c, "0110", np.complex128) - ref[0b0110]) < 1e-12
+
+
+def test_tree_cost_matches_opt_einsum_on_a_matrix_chain():
+    # opt_einsum's flop_count counts 2 per multiply-add of a pairwise contraction with
+    # a summed index (opt_einsum helpers.flop_count); tnsim counts 8 real FLOPs per complex
+    # multiply-add, so the ratio is exactly 4 on a chain where every step sums an index.
+    sizes = {0: 3, 1: 5, 2: 7, 3: 2, 4: 6}
+    inputs = [(0, 1), (1, 2), (2, 3), (3, 4)]
+    eq = "ab,bc,cd,de->ae"
+    shapes = [tuple(sizes[i] for i in ix) for ix in inputs]
+    path, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize="optimal")
+    ssa = tuple(tuple(p) for p in opt_einsum.paths.linear_to_ssa(path))
+    tree = ContractionTree(tuple(inputs), (0, 4), sizes, ssa)
+    cost = tree_cost(tree, itemsize=16)
+    assert cost.flops == 4 * float(info.opt_cost)
+    assert 2**cost.width == max(int(info.largest_intermediate), max(map(math.prod, shapes)))
+
+
+def test_tree_cost_sums_hyperedge_once():
+    # Three vectors sharing one label: sum_i a_i b_i c_i, 2 steps over the 4-element label.
+    tree = ContractionTree(((0,), (0,), (0,)), (), {0: 4}, ((0, 1), (2, 3)))
+    cost = tree_cost(tree)
+    assert cost.flops == 8 * (4 + 4) and cost.width == 2
+
+
+def test_tree_cost_slicing_multiplies_slices():
+    net = amplitude_network(grid_circuit(3, 3, 4, seed=0), "0" * 9)
+    tree, _ = plan_with("greedy", net)
+    whole = tree_cost(tree)
+    label = tree.inputs[len(tree.inputs) // 2][0]
+    part = tree_cost(tree, (label,))
+    assert part.num_slices == 2 and part.width <= whole.width
+    assert part.flops >= whole.flops / 2
+
+
+@pytest.mark.parametrize("planner", ["tnsim", "greedy", "random-greedy"])
+def test_every_planner_gives_the_right_amplitude(planner):
+    rows = run_bench(
+        "grid",
+        [{"rows": 3, "cols": 3}],
+        params={"cycles": 4},
+        planners=[planner],
+        execute=True,
+        time_budget=0.2,
+        dtype=np.complex128,
+    )
+    (r,) = rows
+    c = grid_circuit(3, 3, 4, seed=0)
+    want = dense_state(c)[int(r.bits, 2)]
+    assert r.executed and abs(complex(r.amplitude_real, r.amplitude_imag) - want) < 1e-10
+
+
+def test_flop_cap_skips_contraction():
+    (r,) = run_bench(
+        "grid", [{"rows": 3, "cols": 3}], planners=["greedy"], execute=True, flop_cap=1.0
+    )
+    assert r.flops > 1.0
+    assert not r.executed and math.isnan(r.contract_seconds)
+
+
+def test_parse_sizes_errors():
+    assert parse_sizes("20, 30", FAMILIES["qaoa"]) == [{"num_nodes": 20}, {"num_nodes": 30}]
+    for bad in ("4x", "4", "axb", "0x3", ""):
+        with pytest.raises(InputError):
+            parse_sizes(bad, FAMILIES["grid"])
+
+
+def test_crossing_size_none_when_below():
+    (r,) = run_bench("ghz", [{"n": 3}], planners=["greedy"])
+    assert crossing_size([r], "greedy", 1e12) is None
+
+
+def test_bench_cli_writes_csv_json_png(tmp_path, capsys):
+    paths = {k: str(tmp_path / f"out.{k}") for k in ("csv", "json", "png")}
+    status = main(
+        [
+            "bench",
+            "--family",
+            "grid",
+            "--sizes",
+            "2x2,2x3",
+            "--cycles",
+            "3",
+            "--execute",
+            "--time-budget",
+            "0.2",
+            "--quiet",
+            "--csv",
+            paths["csv"],
+            "--json",
+            paths["json"],
+            "--plot",
+            paths["png"],
+            "--double",
+        ]
+    )
+    assert status == 0
+    with open(paths["csv"]) as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == 6 and {r["planner"] for r in rows} == {"tnsim", "greedy", "random-greedy"}
+    for r in rows:
+        c = grid_circuit(*map(int, r["size"].split("x")), 3, seed=0)
+        want = dense_state(c)[int(r["bits"], 2)]
+        assert abs(complex(float(r["amplitude_real"]), float(r["amplitude_imag"])) - want) < 1e-10
+    doc = json.load(open(paths["json"]))
+    assert doc["settings"]["family"] == "grid" and len(doc["records"]) == 6
+    assert "complex multiply-add = 8" in doc["units"]["flops"]
+    assert doc["matmul_flop_rate"] > 0
+    with open(paths["png"], "rb") as fh:
+        assert fh.read(8) == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948)
+    assert "FLOPs" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    "argv",
+    [
+        ["bench", "--family", "nope", "--sizes", "4"],
+        ["bench", "--family", "grid", "--sizes", "4x"],
+        ["bench", "--family", "grid", "--sizes", "2x2", "--planners", "magic"],
+        ["bench", "--family", "ghz", "--sizes", "4", "--cycles", "3"],
+        ["bench", "--family", "grid", "--sizes", "2x2", "--param", "rows=3"],
+        ["bench", "--family", "grid", "--sizes", "2x2", "--param", "colour=red"],
+        ["bench", "--family", "grid", "--sizes", "2x2", "--flop-cap", "-1"],
+        ["bench", "--family", "grid"],
+        ["gen", "nope"],
+        ["gen", "grid", "--param", "rows"],
+        ["gen"],
+    ],
+)
+def test_bad_arguments_exit_2_without_files(argv, tmp_path, capsys):
+    out = str(tmp_path / "x.csv")
+    extra = ["--csv", out] if argv[0] == "bench" else ["-o", out]
+    assert main(argv + extra) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("tnsim: error:") and "\n" not in err
+    assert os.listdir(tmp_path) == []
+
+
+def test_gen_writes_family_that_reads_back(tmp_path):
+    path = str(tmp_path / "g.qasm")
+    assert (
+        main(
+            [
+                "gen",
+                "grid",
+                "--param",
+                "rows=3",
+                "--param",
+                "cols=2",
+                "--param",
+                "cycles=5",
+                "--param",
+                "two_qubit=fsim",
+                "-o",
+                path,
+            ]
+        )
+        == 0
+    )
+    back = read_qasm(path)
+    want = grid_circuit(3, 2, 5, two_qubit="fsim", seed=0)
+    assert [(o.name, o.qubits) for o in back] == [(o.name, o.qubits) for o in want]
+    np.testing.assert_allclose(dense_state(back), dense_state(want), atol=1e-12)
+
+
+def test_gen_list(capsys):
+    assert main(["gen", "--list"]) == 0
+    out = capsys.readouterr().out
+    assert all(name in out for name in FAMILIES)
+
+
+def test_run_all_quick_smoke(tmp_path):
+    # The CI smoke run of benchmarks/run_all.py.
+    result = subprocess.run(
+        [
+            sys.executable,
+            os.path.join(ROOT, "benchmarks", "run_all.py"),
+            "--quick",
+            "--out",
+            str(tmp_path),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=300,
+        cwd=ROOT,
+    )
+    assert result.returncode == 0, result.stderr[-3000:]
+    for name in (
+        "bench_grid_quick.csv",
+        "bench_qaoa_quick.json",
+        "bench_grid_quick.png",
+        "crossover_quick.json",
+    ):
+        assert (tmp_path / name).is_file()

@@ -1,0 +1,294 @@
+"""Circuit families: reproducibility, structure, closed forms, QASM round trips."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import scipy.linalg
+
+from tnsim import amplitude
+from tnsim.errors import InputError
+from tnsim.families import (
+    FAMILIES,
+    SQRT_W_U3,
+    brickwork,
+    ghz,
+    grid_circuit,
+    grid_edge_layer,
+    hardware_efficient,
+    iqp,
+    ising_trotter,
+    make_family,
+    qaoa_maxcut,
+    qft,
+)
+from tnsim.gates import gate_matrix
+from tnsim.qasm import read_qasm, write_qasm
+from tnsim.testing import dense_state
+
+X = np.array([[0, 1], [1, 0]], dtype=complex)
+Y = np.array([[0, -1j], [1j, 0]], dtype=complex)
+Z = np.diag([1.0, -1.0]).astype(complex)
+
+# Small instance of every registered family (must cover FAMILIES).
+SMALL = {
+    "grid": dict(rows=2, cols=3, cycles=5, seed=3),
+    "brickwork": dict(n=5, depth=4, seed=3),
+    "qaoa": dict(num_nodes=6, degree=3, p=2, seed=3),
+    "iqp": dict(n=5, seed=3, density=0.6),
+    "ising": dict(rows=2, cols=2, steps=3),
+    "ghz": dict(n=5),
+    "qft": dict(n=4),
+    "hardware-efficient": dict(n=4, layers=2, seed=3),
+}
+
+
+def _ops(circuit):
+    return [(op.name, op.qubits, op.params) for op in circuit]
+
+
+def test_small_table_covers_registry():
+    assert set(SMALL) == set(FAMILIES)
+
+
+@pytest.mark.parametrize("name", sorted(SMALL))
+def test_family_is_reproducible(name):
+    assert _ops(make_family(name, **SMALL[name])) == _ops(make_family(name, **SMALL[name]))
+
+
+@pytest.mark.parametrize("name", ["grid", "brickwork", "qaoa", "iqp", "hardware-efficient"])
+def test_seed_changes_random_families(name):
+    other = {**SMALL[name], "seed": SMALL[name]["seed"] + 1}
+    assert _ops(make_family(name, **SMALL[name])) != _ops(make_family(name, **other))
+
+
+@pytest.mark.parametrize("name", sorted(SMALL))
+def test_qasm_round_trip(name):
+    c = make_family(name, **SMALL[name])
+    back = read_qasm(write_qasm(c))
+    assert back.num_qubits == c.num_qubits
+    assert [(o.name, o.qubits) for o in back] == [(o.name, o.qubits) for o in c]
+    for a, b in zip(back, c):
+        np.testing.assert_allclose(a.params, b.params, atol=1e-12)
+
+
+@pytest.mark.parametrize("name", sorted(SMALL))
+def test_amplitudes_match_dense_reference(name):
+    c = make_family(name, **SMALL[name])
+    state = dense_state(c)
+    rng = np.random.default_rng(0)
+    for _ in range(3):
+        bits = rng.integers(0, 2, c.num_qubits)
+        index = int("".join(map(str, bits)), 2)  # qubit 0 is the most significant bit
+        assert abs(amplitude(c, bits) - state[index]) < 1e-10
+
+
+def test_sqrt_w_u3_is_exact():
+    # √W = exp(-iπ/4 (X+Y)/√2), the matrix itself (common practice for random-circuit sampling);
+    # reference exponential from scipy.linalg.expm; no global phase allowed.
+    want = scipy.linalg.expm(-1j * math.pi / 4 * (X + Y) / math.sqrt(2))
+    np.testing.assert_allclose(gate_matrix("u3", SQRT_W_U3), want, atol=1e-14)
+    np.testing.assert_allclose(
+        np.linalg.matrix_power(want, 2), (X + Y) / math.sqrt(2) * -1j, atol=1e-14
+    )
+
+
+def test_grid_single_qubit_gates_are_roots_of_paulis():
+    # sx squared is X exactly; ry(π/2) squared is -iY (√Y up to the phase exp(-iπ/4)).
+    sx, ry = gate_matrix("sx"), gate_matrix("ry", (math.pi / 2,))
+    np.testing.assert_allclose(sx @ sx, X, atol=1e-14)
+    np.testing.assert_allclose(ry @ ry, -1j * Y, atol=1e-14)
+
+
+def _kind(op):
+    return (op.name, op.params)
+
+
+@pytest.mark.parametrize("rows,cols,two", [(3, 4, "cz"), (4, 3, "fsim"), (1, 5, "cz")])
+def test_grid_structure(rows, cols, two):
+    cycles = 9
+    c = grid_circuit(rows, cols, cycles, two_qubit=two, seed=5)
+    n = rows * cols
+    ops = list(c)
+    pos = 0
+    last = [None] * n
+    for cycle in range(cycles):
+        singles = ops[pos : pos + n]
+        assert [op.qubits for op in singles] == [(q,) for q in range(n)]
+        for q, op in enumerate(singles):
+            assert _kind(op) != last[q], "same single-qubit gate twice in a row"
+            last[q] = _kind(op)
+        pos += n
+        layer = grid_edge_layer(rows, cols, cycle)
+        pairs = ops[pos : pos + len(layer)]
+        pos += len(layer)
+        assert [op.qubits for op in pairs] == layer
+        assert {op.name for op in pairs} <= {two}
+        for a, b in layer:
+            (ra, ca), (rb, cb) = divmod(a, cols), divmod(b, cols)
+            assert abs(ra - rb) + abs(ca - cb) == 1  # nearest neighbours
+            if cycle % 4 < 2:
+                assert ra == rb and ca % 2 == cycle % 2
+            else:
+                assert ca == cb and ra % 2 == cycle % 2
+    assert pos == len(ops)
+
+
+def test_grid_fsim_angles():
+    c = grid_circuit(2, 2, 1, two_qubit="fsim")
+    assert [op.params for op in c if op.name == "fsim"] == [(math.pi / 2, math.pi / 6)] * 2
+
+
+def test_grid_edge_layers_cover_every_edge_once():
+    rows, cols = 4, 5
+    edges = [e for k in range(4) for e in grid_edge_layer(rows, cols, k)]
+    assert len(edges) == len(set(edges)) == rows * (cols - 1) + cols * (rows - 1)
+
+
+def test_ghz_closed_form():
+    # (|0..0> + |1..1>)/√2 (Greenberger, Horne, Zeilinger, 1989; common practice).
+    for n in (3, 40):
+        c = ghz(n)
+        assert abs(amplitude(c, "0" * n) - 1 / math.sqrt(2)) < 1e-12
+        assert abs(amplitude(c, "1" * n) - 1 / math.sqrt(2)) < 1e-12
+        assert abs(amplitude(c, "1" + "0" * (n - 1))) < 1e-12
+
+
+@pytest.mark.parametrize("n", [3, 4])
+def test_qft_matches_nielsen_chuang(n):
+    # Nielsen & Chuang, Quantum Computation and Quantum Information, 2000, eq. 5.2:
+    # |j> -> 2^(-n/2) Σ_k exp(2πi jk / 2^n) |k>; qubit 0 is the most significant bit.
+    N = 2**n
+    for j in range(N):
+        bits = [(j >> (n - 1 - q)) & 1 for q in range(n)]
+        c = make_family("qft", n=n)
+        prep = type(c)(n)
+        for q, b in enumerate(bits):
+            if b:
+                prep.x(q)
+        prep.ops.extend(c.ops)
+        want = np.exp(2j * np.pi * j * np.arange(N) / N) / math.sqrt(N)
+        np.testing.assert_allclose(dense_state(prep), want, atol=1e-12)
+        k = (3 * j + 1) % N
+        kbits = [(k >> (n - 1 - q)) & 1 for q in range(n)]
+        assert abs(amplitude(prep, kbits) - want[k]) < 1e-12
+
+
+def test_qft_without_swaps_reverses_output_order():
+    n = 3
+    a, b = dense_state(qft(n)), dense_state(qft(n, swaps=False))
+    np.testing.assert_allclose(a, b, atol=1e-12)  # uniform superposition either way
+    assert sum(op.name == "swap" for op in qft(5)) == 2
+
+
+def test_ising_closed_forms():
+    # J = 0: each spin precesses, exp(i h t X)|0> = cos(ht)|0> + i sin(ht)|1> (common practice).
+    t, steps, h = 0.6, 3, 0.8
+    c = ising_trotter(2, 2, steps, dt=t / steps, J=0.0, h=h)
+    want = math.cos(h * t) ** 3 * (1j * math.sin(h * t))
+    assert abs(amplitude(c, "0010") - want) < 1e-12
+    # h = 0: |0...0> is an eigenstate with ZZ = +1 on all 4 edges: phase exp(+i J t * 4).
+    c = ising_trotter(2, 2, steps, dt=t / steps, J=0.7, h=0.0)
+    assert abs(amplitude(c, "0000") - np.exp(1j * 0.7 * t * 4)) < 1e-12
+
+
+def test_ising_trotter_converges_to_exact_evolution():
+    # First-order Trotter error is O(dt) (Suzuki, Commun. Math. Phys. 51, 183, 1976);
+    # exact exp(-iHt) from scipy.linalg.expm on H = -J Σ ZZ - h Σ X, chain of 3 spins.
+    J, h, t = 1.0, 0.9, 1.0
+    eye = np.eye(2)
+
+    def site(op, q):
+        mats = [op if k == q else eye for k in range(3)]
+        return np.kron(np.kron(mats[0], mats[1]), mats[2])
+
+    H = -J * (site(Z, 0) @ site(Z, 1) + site(Z, 1) @ site(Z, 2)) - h * sum(
+        site(X, q) for q in range(3)
+    )
+    exact = scipy.linalg.expm(-1j * H * t)[:, 0]
+    errors = [
+        np.abs(dense_state(ising_trotter(1, 3, s, dt=t / s, J=J, h=h)) - exact).max()
+        for s in (10, 20, 40)
+    ]
+    assert errors[0] > errors[1] > errors[2]
+    assert 1.6 < errors[0] / errors[1] < 2.5 and 1.6 < errors[1] / errors[2] < 2.5
+    assert errors[2] < 0.02
+
+
+def _iqp_diagonal(c, n):
+    # Diagonal from the gate definitions, not the matrices: cz = (-1)^(ab),
+    # rzz(θ) = exp(-iθ/2 (-1)^(a⊕b)), t = exp(iπ/4 a), rz(θ) = exp(-iθ/2 (-1)^a)
+    # (OpenQASM 2.0, arXiv:1707.03429, and tnsim.gates' rotation convention).
+    x = (np.arange(2**n)[:, None] >> (n - 1 - np.arange(n))) & 1
+    d = np.ones(2**n, dtype=complex)
+    for op in c.ops[n:-n]:
+        if op.name == "cz":
+            d *= (-1.0) ** (x[:, op.qubits[0]] * x[:, op.qubits[1]])
+        elif op.name == "rzz":
+            d *= np.exp(-0.5j * op.params[0] * (-1.0) ** (x[:, op.qubits[0]] ^ x[:, op.qubits[1]]))
+        elif op.name == "t":
+            d *= np.exp(0.25j * np.pi * x[:, op.qubits[0]])
+        else:
+            assert op.name == "rz"
+            d *= np.exp(-0.5j * op.params[0] * (-1.0) ** x[:, op.qubits[0]])
+    return d
+
+
+def test_iqp_zero_amplitude_is_mean_of_diagonal():
+    # <0|H^n D H^n|0> = 2^-n Σ_x d(x) (Shepherd & Bremner, Proc. R. Soc. A 465, 1413, 2009).
+    n = 6
+    c = iqp(n, seed=4, density=0.5)
+    assert [op.name for op in c.ops[:n]] == ["h"] * n == [op.name for op in c.ops[-n:]]
+    assert all(op.diagonal for op in c.ops[n:-n])
+    assert abs(amplitude(c, "0" * n) - _iqp_diagonal(c, n).mean()) < 1e-12
+
+
+def test_iqp_density_extremes():
+    assert sum(len(op.qubits) == 2 for op in iqp(6, density=0.0)) == 0
+    assert sum(len(op.qubits) == 2 for op in iqp(6, density=1.0)) == 15
+
+
+def test_hardware_efficient_structure():
+    c = hardware_efficient(5, 3, seed=1)
+    assert len(c) == 4 * 10 + 3 * 4
+    assert [op.qubits for op in c if op.name == "cx"] == [(q, q + 1) for q in range(4)] * 3
+
+
+def test_brickwork_bricks_alternate():
+    c = brickwork(6, 3, seed=0)
+    assert [op.qubits for op in c if op.name == "cz"] == [
+        (0, 1),
+        (2, 3),
+        (4, 5),
+        (1, 2),
+        (3, 4),
+        (0, 1),
+        (2, 3),
+        (4, 5),
+    ]
+
+
+def test_qaoa_registry_layers():
+    c = make_family("qaoa", num_nodes=8, degree=3, p=3)
+    direct, _ = qaoa_maxcut(None, (0.4,) * 3, (0.3,) * 3, num_nodes=8, degree=3, seed=0)
+    assert _ops(c) == _ops(direct)
+
+
+@pytest.mark.parametrize(
+    "call",
+    [
+        lambda: make_family("nope"),
+        lambda: make_family("grid", bogus=1),
+        lambda: make_family("grid", rows="four"),
+        lambda: make_family("grid", two_qubit="cx"),
+        lambda: grid_circuit(0, 3, 2),
+        lambda: iqp(4, density=1.5),
+        lambda: make_family("qaoa", num_nodes=5, degree=3),
+        lambda: ising_trotter(2, 2, 1, dt=float("nan")),
+    ],
+)
+def test_bad_input_raises(call):
+    with pytest.raises(InputError):
+        call()

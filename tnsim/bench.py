@@ -1,0 +1,665 @@
+"""Benchmarking contraction cost: sweep a circuit family, plan, optionally contract, record.
+
+Behind ``tnsim bench``.  For each instance of a family (one per size) the
+amplitude network of one seeded random bitstring is built and simplified
+(:func:`tnsim.simplify.absorb_small`), then planned by each chosen planner:
+
+* ``tnsim`` — :func:`tnsim.plan.make_plan` (tnsim's own planner, with slicing);
+* ``greedy`` — opt_einsum's greedy path;
+* ``random-greedy`` — opt_einsum's ``RandomGreedy`` (best of up to 64 randomized
+  greedy runs within the time budget).
+
+Every plan is scored by one cost model, :func:`tree_cost`, so the planners are
+compared like for like.  Units: FLOPs are real floating-point operations, a
+complex multiply-add counting 8; width is log2 of the largest intermediate's
+element count; bytes are for the dtype contracted.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+import platform
+import time
+import tracemalloc
+from collections import Counter
+from collections.abc import Callable, Sequence
+from dataclasses import asdict, dataclass, fields
+
+import numpy as np
+
+from .errors import InputError
+from .families import FAMILIES, Family, make_family
+from .network import TensorNetwork, amplitude_network
+from .plan import make_plan
+from .plan.tree import ContractionTree
+from .simplify import absorb_small
+
+__all__ = [
+    "PLANNERS",
+    "TreeCost",
+    "BenchRecord",
+    "tree_cost",
+    "parse_sizes",
+    "plan_with",
+    "measure_matmul_rate",
+    "machine_memory",
+    "run_bench",
+    "records_csv",
+    "records_json",
+    "crossing_size",
+    "plot_records",
+]
+
+PLANNERS = ("tnsim", "greedy", "random-greedy")
+"""Planner names ``tnsim bench`` accepts."""
+
+
+@dataclass(frozen=True)
+class TreeCost:
+    """The cost of contracting a network along a tree (summed over slices).
+
+    Attributes
+    ----------
+    flops : float
+        Real floating-point operations (a complex multiply-add is 8).
+    width : float
+        log2 of the element count of the largest tensor, inputs included.
+    peak_bytes : float
+        Largest total size of the tensors alive at once during one slice.
+    num_slices : int
+        Number of slices the sum is split into.
+    """
+
+    flops: float
+    width: float
+    peak_bytes: float
+    num_slices: int
+
+
+def tree_cost(tree: ContractionTree, sliced: Sequence[int] = (), itemsize: int = 8) -> TreeCost:
+    """Score a contraction tree; hyperedges are summed when their last tensor joins.
+
+    Each pairwise step costs one complex multiply-add (8 real FLOPs) per element
+    of the space of all labels of the two tensors.  Sliced labels are removed
+    and the per-slice cost multiplied by the number of slices.
+
+    Parameters
+    ----------
+    tree : ContractionTree
+        The tree.
+    sliced : sequence of int
+        Labels fixed in each slice.
+    itemsize : int
+        Bytes per element (8 for complex64, 16 for complex128).
+
+    Examples
+    --------
+    >>> t = ContractionTree(((0, 1), (1, 2)), (0, 2), {0: 2, 1: 4, 2: 2}, ((0, 1),))
+    >>> tree_cost(t)
+    TreeCost(flops=128.0, width=3.0, peak_bytes=160.0, num_slices=1)
+    >>> tree_cost(t, sliced=(1,))
+    TreeCost(flops=128.0, width=2.0, peak_bytes=64.0, num_slices=4)
+    """
+    cut = set(sliced)
+    size = tree.size
+    nodes = [frozenset(i for i in ix if i not in cut) for ix in tree.inputs]
+    count = Counter(i for ix in nodes for i in ix)
+    count.update(i for i in tree.output if i not in cut)
+
+    def numel(labels: frozenset) -> int:
+        return math.prod(size[i] for i in labels)
+
+    live = sum(numel(ix) for ix in nodes)
+    peak, biggest, flops = live, max((numel(ix) for ix in nodes), default=1), 0
+    for x, y in tree.path:
+        a, b = nodes[x], nodes[y]
+        count.subtract(a)
+        count.subtract(b)
+        out = frozenset(i for i in a | b if count[i] > 0)
+        count.update(out)
+        flops += numel(a | b)
+        n_out = numel(out)
+        biggest = max(biggest, n_out)
+        live += n_out
+        peak = max(peak, live)
+        live -= numel(a) + numel(b)
+        nodes.append(out)
+    slices = math.prod(size[i] for i in cut)
+    return TreeCost(
+        float(8 * flops * slices), math.log2(biggest), float(peak * itemsize), int(slices)
+    )
+
+
+def parse_sizes(text: str, family: Family) -> list[dict[str, int]]:
+    """Parse ``--sizes`` (``"4x4,5x5"`` or ``"20,30"``) into parameter dicts.
+
+    Examples
+    --------
+    >>> parse_sizes("3x4, 5x5", FAMILIES["grid"])
+    [{'rows': 3, 'cols': 4}, {'rows': 5, 'cols': 5}]
+    """
+    items = [s.strip() for s in str(text).split(",") if s.strip()]
+    if not items:
+        raise InputError("--sizes is empty; give e.g. 4x4,5x5 or 20,30")
+    out = []
+    want = " x ".join(family.size)
+    for item in items:
+        parts = item.lower().split("x")
+        if len(parts) != len(family.size) or not all(p.strip().isdigit() for p in parts):
+            raise InputError(
+                f"--sizes item {item!r}: family '{family.name}' takes sizes as {want} "
+                f"(positive integers{' joined by x' if len(family.size) > 1 else ''})"
+            )
+        values = [int(p) for p in parts]
+        if min(values) < 1:
+            raise InputError(f"--sizes item {item!r}: sizes must be at least 1")
+        out.append(dict(zip(family.size, values)))
+    return out
+
+
+def _opt_einsum_tree(network: TensorNetwork, optimizer) -> ContractionTree:
+    import opt_einsum.paths as oe_paths
+
+    ins = tuple(tuple(ix) for ix in network.indices)
+    if len(ins) < 2:
+        return ContractionTree(ins, tuple(network.output), dict(network.size), ())
+    linear = optimizer([frozenset(ix) for ix in ins], frozenset(network.output), network.size)
+    ssa = tuple(tuple(p) for p in oe_paths.linear_to_ssa(linear))
+    return ContractionTree(ins, tuple(network.output), dict(network.size), ssa)
+
+
+def plan_with(
+    planner: str, network: TensorNetwork, *, time_budget: float = 2.0, seed: int = 0
+) -> tuple[ContractionTree, tuple[int, ...]]:
+    """Plan ``network`` with the named planner; return ``(tree, sliced labels)``.
+
+    Examples
+    --------
+    >>> from tnsim.families import ghz
+    >>> tree, sliced = plan_with("greedy", amplitude_network(ghz(3), "000"))
+    >>> len(tree.path), sliced
+    (8, ())
+    """
+    if planner == "tnsim":
+        plan = make_plan(network, time_budget=time_budget, seed=seed)
+        return plan.tree, tuple(plan.sliced)
+    if planner == "greedy":
+        import opt_einsum.paths as oe_paths
+
+        return _opt_einsum_tree(network, oe_paths.greedy), ()
+    if planner == "random-greedy":
+        import opt_einsum
+
+        opt = opt_einsum.RandomGreedy(max_repeats=64, max_time=time_budget, minimize="flops")
+        return _opt_einsum_tree(network, opt), ()
+    raise InputError(f"unknown planner {planner!r}; choose from {', '.join(PLANNERS)}")
+
+
+def measure_matmul_rate(dtype=np.complex64, n: int = 768, repeats: int = 3) -> float:
+    """Return the best measured rate of one ``n``×``n`` complex matrix product, in real FLOP/s.
+
+    A complex ``n``×``n`` product is ``8 n³`` real FLOPs.
+    """
+    rng = np.random.default_rng(0)
+    a = (rng.standard_normal((n, n)) + 1j * rng.standard_normal((n, n))).astype(dtype)
+    b = a.T.copy()
+    best = math.inf
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        a @ b
+        best = min(best, time.perf_counter() - t0)
+    return 8.0 * n**3 / max(best, 1e-9)
+
+
+def machine_memory() -> int:
+    """Physical memory of this machine in bytes (0 if unknown)."""
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"))
+    except (ValueError, OSError, AttributeError):
+        return 0
+
+
+@dataclass(frozen=True)
+class BenchRecord:
+    """One (instance, planner) row of a benchmark.
+
+    Attributes
+    ----------
+    family, size : str
+        Family name and size item (e.g. ``"5x5"``).
+    num_qubits, num_gates, depth : int
+        The instance (``depth``: the family's depth parameter, 0 if none).
+    num_tensors : int
+        Tensors in the simplified amplitude network.
+    planner : str
+        Planner name.
+    flops, width, peak_bytes, num_slices
+        From :func:`tree_cost` (real FLOPs; log2 elements; bytes).
+    plan_seconds : float
+        Wall time of planning.
+    executed : bool
+        Whether the plan was contracted (it is not above the FLOP cap).
+    contract_seconds, flop_rate : float
+        Wall time of the contraction and ``flops / contract_seconds`` (NaN if not run).
+    traced_peak_bytes : float
+        ``tracemalloc`` peak of a second, traced contraction: memory Python and
+        numpy allocated on top of the network (NaN if not run).
+    amplitude_real, amplitude_imag : float
+        The contracted amplitude (NaN if not run).
+    bits : str
+        The bitstring (character i is qubit i).
+    """
+
+    family: str
+    size: str
+    num_qubits: int
+    num_gates: int
+    depth: int
+    num_tensors: int
+    planner: str
+    flops: float
+    width: float
+    peak_bytes: float
+    num_slices: int
+    plan_seconds: float
+    executed: bool
+    contract_seconds: float
+    flop_rate: float
+    traced_peak_bytes: float
+    amplitude_real: float
+    amplitude_imag: float
+    bits: str = ""
+
+
+def _contract(network: TensorNetwork, tree, sliced, trace: bool) -> tuple[complex, float, float]:
+    from .execute import execute
+
+    t0 = time.perf_counter()
+    value = complex(execute(network, tree, sliced))
+    seconds = time.perf_counter() - t0
+    peak = math.nan
+    if trace:
+        tracemalloc.start()
+        try:
+            execute(network, tree, sliced)
+            peak = float(tracemalloc.get_traced_memory()[1])
+        finally:
+            tracemalloc.stop()
+    return value, seconds, peak
+
+
+def _instance(family: Family, params: dict, seed: int, dtype) -> tuple:
+    circuit = make_family(family.name, **params)
+    rng = np.random.default_rng(seed)
+    bits = "".join(str(b) for b in rng.integers(0, 2, circuit.num_qubits))
+    network = absorb_small(amplitude_network(circuit, bits, dtype=dtype))
+    return circuit, network, bits
+
+
+def run_bench(
+    family: str,
+    sizes: Sequence[dict],
+    *,
+    params: dict | None = None,
+    planners: Sequence[str] = PLANNERS,
+    execute: bool = False,
+    flop_cap: float = 1e10,
+    time_budget: float = 2.0,
+    seed: int = 0,
+    dtype=np.complex64,
+    progress: Callable | None = None,
+) -> list[BenchRecord]:
+    """Plan (and optionally contract) one amplitude of each instance with each planner.
+
+    Parameters
+    ----------
+    family : str
+        A key of :data:`tnsim.families.FAMILIES`.
+    sizes : sequence of dict
+        Size parameters per instance (from :func:`parse_sizes`).
+    params : dict, optional
+        Further family parameters (the same for every instance).
+    planners : sequence of str
+        Names from :data:`PLANNERS`.
+    execute : bool
+        Contract each plan whose FLOPs do not exceed ``flop_cap``.
+    flop_cap : float
+        Largest FLOP count (real FLOPs) contracted.
+    time_budget : float
+        Seconds each searching planner may use per instance.
+    seed : int
+        Seed of the bitstring and of the planners.
+    dtype : numpy dtype
+        ``complex64`` or ``complex128``.
+    progress : callable, optional
+        Called with no argument after each (instance, planner) pair.
+
+    Returns
+    -------
+    list of BenchRecord
+
+    Examples
+    --------
+    >>> rows = run_bench("ghz", [{"n": 4}], planners=["greedy"], execute=True)
+    >>> rows[0].executed, round(rows[0].amplitude_real ** 2 + rows[0].amplitude_imag ** 2, 6)
+    (True, 0.0)
+    """
+    fam = FAMILIES.get(family)
+    if fam is None:
+        raise InputError(f"unknown family {family!r}; known families: {', '.join(FAMILIES)}")
+    for p in planners:
+        if p not in PLANNERS:
+            raise InputError(f"unknown planner {p!r}; choose from {', '.join(PLANNERS)}")
+    itemsize = np.dtype(dtype).itemsize
+    records = []
+    for size in sizes:
+        all_params = {**(params or {}), **size}
+        circuit, network, bits = _instance(fam, all_params, seed, dtype)
+        label = "x".join(str(size[k]) for k in fam.size)
+        depth = int(_depth_of(fam, all_params))
+        for planner in planners:
+            t0 = time.perf_counter()
+            tree, sliced = plan_with(planner, network, time_budget=time_budget, seed=seed)
+            plan_seconds = time.perf_counter() - t0
+            cost = tree_cost(tree, sliced, itemsize)
+            run = execute and cost.flops <= flop_cap
+            value, seconds, traced = complex(math.nan, math.nan), math.nan, math.nan
+            if run:
+                value, seconds, traced = _contract(network, tree, sliced, trace=True)
+            records.append(
+                BenchRecord(
+                    fam.name,
+                    label,
+                    circuit.num_qubits,
+                    len(circuit),
+                    depth,
+                    len(network),
+                    planner,
+                    cost.flops,
+                    cost.width,
+                    cost.peak_bytes,
+                    cost.num_slices,
+                    plan_seconds,
+                    run,
+                    seconds,
+                    cost.flops / seconds if run and seconds > 0 else math.nan,
+                    traced,
+                    value.real,
+                    value.imag,
+                    bits,
+                )
+            )
+            if progress is not None:
+                progress()
+    return records
+
+
+def _depth_of(family: Family, params: dict) -> int:
+    """The value of the family's depth parameter in ``params`` (default if unset; 0 if none)."""
+    if not family.depth:
+        return 0
+    default = next(p.default for p in family.params if p.name == family.depth)
+    return int(params.get(family.depth, default))
+
+
+def _machine() -> dict:
+    return {
+        "platform": platform.platform(),
+        "processor": platform.processor() or platform.machine(),
+        "cpu_count": os.cpu_count(),
+        "memory_bytes": machine_memory(),
+        "numpy": np.__version__,
+    }
+
+
+_UNITS = {
+    "flops": "real floating-point operations (complex multiply-add = 8), all slices",
+    "width": "log2 of the largest tensor's element count",
+    "peak_bytes": "planned peak of live tensors in one slice, bytes of the dtype",
+    "plan_seconds": "wall seconds of planning",
+    "contract_seconds": "wall seconds of one untraced contraction",
+    "flop_rate": "flops / contract_seconds (real FLOP/s)",
+    "traced_peak_bytes": "tracemalloc peak of a second contraction (numpy + Python allocations)",
+}
+
+
+def records_csv(records: Sequence[BenchRecord]) -> str:
+    """Return the records as CSV text (header row first)."""
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow([f.name for f in fields(BenchRecord)])
+    for r in records:
+        writer.writerow([getattr(r, f.name) for f in fields(BenchRecord)])
+    return buf.getvalue()
+
+
+def _clean(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def records_json(records: Sequence[BenchRecord], settings: dict, matmul_rate: float) -> str:
+    """Return records, settings, units, the matmul rate and the machine as JSON text."""
+    doc = {
+        "settings": settings,
+        "units": _UNITS,
+        "machine": _machine(),
+        "matmul_flop_rate": matmul_rate,
+        "records": [{k: _clean(v) for k, v in asdict(r).items()} for r in records],
+    }
+    return json.dumps(doc, indent=1) + "\n"
+
+
+def crossing_size(records: Sequence[BenchRecord], planner: str, level: float) -> float | None:
+    """Qubit count where a planner's FLOPs first reach ``level`` (log-linear interpolation).
+
+    Returns ``None`` if its FLOPs stay below ``level``; the first size if they start above.
+
+    Examples
+    --------
+    >>> r = [BenchRecord("g", str(n), n, 0, 0, 0, "p", f, 0, 0, 1, 0, False, *[math.nan] * 5)
+    ...      for n, f in [(10, 1e8), (20, 1e12), (30, 1e16)]]
+    >>> crossing_size(r, "p", 1e10)
+    15.0
+    """
+    pts = sorted((r.num_qubits, r.flops) for r in records if r.planner == planner)
+    for k, (n, f) in enumerate(pts):
+        if f >= level:
+            if k == 0:
+                return float(n)
+            n0, f0 = pts[k - 1]
+            frac = (math.log10(level) - math.log10(f0)) / (math.log10(f) - math.log10(f0))
+            return float(n0 + frac * (n - n0))
+    return None
+
+
+def plot_records(
+    records: Sequence[BenchRecord],
+    path: str,
+    *,
+    matmul_rate: float,
+    memory_bytes: int,
+    title: str = "",
+    level: float = 1e12,
+) -> None:
+    """Draw FLOPs and planned peak memory against qubit count, one line per planner.
+
+    The left panel marks what the measured matmul rate gets through in one
+    minute and in one hour, and ``level``; the right panel marks this
+    machine's memory.  The image is written atomically (temporary file, rename).
+    """
+    try:
+        import matplotlib
+
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+    except ImportError:
+        raise InputError(
+            "--plot needs matplotlib; install it with: pip install 'tnsim[plot]'"
+        ) from None
+    fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 4.5))
+    for planner in dict.fromkeys(r.planner for r in records):
+        rows = sorted(
+            (r.num_qubits, r.flops, r.peak_bytes) for r in records if r.planner == planner
+        )
+        n = [row[0] for row in rows]
+        cross = crossing_size(records, planner, level)
+        note = f" (reaches {level:.0e} at ≈{cross:.0f} qubits)" if cross is not None else ""
+        ax.plot(n, [row[1] for row in rows], "o-", label=planner + note)
+        bx.plot(n, [row[2] for row in rows], "o-", label=planner)
+    for seconds, name, style in ((60, "1 min", ":"), (3600, "1 h", "--")):
+        ax.axhline(
+            matmul_rate * seconds,
+            color="k",
+            ls=style,
+            lw=1,
+            label=f"matmul rate {matmul_rate / 1e9:.1f} GFLOP/s × {name}",
+        )
+    ax.axhline(level, color="tab:red", lw=0.8, alpha=0.6, label=f"{level:.0e} FLOPs")
+    ax.set(
+        yscale="log",
+        xlabel="qubits",
+        ylabel="real FLOPs per amplitude (all slices)",
+        title=title or "contraction cost",
+    )
+    ax.legend(fontsize=7)
+    if memory_bytes:
+        bx.axhline(
+            memory_bytes,
+            color="k",
+            ls="--",
+            lw=1,
+            label=f"this machine's memory ({memory_bytes / 2**30:.0f} GiB)",
+        )
+    bx.set(
+        yscale="log",
+        xlabel="qubits",
+        ylabel="planned peak bytes (one slice)",
+        title="memory a plan needs",
+    )
+    bx.legend(fontsize=7)
+    fig.tight_layout()
+    directory = os.path.dirname(os.path.abspath(path))
+    tmp = os.path.join(directory, f".tnsim-plot-{os.getpid()}.png")
+    try:
+        fig.savefig(tmp, dpi=110)
+        os.replace(tmp, path)
+    except OSError as exc:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise InputError(f"cannot write {path!r}: {exc.strerror}") from None
+    finally:
+        plt.close(fig)
+
+
+def _check_args(args) -> tuple[Family, list[str], list[dict], dict]:
+    from .families import parse_params
+
+    fam = FAMILIES.get(args.family)
+    if fam is None:
+        raise InputError(f"unknown family {args.family!r}; known families: {', '.join(FAMILIES)}")
+    planners = [p.strip() for p in args.planners.split(",") if p.strip()]
+    bad = [p for p in planners if p not in PLANNERS]
+    if bad or not planners:
+        raise InputError(f"--planners {args.planners!r}: choose from {', '.join(PLANNERS)}")
+    if not args.flop_cap > 0 or not args.time_budget > 0:
+        raise InputError("--flop-cap and --time-budget must be positive numbers")
+    params = parse_params(args.param)
+    if args.cycles is not None:
+        if not fam.depth:
+            raise InputError(f"family '{fam.name}' has no depth parameter; drop --cycles")
+        if args.cycles < 0:
+            raise InputError(f"--cycles must be at least 0, got {args.cycles}")
+        params[fam.depth] = str(args.cycles)
+    clash = sorted(set(params) & set(fam.size))
+    if clash:
+        raise InputError(f"--param {clash[0]} is set by --sizes; drop it")
+    sizes = parse_sizes(args.sizes, fam)
+    make_family(fam.name, **params, **sizes[0])  # unknown or mistyped parameters fail here
+    if args.plot:
+        try:
+            import matplotlib  # noqa: F401
+        except ImportError:
+            raise InputError("--plot needs matplotlib: pip install 'tnsim[plot]'") from None
+    return fam, planners, sizes, params
+
+
+def _summary(records: Sequence[BenchRecord]) -> str:
+    head = f"{'size':>7} {'qubits':>6} {'planner':>13} {'FLOPs':>9} {'width':>5} {'slices':>6} "
+    head += f"{'plan s':>7} {'run s':>7} {'GFLOP/s':>7}"
+    lines = [head]
+    for r in records:
+        run = (
+            f"{r.contract_seconds:7.3f} {r.flop_rate / 1e9:7.2f}"
+            if r.executed
+            else f"{'-':>7} {'-':>7}"
+        )
+        lines.append(
+            f"{r.size:>7} {r.num_qubits:>6} {r.planner:>13} {r.flops:9.2e} {r.width:5.1f} "
+            f"{r.num_slices:>6} {r.plan_seconds:7.2f} {run}"
+        )
+    return "\n".join(lines)
+
+
+def bench_command(args, write_text: Callable[[str, str], None]) -> int:
+    """Run ``tnsim bench`` from parsed arguments; return the exit status.
+
+    ``write_text(path, text)`` writes a file atomically (the CLI's ``write_atomic``).
+    """
+    import sys
+
+    from tqdm import tqdm
+
+    fam, planners, sizes, params = _check_args(args)
+    dtype = np.complex128 if args.double else np.complex64
+    rate = measure_matmul_rate(dtype)
+    with tqdm(
+        total=len(sizes) * len(planners),
+        disable=args.quiet,
+        file=sys.stderr,
+        desc=f"bench {fam.name}",
+        unit="plan",
+    ) as bar:
+        records = run_bench(
+            fam.name,
+            sizes,
+            params=params,
+            planners=planners,
+            execute=args.execute,
+            flop_cap=args.flop_cap,
+            time_budget=args.time_budget,
+            seed=args.seed,
+            dtype=dtype,
+            progress=bar.update,
+        )
+    print(_summary(records))
+    print(
+        f"FLOPs: real floating-point operations (complex multiply-add = 8); "
+        f"matmul rate here: {rate / 1e9:.1f} GFLOP/s ({np.dtype(dtype).name})"
+    )
+    settings = {
+        "family": fam.name,
+        "sizes": args.sizes,
+        "params": params,
+        "planners": planners,
+        "execute": args.execute,
+        "flop_cap": args.flop_cap,
+        "time_budget": args.time_budget,
+        "seed": args.seed,
+        "dtype": np.dtype(dtype).name,
+    }
+    if args.csv:
+        write_text(args.csv, records_csv(records))
+    if args.json:
+        write_text(args.json, records_json(records, settings, rate))
+    if args.plot:
+        title = f"{fam.name} " + " ".join(f"{k}={v}" for k, v in params.items())
+        plot_records(
+            records, args.plot, matmul_rate=rate, memory_bytes=machine_memory(), title=title.strip()
+        )
+    return 0
