@@ -27,6 +27,7 @@ from .memory import default_memory_limit, format_bytes, parse_memory
 from .network import TensorNetwork
 from .plan.tree import ContractionTree
 from .progress import SliceProgress
+from .runconfig import current_options
 
 __all__ = [
     "Scaled",
@@ -482,7 +483,7 @@ def execute(
     workers: int | None = None,
     checkpoint: str | os.PathLike | None = None,
     progress: bool | None | Callable[[int, int], None] = None,
-    backend: str = "numpy",
+    backend: str | None = None,
     chunk_size: int | None = None,
 ) -> Scaled:
     """Contract a network along a tree, summing over the ``sliced`` labels one value at a time.
@@ -492,6 +493,9 @@ def execute(
     and chunk sums are added in chunk order, so the result is bit-for-bit the
     same for the same plan whatever runs it (serially, a process pool, Dask)
     and however often it was stopped and resumed.
+
+    Options left at ``None`` come from the enclosing
+    :func:`tnsim.runconfig.run_options` block, if any.
 
     Parameters
     ----------
@@ -516,8 +520,8 @@ def execute(
     progress : bool, None or callable
         Show a progress bar (``None``: only on a terminal, for large work); a
         callable is called as ``progress(chunks_done, num_chunks)`` instead.
-    backend : str
-        Array library of the contractions (``"numpy"``; see :mod:`tnsim.backends`).
+    backend : str, optional
+        Array library of the contractions (default ``"numpy"``; see :mod:`tnsim.backends`).
     chunk_size : int, optional
         Slices per chunk, overriding the automatic choice (changes the rounding
         of the sum, hence the checkpoint fingerprint).
@@ -548,8 +552,15 @@ def execute(
         return Scaled(np.asarray(np.ones((), network.dtype)), network.exponent)
     sliced = tuple(int(i) for i in sliced)
     _check_sliced(network, sliced)
-    ops = get_backend(backend)
+    opts = current_options()
+    ops = get_backend(backend if backend is not None else opts.backend)
+    memory_limit = memory_limit if memory_limit is not None else opts.memory_limit
     limit = default_memory_limit() if memory_limit is None else parse_memory(memory_limit)
+    if executor is None and workers is None:
+        executor, workers = opts.executor, opts.workers
+    progress = opts.progress if progress is None else progress
+    if checkpoint is None:
+        checkpoint = opts.next_checkpoint()
     steps = compile_tree(tree, sliced)
     need = peak_memory(tree, steps, np.dtype(network.dtype).itemsize)
     job = SliceJob(tuple(network.arrays), tree, sliced, ops.name)
