@@ -68,3 +68,17 @@ def test_killed_worker_does_not_change_result(client, sliced_case):
     assert killed and killed[0] < 16
     assert pids[0] not in client.run(os.getpid).values() or len(pids) == 1
     assert _same_bits(got, serial)
+
+
+def test_cli_dask_option_matches_serial(client, tmp_path, capsys):
+    from tnsim.cli import main
+    from tnsim.qasm import write_qasm
+    from tnsim.testing import random_circuit
+
+    path = tmp_path / "c.qasm"
+    path.write_text(write_qasm(random_circuit(10, 50, seed=5, gates=["h", "cx", "rx"])))
+    argv = ["amp", str(path), "--bits", "0101010101", "--json"]
+    assert main(argv) == 0
+    serial = capsys.readouterr().out
+    assert main([*argv, "--dask", client.scheduler.address]) == 0
+    assert capsys.readouterr().out == serial

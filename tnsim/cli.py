@@ -20,6 +20,7 @@ import numpy as np
 from .bits import format_bits, parse_many, read_bits_file
 from .circuit import Circuit
 from .errors import InputError, TnsimError
+from .runconfig import add_run_arguments, options_from_args
 
 __all__ = ["main", "build_parser"]
 
@@ -208,6 +209,7 @@ def build_parser() -> argparse.ArgumentParser:
     amp.add_argument("--bits-file", metavar="FILE", help="file with one bitstring per line")
     amp.add_argument("--single", action="store_true", help="contract in complex64")
     amp.add_argument("--json", action="store_true", help="machine-readable output")
+    add_run_arguments(amp)
     amp.set_defaults(func=_cmd_amp)
 
     demo = sub.add_parser("demo", help="run a built-in example end to end")
@@ -221,7 +223,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status (2 for a user's mistake)."""
     try:
         args = build_parser().parse_args(argv)
-        return args.func(args)
+        with options_from_args(args):
+            return args.func(args)
     except TnsimError as exc:
         print(f"tnsim: error: {exc}", file=sys.stderr)
         return 2

@@ -26,7 +26,14 @@ from dataclasses import dataclass, field, replace
 from .errors import InputError
 from .memory import default_memory_limit, parse_memory
 
-__all__ = ["RunOptions", "run_options", "current_options", "slice_memory_limit"]
+__all__ = [
+    "RunOptions",
+    "run_options",
+    "current_options",
+    "slice_memory_limit",
+    "add_run_arguments",
+    "options_from_args",
+]
 
 
 @dataclass(frozen=True)
@@ -132,3 +139,87 @@ def slice_memory_limit(memory_limit: int | str | None = None) -> int:
     limit = default_memory_limit() if value is None else parse_memory(value)
     local = opts.executor is None and opts.workers is not None and opts.workers > 1
     return max(1, limit // opts.workers) if local else limit
+
+
+def add_run_arguments(parser) -> None:
+    """Add the run options (``--memory``, ``--workers``, ``--dask``, ``--checkpoint``,
+    ``--quiet``, ``--array-backend``) to an :mod:`argparse` (sub)parser.
+
+    :func:`tnsim.cli.main` runs the subcommand inside :func:`options_from_args`.
+    """
+    group = parser.add_argument_group("how the contraction runs")
+    group.add_argument(
+        "--memory",
+        metavar="SIZE",
+        help="memory limit for intermediates, e.g. 4GiB or 500MB (default: half of the "
+        "available memory); larger plans are sliced, impossible ones refused",
+    )
+    group.add_argument(
+        "--workers",
+        type=int,
+        metavar="N",
+        help="local worker processes for the slices (default: 1 for small work, "
+        "every core for large)",
+    )
+    group.add_argument(
+        "--dask", metavar="ADDRESS", help="run slices on a Dask scheduler, e.g. tcp://host:8786"
+    )
+    group.add_argument(
+        "--checkpoint",
+        metavar="DIR",
+        help="folder recording finished slices; rerunning the same command resumes",
+    )
+    group.add_argument("--quiet", action="store_true", help="no progress bar")
+    group.add_argument(
+        "--array-backend",
+        default="numpy",
+        metavar="NAME",
+        help="array library of the contractions: numpy (default), cupy, torch, ...",
+    )
+
+
+@contextlib.contextmanager
+def options_from_args(args) -> Iterator[RunOptions]:
+    """Enter a :func:`run_options` block from parsed command-line arguments.
+
+    Arguments the parser lacks are left at their defaults; ``--dask`` connects a
+    ``distributed.Client`` for the block and closes it afterwards.
+    """
+    from .backends import get_backend
+
+    quiet = getattr(args, "quiet", False) or bool(getattr(args, "json", False))
+    changes: dict = {"progress": False} if quiet else {}
+    for name in ("memory_limit", "workers", "checkpoint"):
+        value = getattr(args, "memory" if name == "memory_limit" else name, None)
+        if value is not None:
+            changes[name] = value
+    backend = getattr(args, "array_backend", None)
+    if backend is not None:
+        changes["backend"] = get_backend(backend).name
+    address = getattr(args, "dask", None)
+    with contextlib.ExitStack() as stack:
+        if address:
+            client = stack.enter_context(_dask_client(address))
+            changes["executor"] = client.get_executor()
+        yield stack.enter_context(run_options(**changes))
+
+
+@contextlib.contextmanager
+def _dask_client(address: str):
+    try:
+        import distributed
+    except ImportError:
+        raise InputError(
+            "--dask needs the dask extra: python -m pip install 'tnsim[dask]'"
+        ) from None
+    try:
+        client = distributed.Client(address, timeout="20s")
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise InputError(
+            f"cannot reach the Dask scheduler at {address!r} ({exc}); check the address "
+            "(tcp://HOST:PORT) and that the scheduler is running"
+        ) from None
+    try:
+        yield client
+    finally:
+        client.close()
