@@ -11,6 +11,7 @@ from .errors import (
 )
 from .qasm import read_qasm, write_qasm
 from .queries import amplitude, amplitudes
+from .runconfig import run_options
 
 __all__ = [
     "Circuit",
@@ -25,5 +26,6 @@ __all__ = [
     "CheckpointError",
     "read_qasm",
     "write_qasm",
+    "run_options",
 ]
 __version__ = "0.1.0"
