@@ -503,15 +503,17 @@ def plot_records(
             "--plot needs matplotlib; install it with: pip install 'tnsim[plot]'"
         ) from None
     fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 4.5))
-    for planner in dict.fromkeys(r.planner for r in records):
+    styles = [("o", "-"), ("s", "--"), ("^", ":"), ("D", "-.")]
+    for k, planner in enumerate(dict.fromkeys(r.planner for r in records)):
+        marker, line = styles[k % len(styles)]
         rows = sorted(
             (r.num_qubits, r.flops, r.peak_bytes) for r in records if r.planner == planner
         )
         n = [row[0] for row in rows]
         cross = crossing_size(records, planner, level)
         note = f" (reaches {level:.0e} at ≈{cross:.0f} qubits)" if cross is not None else ""
-        ax.plot(n, [row[1] for row in rows], "o-", label=planner + note)
-        bx.plot(n, [row[2] for row in rows], "o-", label=planner)
+        ax.plot(n, [row[1] for row in rows], marker=marker, ls=line, label=planner + note)
+        bx.plot(n, [row[2] for row in rows], marker=marker, ls=line, label=planner)
     for seconds, name, style in ((60, "1 min", ":"), (3600, "1 h", "--")):
         ax.axhline(
             matmul_rate * seconds,
