@@ -166,6 +166,19 @@ def brickwork(n: int, depth: int, seed: int = 0) -> Circuit:
     Layer ``k`` applies ``u3`` with three angles uniform in ``[0, 2π)`` to every
     qubit, then ``cz`` on pairs ``(q, q+1)`` with ``q ≡ k (mod 2)``.
 
+    Parameters
+    ----------
+    n : int
+        Qubits on the line.
+    depth : int
+        Number of layers.
+    seed : int
+        Seed of the angles.
+
+    Returns
+    -------
+    Circuit
+
     Examples
     --------
     >>> c = brickwork(5, 2, seed=0)
@@ -251,6 +264,19 @@ def iqp(n: int, seed: int = 0, density: float = 0.3) -> Circuit:
     on every qubit comes before and after, so the amplitude of ``0...0`` is
     the mean of the diagonal's entries.
 
+    Parameters
+    ----------
+    n : int
+        Qubits.
+    seed : int
+        Seed of the gate choices and angles.
+    density : float
+        Probability in ``[0, 1]`` that a pair gets a two-qubit gate.
+
+    Returns
+    -------
+    Circuit
+
     Examples
     --------
     >>> c = iqp(4, seed=3, density=1.0)
@@ -293,6 +319,21 @@ def ising_trotter(
     exp(-i H dt) (Trotter product formula; Suzuki, Commun. Math. Phys. 51, 183, 1976).
     The initial state is ``|0...0>`` (all spins up along Z).
 
+    Parameters
+    ----------
+    rows, cols : int
+        Lattice shape.
+    steps : int
+        Number of Trotter steps.
+    dt : float
+        Time step.
+    J, h : float
+        Coupling and transverse field.
+
+    Returns
+    -------
+    Circuit
+
     Examples
     --------
     >>> c = ising_trotter(2, 2, 3)
@@ -318,6 +359,15 @@ def ising_trotter(
 def ghz(n: int) -> Circuit:
     """The GHZ state (|0...0> + |1...1>)/√2: ``h`` on qubit 0, then a ``cx`` chain.
 
+    Parameters
+    ----------
+    n : int
+        Qubits.
+
+    Returns
+    -------
+    Circuit
+
     Examples
     --------
     >>> [op.name for op in ghz(3)]
@@ -340,6 +390,17 @@ def qft(n: int, *, swaps: bool = True) -> Circuit:
     |j> to 2^(-n/2) Σ_k exp(2πi jk / 2^n) |k> (their eq. 5.2).  Applied to
     ``|0...0>`` it gives the uniform superposition; prepend ``x`` gates for
     other inputs.
+
+    Parameters
+    ----------
+    n : int
+        Qubits.
+    swaps : bool
+        Whether to end with the swaps that reverse the qubit order.
+
+    Returns
+    -------
+    Circuit
 
     Examples
     --------
@@ -364,6 +425,19 @@ def hardware_efficient(n: int, layers: int, seed: int = 0) -> Circuit:
     Each layer applies ``ry(θ)`` and ``rz(φ)`` (angles uniform in ``[0, 2π)``)
     to every qubit, then ``cx(q, q+1)`` for ``q = 0 .. n-2``; a last rotation
     layer follows.
+
+    Parameters
+    ----------
+    n : int
+        Qubits.
+    layers : int
+        Number of rotation-plus-ladder layers.
+    seed : int
+        Seed of the angles.
+
+    Returns
+    -------
+    Circuit
 
     Examples
     --------
