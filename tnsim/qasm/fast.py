@@ -1,8 +1,11 @@
-"""Fast path for the commonest statement: ``name(numbers) r[i], s[j];`` on 1-3 qubits.
+"""Fast path for the commonest statement: ``name(params) r[i], s[j];`` on 1-3 qubits.
 
 One regex matches a whole statement (after blanks and comments) straight from
-the text, without tokens.  A statement it cannot settle for certain (an
-expression other than a plain number, a whole-register argument, an unknown
+the text.  Plain numbers are read without tokens; other parameter lists (no
+parentheses inside) go to a callback that parses them with the general
+expression parser, and their values are remembered by text.  A statement it
+cannot settle for certain (an erroneous parameter list, a whole-register
+argument, an unknown
 gate or register, a repeated qubit, a measured qubit, the operation cap, an
 arithmetic failure inside a definition) is left to the general parser, which
 then reads it, or reports it, exactly as it always does.  So the fast path
@@ -12,11 +15,13 @@ changes speed only, never a result or a message.
 from __future__ import annotations
 
 import re
+from collections.abc import Callable
 from math import isfinite
 
 from ..circuit import Operation
 from .arith import MathError
 from .definitions import BUILTINS, expand
+from .lexer import SKIP
 from .program import Program
 
 __all__ = ["read_simple_statements"]
@@ -25,7 +30,7 @@ _B = r"[ \t\r\f\v]*"
 _ID = r"[A-Za-z_][A-Za-z0-9_]*"
 _QARG = rf"({_ID}){_B}\[{_B}([0-9]{{1,15}}){_B}\]"
 _STATEMENT_RE = re.compile(
-    rf"(?:\s|//[^\n]*)*({_ID})(?:{_B}\(([^()\n;]*)\){_B}|[ \t\r\f\v]+){_QARG}"
+    rf"{SKIP}({_ID})(?:{_B}\(([^()\n;]*)\){_B}|[ \t\r\f\v]+){_QARG}"
     rf"(?:{_B},{_B}{_QARG})?(?:{_B},{_B}{_QARG})?{_B};",
     re.ASCII,
 )
@@ -52,65 +57,84 @@ def _numbers(text: str | None) -> tuple[float, ...] | None:
     return tuple(values)
 
 
-def _qubits(program: Program, groups: tuple) -> tuple[int, ...] | None:
+def _qubit(qregs: dict, name: str, index: str) -> int:
+    """The number of qubit ``name[index]``, or -1 for an unknown register or index."""
+    reg = qregs.get(name)
+    if reg is None or int(index) >= reg[1]:
+        return -1
+    return reg[0] + int(index)
+
+
+def _qubits(qregs: dict, groups: tuple) -> tuple[int, ...] | None:
     """Distinct qubit numbers of the ``reg[i]`` arguments in ``groups``, else ``None``."""
-    qubits = []
-    qregs = program.qregs
-    for k in range(2, 8, 2):
-        name = groups[k]
-        if name is None:
-            break
-        reg = qregs.get(name)
-        index = int(groups[k + 1])
-        if reg is None or index >= reg[1]:
-            return None
-        qubits.append(reg[0] + index)
-    if len(qubits) > 1 and len(set(qubits)) < len(qubits):
+    first = _qubit(qregs, groups[2], groups[3])
+    if groups[4] is None:
+        return None if first < 0 else (first,)
+    qubits = [first, _qubit(qregs, groups[4], groups[5])]
+    if groups[6] is not None:
+        qubits.append(_qubit(qregs, groups[6], groups[7]))
+    if min(qubits) < 0 or len(set(qubits)) < len(qubits):
         return None
     return tuple(qubits)
 
 
-def _apply(program: Program, gate, values: tuple[float, ...], qubits: tuple[int, ...]) -> bool:
-    """Append ``gate`` on ``qubits``, or return ``False`` leaving ``program`` unchanged."""
-    if program.op_count + gate.size > program.max_ops:
+def _apply_defined(program: Program, gate, values: tuple, qubits: tuple[int, ...]) -> bool:
+    """Append defined ``gate`` on ``qubits``, or return ``False`` leaving ``program`` unchanged."""
+    template: list = []
+    try:
+        expand(gate, values, tuple(range(len(qubits))), template)
+    except MathError:
         return False
-    if gate.native is not None:
-        template = [(gate.native, range(len(qubits)), values if gate.keep_params else ())]
-    else:
-        template = []
-        try:
-            expand(gate, values, tuple(range(len(qubits))), template)
-        except MathError:
-            return False
     if program.first_measured(template, qubits) is not None:
         return False
-    if gate.native is not None:
-        program.ops.append(Operation(gate.native, qubits, template[0][2]))
-    else:
-        program.emit(template, qubits)
-    program.op_count += gate.size
+    program.emit(template, qubits)
     return True
 
 
-def read_simple_statements(text: str, pos: int, program: Program) -> int:
+_CACHE_SIZE = 4096
+
+
+def read_simple_statements(
+    text: str, pos: int, program: Program, expressions: Callable, cache: dict
+) -> int:
     """Apply the simple gate statements of ``text`` from ``pos`` on; return where they end.
 
-    Stops at the first statement it cannot settle (see the module notes) and
-    returns that statement's offset (or one of the blanks before it).
+    ``expressions(start, end)`` returns the values of the parameter list at
+    ``text[start:end]``, or ``None`` if it has an error; ``cache`` remembers
+    them by text.  Stops at the first statement it cannot settle (see the
+    module notes) and returns that statement's offset (or one of the blanks
+    before it).
     """
-    match_at, gates = _STATEMENT_RE.match, program.gates
+    match_at, builtin, defined = _STATEMENT_RE.match, BUILTINS.get, program.gates.get
+    qregs, append = program.qregs, program.ops.append
     while (match := match_at(text, pos)) is not None:
         groups = match.groups()
-        gate = BUILTINS.get(groups[0]) or gates.get(groups[0])
-        if gate is None:
+        gate = builtin(groups[0]) or defined(groups[0])
+        if gate is None or program.op_count + gate.size > program.max_ops:
             break
-        values = _numbers(groups[1])
+        values = () if groups[1] is None else _numbers(groups[1])
+        if values is None:
+            values = cache.get(groups[1])
+            if values is None:
+                values = expressions(match.start(2), match.end(2))
+                if values is not None:
+                    if len(cache) >= _CACHE_SIZE:
+                        cache.clear()
+                    cache[groups[1]] = values
         if values is None or len(values) != gate.num_params:
             break
-        qubits = _qubits(program, groups)
+        qubits = _qubits(qregs, groups)
         if qubits is None or len(qubits) != gate.num_qubits:
             break
-        if not _apply(program, gate, values, qubits):
-            break
+        if gate.native is None:
+            if not _apply_defined(program, gate, values, qubits):
+                break
+        elif program.measured or program.measured_regs:
+            if any(program.was_measured(q) for q in qubits):
+                break
+            append(Operation(gate.native, qubits, values if gate.keep_params else ()))
+        else:
+            append(Operation(gate.native, qubits, values if gate.keep_params else ()))
+        program.op_count += gate.size
         pos = match.end()
     return pos

@@ -1,10 +1,11 @@
 """Tokens of OpenQASM 2.0 text, with positions resolved to line and column on demand.
 
-One compiled master regex reads a token (after any blanks, newlines and ``//``
-comments) at a given offset.  A token records its offset only; :class:`Source`
-turns an offset into a 1-based ``line, column`` when an error or a gate
-definition needs it, counting newlines forward from the last position asked,
-so positions requested in file order cost linear time in all.
+One compiled master regex reads a token after any blanks, newlines and ``//``
+comments; a ``scanner`` over it reads token after token, anchored, and the
+kind is the number of the group that matched.  A token records its offset
+only; :class:`Source` turns an offset into a 1-based ``line, column`` when an
+error or a gate definition needs it, counting newlines forward from the last
+position asked, so positions requested in file order cost linear time in all.
 """
 
 from __future__ import annotations
@@ -14,23 +15,29 @@ from typing import NamedTuple
 
 from ..errors import QasmError
 
-__all__ = ["Token", "Source", "Lexer", "describe", "canonical"]
+__all__ = ["SKIP", "Token", "Source", "Lexer", "describe", "canonical"]
+
+SKIP = r"(?:\s|//[^\n]*(?![^\n]))*(?!\s|//)"
+"""Regex for all blanks, newlines and ``//`` comments at a position.  It matches only the
+longest run (a comment always runs to the line's end, and what follows is neither), so no
+backtracking can read the inside of a comment, or its slashes, as tokens."""
 
 _TOKEN_RE = re.compile(
-    r"""
-    (?:\s|//[^\n]*)*
+    SKIP
+    + r"""
     (?:
-      (?P<real>(?:[0-9]+\.[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[0-9]+[eE][+-]?[0-9]+)
-    | (?P<int>[0-9]+)
-    | (?P<id>[A-Za-z_][A-Za-z0-9_]*)
-    | (?P<string>"[^"\n]*")
-    | (?P<sym>->|==|[;,()\[\]{}+\-*/^])
-    | (?P<eof>\Z)
+      ((?:[0-9]+\.[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[0-9]+[eE][+-]?[0-9]+)  # real
+    | ([0-9]+)                                                                # int
+    | ([A-Za-z_][A-Za-z0-9_]*)                                                # id
+    | ("[^"\n]*")                                                             # string
+    | (->|==|[;,()\[\]{}+\-*/^])                                               # sym
+    | (\Z)                                                                    # eof
     )
     """,
     re.VERBOSE | re.ASCII,
 )
-_SKIP_RE = re.compile(r"(?:\s|//[^\n]*)*", re.ASCII)
+_KINDS = (None, "real", "int", "id", "string", "sym", "eof")
+_SKIP_RE = re.compile(SKIP, re.ASCII)
 
 
 class Token(NamedTuple):
@@ -39,6 +46,9 @@ class Token(NamedTuple):
     kind: str
     text: str
     offset: int
+
+
+_new_token = tuple.__new__  # skips the Python-level NamedTuple constructor
 
 
 class Source:
@@ -73,21 +83,24 @@ class Lexer:
     """Reads tokens of ``source`` one at a time; :meth:`seek` moves to any offset."""
 
     def __init__(self, source: Source):
-        self.source, self.pos = source, 0
-        self._match, self._text = _TOKEN_RE.match, source.text
+        self.source, self._text = source, source.text
+        self.seek(0)
 
     def seek(self, pos: int) -> None:
         """Continue reading at offset ``pos``."""
-        self.pos = pos
+        self._end, self._scan = pos, _TOKEN_RE.scanner(self._text, pos).match
 
     def next(self) -> Token:
         """Return the next token (an ``eof`` token at the end, again and again)."""
-        match = self._match(self._text, self.pos)
+        match = self._scan()
         if match is None:
-            raise self._bad_character(_SKIP_RE.match(self._text, self.pos).end())
-        kind = match.lastgroup
-        start, self.pos = match.start(kind), match.end()
-        return Token(kind, self._text[start : self.pos], start)
+            if self._end == len(self._text):  # the scanner stops after matching the end
+                self.seek(self._end)
+                return self.next()
+            raise self._bad_character(_SKIP_RE.match(self._text, self._end).end())
+        self._end = match.end()
+        group = match.lastindex
+        return _new_token(Token, (_KINDS[group], match.group(group), match.start(group)))
 
     def _bad_character(self, offset: int) -> QasmError:
         char = self._text[offset]

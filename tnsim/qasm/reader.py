@@ -47,6 +47,7 @@ class _Parser:
         self.lexer = Lexer(source)
         self.tok = self.lexer.next()
         self.recording: list[tuple[str, str]] | None = None
+        self.param_cache: dict[str, tuple[float, ...]] = {}
 
     # -- token helpers
 
@@ -100,12 +101,30 @@ class _Parser:
     def simple_statements(self) -> bool:
         """Read a run of simple gate statements by the fast path; whether any was read."""
         start = self.tok.offset
-        end = read_simple_statements(self.source.text, start, self.program)
-        if end == start:
-            return False
+        end = read_simple_statements(
+            self.source.text, start, self.program, self.constant_params, self.param_cache
+        )
         self.lexer.seek(end)
         self.tok = self.lexer.next()
-        return True
+        return end != start
+
+    def constant_params(self, start: int, end: int) -> tuple[float, ...] | None:
+        """Values of the parameter list ``text[start:end]`` (then ``)``), or ``None`` if wrong.
+
+        Used by the fast path, which moves the lexer anywhere and reseeks it after.
+        """
+        self.lexer.seek(start)
+        self.tok = self.lexer.next()
+        try:
+            codes = [parse_expression(self, None)]
+            while self.at(","):
+                self.advance()
+                codes.append(parse_expression(self, None))
+            if not self.at(")") or self.tok.offset != end:
+                return None
+            return tuple(constant(code) for code in codes)
+        except QasmError:
+            return None
 
     def header(self, *, required: bool) -> None:
         if not self.at("OPENQASM"):
