@@ -202,6 +202,14 @@ def test_bad_arguments_exit_2_without_files(argv, tmp_path, capsys):
     assert os.listdir(tmp_path) == []
 
 
+def test_bench_refuses_missing_output_folder_before_writing(tmp_path):
+    csv_path = str(tmp_path / "a.csv")
+    plot = str(tmp_path / "no" / "such" / "p.png")
+    argv = ["bench", "--sizes", "2x2", "--cycles", "1", "--quiet", "--csv", csv_path]
+    assert main(argv + ["--plot", plot]) == 2
+    assert os.listdir(tmp_path) == []
+
+
 def test_gen_writes_family_that_reads_back(tmp_path):
     path = str(tmp_path / "g.qasm")
     assert (

@@ -583,6 +583,10 @@ def _check_args(args) -> tuple[Family, list[str], list[dict], dict]:
         raise InputError(f"--param {clash[0]} is set by --sizes; drop it")
     sizes = parse_sizes(args.sizes, fam)
     make_family(fam.name, **params, **sizes[0])  # unknown or mistyped parameters fail here
+    for option, path in (("--csv", args.csv), ("--json", args.json), ("--plot", args.plot)):
+        folder = os.path.dirname(os.path.abspath(path)) if path else ""
+        if path and not (os.path.isdir(folder) and os.access(folder, os.W_OK)):
+            raise InputError(f"{option} {path}: folder {folder} does not exist or is not writable")
     if args.plot:
         try:
             import matplotlib  # noqa: F401
