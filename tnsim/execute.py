@@ -125,23 +125,35 @@ class PairStep:
     ``(B, L, K)``, the right one to ``(batch, summed, right)`` → ``(B, K, R)``;
     ``matmul`` gives ``(B, L, R)``, reshaped to the result's axes
     ``batch + left + right``.  Axes found only in one operand and needed by no
-    one else are summed out first (``pre_a``, ``pre_b``).
+    one else are summed out first (``pre_a``, ``pre_b``).  An operand whose
+    axes already lie as ``(batch, summed, left)`` (``trans_a``) or
+    ``(batch, right, summed)`` (``trans_b``) is passed to ``matmul`` as a
+    transposed view instead of being copied.  Axes that stay next to each
+    other are merged before the permutation (``view_a`` is the merged shape,
+    ``perm_a`` permutes the merged axes), so reordering copies move long runs.
     """
 
     pre_a: tuple[int, ...]
     pre_b: tuple[int, ...]
+    view_a: tuple[int, ...]
     perm_a: tuple[int, ...]
+    view_b: tuple[int, ...]
     perm_b: tuple[int, ...]
     mat_a: tuple[int, int, int]
     mat_b: tuple[int, int, int]
     out_shape: tuple[int, ...]
     out_labels: tuple[int, ...]
+    trans_a: bool = False
+    trans_b: bool = False
 
 
 def pair_step(
     ia: Sequence[int], ib: Sequence[int], keep: set[int] | frozenset[int], size
 ) -> PairStep:
     """Prepare the contraction of tensors labelled ``ia`` and ``ib``.
+
+    Shared labels are ordered as they lie in the larger operand, so that its
+    data needs no reordering when it is already grouped.
 
     Parameters
     ----------
@@ -157,26 +169,55 @@ def pair_step(
     pre_b = tuple(k for k, i in enumerate(ib) if i not in sa and i not in keep)
     ia2 = [i for k, i in enumerate(ia) if k not in pre_a]
     ib2 = [i for k, i in enumerate(ib) if k not in pre_b]
-    batch = [i for i in ia2 if i in sb and i in keep]
-    summed = [i for i in ia2 if i in sb and i not in keep]
-    left = [i for i in ia2 if i not in sb]
-    right = [i for i in ib2 if i not in sa]
-    pos_a, pos_b = {i: k for k, i in enumerate(ia2)}, {i: k for k, i in enumerate(ib2)}
 
     def dim(labels):
         return math.prod(size[i] for i in labels)
 
+    lead = ia2 if dim(ia2) >= dim(ib2) else ib2
+    batch = [i for i in lead if i in sa and i in sb and i in keep]
+    summed = [i for i in lead if i in sa and i in sb and i not in keep]
+    left = [i for i in ia2 if i not in sb]
+    right = [i for i in ib2 if i not in sa]
+    trans_a = len(left) > 0 and ia2 == batch + summed + left and ia2 != batch + left + summed
+    trans_b = len(right) > 0 and ib2 == batch + right + summed and ib2 != batch + summed + right
+    order_a = batch + summed + left if trans_a else batch + left + summed
+    order_b = batch + right + summed if trans_b else batch + summed + right
     nb, nl, nk, nr = dim(batch), dim(left), dim(summed), dim(right)
     return PairStep(
         pre_a,
         pre_b,
-        tuple(pos_a[i] for i in batch + left + summed),
-        tuple(pos_b[i] for i in batch + summed + right),
+        *_merged_permutation(ia2, order_a, size),
+        *_merged_permutation(ib2, order_b, size),
         (nb, nl, nk),
         (nb, nk, nr),
         tuple(size[i] for i in batch + left + right),
         tuple(batch + left + right),
+        trans_a,
+        trans_b,
     )
+
+
+def _merged_permutation(
+    labels: Sequence[int], order: Sequence[int], size
+) -> tuple[tuple[int, ...], tuple[int, ...]]:
+    """Shape of ``labels`` with runs kept together by ``order`` merged, and their permutation.
+
+    Examples
+    --------
+    >>> _merged_permutation([0, 1, 2, 3], [2, 3, 0, 1], dict.fromkeys(range(4), 2))
+    ((4, 4), (1, 0))
+    """
+    pos = {i: k for k, i in enumerate(labels)}
+    runs: list[list[int]] = []
+    for i in order:
+        if runs and pos[i] == pos[runs[-1][-1]] + 1:
+            runs[-1].append(i)
+        else:
+            runs.append([i])
+    by_source = sorted(range(len(runs)), key=lambda r: pos[runs[r][0]])
+    shape = tuple(math.prod(size[i] for i in runs[r]) for r in by_source)
+    rank = {r: k for k, r in enumerate(by_source)}
+    return shape, tuple(rank[r] for r in range(len(runs)))
 
 
 def apply_step(step: PairStep, a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -185,8 +226,11 @@ def apply_step(step: PairStep, a: np.ndarray, b: np.ndarray) -> np.ndarray:
         a = a.sum(axis=step.pre_a)
     if step.pre_b:
         b = b.sum(axis=step.pre_b)
-    a = a.transpose(step.perm_a).reshape(step.mat_a)
-    b = b.transpose(step.perm_b).reshape(step.mat_b)
+    nb, nl, nk = step.mat_a
+    a = a.reshape(step.view_a).transpose(step.perm_a)
+    a = a.reshape(nb, nk, nl).swapaxes(1, 2) if step.trans_a else a.reshape(step.mat_a)
+    b = b.reshape(step.view_b).transpose(step.perm_b)
+    b = b.reshape(nb, step.mat_b[2], nk).swapaxes(1, 2) if step.trans_b else b.reshape(step.mat_b)
     return np.matmul(a, b).reshape(step.out_shape)
 
 

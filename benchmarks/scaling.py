@@ -1,0 +1,213 @@
+"""Executor scaling: FLOP rate against matrix multiply, per-step overhead, workers, a big grid.
+
+Run from the repository root::
+
+    python benchmarks/scaling.py                 # every section, one BLAS thread per process
+    python benchmarks/scaling.py rate overhead   # chosen sections
+    python benchmarks/scaling.py --threads 0     # BLAS's own thread count
+
+Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
+
+``rate``
+    This machine's complex64 matrix-multiply rate (2048 x 2048, best of 3) and,
+    in the same process, tnsim's contraction rate on a grid-circuit amplitude of
+    at least 1e10 FLOPs (best of 2).  Reports their ratio (target >= 0.5).
+``overhead``
+    Microseconds per pairwise contraction on a network of thousands of tiny
+    tensors (an unsimplified 1D brickwork amplitude), best of 5 (target <= 20 us).
+``workers``
+    A sliced contraction of about 1e11 FLOPs run serially and on a local pool of
+    two worker processes; reports the speed-up (target >= 1.6) and checks the
+    two results are bit-for-bit equal.
+``grid``
+    A 10 x 10 qubit, 12-cycle grid amplitude under ``memory_limit=2GiB``:
+    the plan's forecast seconds against the measured time (needs a planner that
+    slices and forecasts; skipped otherwise).
+
+The machine's load average is printed before and after: other processes on the
+same cores lower every figure here.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+
+
+def _set_threads(threads: int) -> None:
+    if threads > 0:
+        for key in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+            os.environ[key] = str(threads)
+
+
+def _best(fn, repeat: int) -> float:
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return min(times)
+
+
+def _grid_problem(rows, cols, cycles, num_sliced=0, seed=1):
+    import numpy as np
+
+    from tnsim.execute import compile_tree
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.plan import greedy_tree
+    from tnsim.simplify import absorb_small
+
+    circuit = grid_circuit(rows, cols, cycles, seed=seed)
+    bits = "0" * (rows * cols)
+    network = absorb_small(amplitude_network(circuit, bits, dtype=np.complex64))
+    tree = greedy_tree(network.indices, network.output, network.size)
+    steps = compile_tree(tree)
+    big = max(steps, key=lambda s: math_prod(s.out_shape))
+    sliced = [i for i in big.out_labels if i not in network.output][:num_sliced]
+    return network, tree, sliced
+
+
+def math_prod(shape) -> int:
+    out = 1
+    for d in shape:
+        out *= d
+    return out
+
+
+def matmul_rate(n: int = 2048) -> float:
+    """Measured complex64 matrix-multiply rate in FLOP/s (8 n^3 FLOPs per product)."""
+    import numpy as np
+
+    rng = np.random.default_rng(0)
+    a = (rng.random((n, n)) + 1j * rng.random((n, n))).astype(np.complex64)
+    b = (rng.random((n, n)) + 1j * rng.random((n, n))).astype(np.complex64)
+    a @ b
+    return 8 * n**3 / _best(lambda: a @ b, 3)
+
+
+def section_rate() -> None:
+    from tnsim.execute import compile_tree, count_flops, execute
+
+    network, tree, _ = _grid_problem(*((4, 4, 8) if QUICK[0] else (5, 6, 12)))
+    flops = count_flops(compile_tree(tree))
+    reference = matmul_rate(256 if QUICK[0] else 2048)
+    seconds = _best(lambda: execute(network, tree, workers=1, progress=False), 2)
+    rate = flops / seconds
+    print(f"rate: matmul complex64 square {reference / 1e9:.1f} GFLOP/s")
+    print(
+        f"rate: grid amplitude, complex64, {flops:.3g} FLOPs in {seconds:.2f} s "
+        f"= {rate / 1e9:.1f} GFLOP/s = {rate / reference:.2f} of matmul (target >= 0.5)"
+    )
+
+
+def section_overhead() -> None:
+    from tnsim.execute import compile_tree, contract_tree
+    from tnsim.families import brickwork
+    from tnsim.network import amplitude_network
+    from tnsim.plan import greedy_tree
+
+    n = 40 if QUICK[0] else 400
+    network = amplitude_network(brickwork(n, 6, seed=1), "0" * n)
+    tree = greedy_tree(network.indices, network.output, network.size)
+    steps = compile_tree(tree)
+    seconds = _best(lambda: contract_tree(network.arrays, tree, steps), 5)
+    print(
+        f"overhead: brickwork {n} qubits depth 6, {len(network)} tensors unsimplified: "
+        f"{seconds / len(steps) * 1e6:.1f} us per pairwise contraction (target <= 20 us)"
+    )
+
+
+def section_workers(num_sliced: int = 5) -> None:
+    from tnsim.execute import compile_tree, count_flops, execute
+
+    size = (4, 4, 8) if QUICK[0] else (5, 6, 14)
+    network, tree, sliced = _grid_problem(*size, 2 if QUICK[0] else num_sliced)
+    flops = count_flops(compile_tree(tree, sliced)) * 2 ** len(sliced)
+    runs = {}
+    for workers in (1, 2):
+        start = time.perf_counter()
+        runs[workers] = execute(network, tree, sliced, workers=workers, progress=False)
+        runs[workers, "s"] = time.perf_counter() - start
+    same = runs[1].mantissa.tobytes() == runs[2].mantissa.tobytes()
+    print(
+        f"workers: grid {size}, {len(sliced)} sliced labels, {flops:.3g} FLOPs: "
+        f"1 worker {runs[1, 's']:.2f} s, 2 workers {runs[2, 's']:.2f} s, "
+        f"speed-up {runs[1, 's'] / runs[2, 's']:.2f} (target >= 1.6), bit-for-bit equal: {same}"
+    )
+
+
+def section_grid() -> None:
+    if QUICK[0]:
+        print("grid: skipped in quick mode")
+        return
+    import dataclasses
+
+    import numpy as np
+
+    from tnsim.execute import execute
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.plan import make_plan
+    from tnsim.simplify import absorb_small
+
+    network = absorb_small(
+        amplitude_network(grid_circuit(10, 10, 12, seed=1), "0" * 100, dtype=np.complex64)
+    )
+    plan = make_plan(network, memory_limit=2 * 1024**3)
+    fields = {f.name for f in dataclasses.fields(plan)}
+    forecast = next(
+        (getattr(plan, f) for f in ("seconds", "forecast_seconds") if f in fields), None
+    )
+    if forecast is None:
+        print(f"grid: skipped - the planner gives no time forecast (Plan fields: {sorted(fields)})")
+        return
+    start = time.perf_counter()
+    execute(network, plan.tree, plan.sliced, memory_limit=2 * 1024**3, progress=None)
+    seconds = time.perf_counter() - start
+    print(
+        f"grid: 10x10 12 cycles, memory_limit 2GiB, {len(plan.sliced)} sliced labels: forecast "
+        f"{forecast:.1f} s, measured {seconds:.1f} s, ratio {seconds / forecast:.2f} "
+        "(target within 2x)"
+    )
+
+
+QUICK = [False]
+
+SECTIONS = {
+    "rate": section_rate,
+    "overhead": section_overhead,
+    "workers": section_workers,
+    "grid": section_grid,
+}
+
+
+def main(argv=None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("sections", nargs="*", help=f"some of {', '.join(SECTIONS)} (default all)")
+    parser.add_argument(
+        "--threads", type=int, default=1, help="BLAS threads per process (0: library default)"
+    )
+    parser.add_argument("--quick", action="store_true", help="small smoke version (CI)")
+    args = parser.parse_args(argv)
+    unknown = sorted(set(args.sections) - set(SECTIONS))
+    if unknown:
+        parser.error(f"unknown sections {unknown}; choose from {', '.join(SECTIONS)}")
+    _set_threads(args.threads)
+    QUICK[0] = args.quick
+    cores = len(os.sched_getaffinity(0))
+    print(
+        f"machine: {cores} cores, load average {os.getloadavg()[0]:.2f}, "
+        f"BLAS threads {args.threads or 'default'}, python {sys.version.split()[0]}"
+        + (" (quick: small smoke sizes, figures not meaningful)" if args.quick else "")
+    )
+    for name in args.sections or SECTIONS:
+        SECTIONS[name]()
+    print(f"load average after: {os.getloadavg()[0]:.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
