@@ -9,15 +9,27 @@ from .errors import (
     ResourceLimitError,
     TnsimError,
 )
+from .observables import Observable, PauliTerm, parse_observable
 from .qasm import read_qasm, write_qasm
-from .queries import amplitude, amplitudes
+from .queries import amplitude, amplitudes, expectation, marginal, maxcut_energy
 from .runconfig import run_options
+from .sampling import sample
+from .xeb import XebResult, xeb
 
 __all__ = [
     "Circuit",
     "Operation",
     "amplitude",
     "amplitudes",
+    "marginal",
+    "expectation",
+    "maxcut_energy",
+    "sample",
+    "xeb",
+    "XebResult",
+    "Observable",
+    "PauliTerm",
+    "parse_observable",
     "TnsimError",
     "InputError",
     "QasmError",

@@ -18,7 +18,13 @@ import opt_einsum
 from .bits import parse_bits
 from .circuit import Circuit, Operation
 
-__all__ = ["TensorNetwork", "gate_tensor", "circuit_network", "amplitude_network"]
+__all__ = [
+    "TensorNetwork",
+    "gate_tensor",
+    "circuit_network",
+    "amplitude_network",
+    "doubled_network",
+]
 
 
 @dataclass
@@ -218,4 +224,71 @@ def amplitude_network(
     dt = np.dtype(dtype)
     arrays = [np.asarray(a, dtype=dt) for a in arrays]
     size = dict.fromkeys(range(nxt), 2)
+    return TensorNetwork(arrays, indices, size, tuple(end[q] for q in open_qubits), 0, dt)
+
+
+_PAULI = {
+    "X": np.array([[0, 1], [1, 0]], dtype=np.complex128),
+    "Y": np.array([[0, -1j], [1j, 0]], dtype=np.complex128),
+    "Z": np.array([[1, 0], [0, -1]], dtype=np.complex128),
+}
+
+
+def doubled_network(
+    circuit: Circuit,
+    *,
+    paulis: dict[int, str] | None = None,
+    open_qubits: Sequence[int] = (),
+    dtype: np.dtype | type = np.complex128,
+) -> TensorNetwork:
+    """Build the network of ``<0|C† M C|0>``: the circuit, its mirror image, joined.
+
+    ``M`` is a tensor product over qubits: the Pauli matrix ``paulis[q]`` on
+    those qubits, an open pair of legs merged into one output label on
+    ``open_qubits`` (so the value holds the diagonal ``<0|C†|x><x|C|0>``, the
+    probabilities of those qubits' outcomes), and the identity elsewhere (the
+    circuit's and the mirror's wires are joined).
+
+    Parameters
+    ----------
+    circuit : Circuit
+        The circuit ``C`` (usually already reduced to a light cone).
+    paulis : dict of int to str, optional
+        ``{qubit: "X" | "Y" | "Z"}``.
+    open_qubits : sequence of int
+        Qubits whose outcome is kept: one output axis each, in this order.
+    dtype : numpy dtype
+        ``complex64`` or ``complex128``.
+
+    Returns
+    -------
+    TensorNetwork
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> bell = Circuit(2).h(0).cx(0, 1)
+    >>> np.round(doubled_network(bell, open_qubits=[0, 1]).dense().real, 6)
+    array([[0.5, 0. ],
+           [0. , 0.5]])
+    >>> round(float(doubled_network(bell, paulis={0: "Z", 1: "Z"}).dense().real), 6)
+    1.0
+    """
+    paulis = paulis or {}
+    n = circuit.num_qubits
+    arrays, indices, start, end, nxt = circuit_network(circuit)
+    m_arrays, m_indices, m_start, m_end, nxt2 = circuit_network(circuit, first_label=nxt)
+    join = {m_end[q]: end[q] for q in range(n) if q not in paulis}
+    arrays = list(arrays) + [np.conj(a) for a in m_arrays]
+    indices = list(indices) + [tuple(join.get(i, i) for i in ix) for ix in m_indices]
+    for q in range(n):
+        arrays += [_BASIS[0], _BASIS[0]]
+        indices += [(start[q],), (m_start[q],)]
+    for q, letter in paulis.items():
+        arrays.append(_PAULI[letter])
+        indices.append((m_end[q], end[q]))
+    dt = np.dtype(dtype)
+    arrays = [np.asarray(a, dtype=dt) for a in arrays]
+    used = {i for ix in indices for i in ix}
+    size = dict.fromkeys(used, 2)
     return TensorNetwork(arrays, indices, size, tuple(end[q] for q in open_qubits), 0, dt)

@@ -1,0 +1,121 @@
+"""Batches of amplitudes, marginals and expectation values against a dense state vector.
+
+Reference throughout: tnsim.testing.dense_state, a state vector built by numpy.tensordot
+(the textbook definition of applying gates), qubit 0 the most significant bit.
+"""
+
+import numpy as np
+import pytest
+
+from tnsim import Circuit
+from tnsim.errors import InputError
+from tnsim.families import brickwork
+from tnsim.queries import amplitudes, expectation, iter_amplitudes, marginal
+from tnsim.testing import dense_state, random_circuit
+
+_PAULI = {
+    "X": np.array([[0, 1], [1, 0]], dtype=complex),
+    "Y": np.array([[0, -1j], [1j, 0]]),
+    "Z": np.diag([1.0, -1.0]).astype(complex),
+}
+
+
+def _flat(rows):
+    n = rows.shape[1]
+    return rows.astype(np.int64) @ (1 << np.arange(n - 1, -1, -1))
+
+
+def test_batch_with_few_varying_qubits_is_one_open_contraction():
+    c = random_circuit(9, 45, seed=4)
+    psi = dense_state(c)
+    rng = np.random.default_rng(0)
+    rows = np.tile(rng.integers(0, 2, 9), (40, 1))
+    rows[:, [2, 7, 5]] = rng.integers(0, 2, (40, 3))
+    got = amplitudes(c, rows)
+    np.testing.assert_allclose(got, psi[_flat(rows)], atol=1e-12)
+    assert len(list(iter_amplitudes(c, rows))) == 1
+
+
+def test_wide_batch_reuses_the_fixed_part_and_matches_dense():
+    # 20 qubits, bitstrings differing everywhere: the batched path (more than OPEN_LIMIT
+    # differing qubits), chunks of 16.
+    c = brickwork(20, 3, seed=2)
+    psi = dense_state(c)
+    rows = np.random.default_rng(1).integers(0, 2, (40, 20)).astype(np.uint8)
+    parts = list(iter_amplitudes(c, rows, chunk=16))
+    assert [p[0] for p in parts] == [0, 16, 32]
+    np.testing.assert_allclose(amplitudes(c, rows), psi[_flat(rows)], atol=1e-12)
+
+
+def test_scaled_batch_keeps_wide_amplitudes():
+    # 1,500 qubits: |a|^2 ~ 2^-1500 underflows float64; the scaled form keeps it.
+    c = brickwork(1500, 2, seed=3)
+    rows = np.random.default_rng(2).integers(0, 2, (20, 1500)).astype(np.uint8)
+    s = amplitudes(c, rows, scaled=True)
+    logs = s.log10_abs()
+    assert np.all(np.isfinite(logs)) and np.all(logs < -200)
+    plain = amplitudes(c, rows)
+    assert np.all(plain == 0)
+
+
+@pytest.mark.parametrize("seed", range(4))
+@pytest.mark.parametrize("qubits", [[0], [3, 1], [5, 0, 2], [1, 2, 3, 4, 6, 7]])
+def test_marginal_matches_dense(qubits, seed):
+    n = 8
+    c = random_circuit(n, 40, seed=seed)
+    p = np.abs(dense_state(c).reshape((2,) * n)) ** 2
+    others = tuple(q for q in range(n) if q not in qubits)
+    ref = p.sum(axis=others)
+    kept = [q for q in range(n) if q in qubits]
+    ref = np.transpose(ref, [kept.index(q) for q in qubits]).reshape(-1)
+    np.testing.assert_allclose(marginal(c, qubits), ref, atol=1e-12)
+
+
+def test_marginal_input_errors():
+    c = Circuit(3).h(0)
+    for bad, words in (
+        ([], "at least one"),
+        ([0, 0], "repeats"),
+        ([3], "not an index"),
+        ("01", "list of qubit"),
+        ([True], "not an index"),
+    ):
+        with pytest.raises(InputError, match=words):
+            marginal(c, bad)
+
+
+def _dense_expectation(psi, n, terms):
+    total = 0.0
+    psi = psi.reshape((2,) * n)
+    for coef, paulis in terms:
+        phi = psi
+        for q, p in paulis:
+            phi = np.moveaxis(np.tensordot(_PAULI[p], phi, axes=(1, q)), 0, q)
+        total += coef * np.vdot(psi, phi).real
+    return total
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_expectation_of_random_pauli_sums_matches_dense(seed):
+    n = 10
+    c = random_circuit(n, 50, seed=seed)
+    rng = np.random.default_rng(seed)
+    terms, text = [], []
+    for _ in range(5):
+        qs = rng.choice(n, rng.integers(1, 4), replace=False)
+        letters = rng.choice(list("XYZ"), len(qs))
+        coef = round(float(rng.normal()), 3)
+        terms.append((coef, list(zip(qs.tolist(), letters.tolist()))))
+        text.append(f"{coef:+} " + " ".join(f"{p}{q}" for q, p in zip(qs, letters)))
+    text.append("+ 0.25")
+    terms.append((0.25, []))
+    ref = _dense_expectation(dense_state(c), n, terms)
+    assert expectation(c, " ".join(text)) == pytest.approx(ref, abs=1e-10)
+
+
+def test_expectation_errors():
+    c = Circuit(2).h(0)
+    with pytest.raises(InputError, match="column"):
+        expectation(c, "Z0 ** Z1")
+    with pytest.raises(InputError, match="circuit has 2"):
+        expectation(c, "Z5")

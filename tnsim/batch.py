@@ -1,0 +1,180 @@
+"""One network, many fixings of some of its legs: contract the common part once.
+
+A batch of questions that differ only in the values of a few legs (the
+output bits of a batch of bitstrings, the sampled bits of a batch of shots)
+is one network with a *batch label* ``s``: each varying leg ``l`` gets a
+one-hot tensor ``E[s, l]`` holding the chosen bit of every member of the
+batch.  The network is simplified and planned once; the steps of the tree
+that do not depend on any ``E`` are contracted once and kept, and only the
+steps above the ``E`` leaves are redone for each chunk of the batch.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from .execute import Scaled, apply_step, compile_tree, execute, normalize
+from .network import TensorNetwork
+from .plan import ContractionTree, make_plan
+from .simplify import absorb_small
+
+__all__ = ["BatchContraction"]
+
+
+class BatchContraction:
+    """Plan a network once with some legs fixed per batch member; run chunk by chunk.
+
+    Parameters
+    ----------
+    network : TensorNetwork
+        The network with every varying leg and every kept leg in its output.
+    batch_labels : sequence of int
+        Output labels whose values are given per batch member (each size 2).
+    open_labels : sequence of int
+        Output labels kept open in the result.
+    chunk : int
+        Batch members per run (shorter runs are padded).
+    memory_limit : int, optional
+        Bytes for live intermediates (passed to the planner).
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> from tnsim.network import amplitude_network
+    >>> c = Circuit(2).h(0).cx(0, 1)
+    >>> tn = amplitude_network(c, None, open_qubits=[0, 1])
+    >>> engine = BatchContraction(tn, tn.output, (), chunk=4)
+    >>> np.round(engine.run(np.array([[0, 0], [1, 1], [0, 1]])).value(), 6)
+    array([0.707107+0.j, 0.707107+0.j, 0.      +0.j])
+    """
+
+    def __init__(
+        self,
+        network: TensorNetwork,
+        batch_labels: Sequence[int],
+        open_labels: Sequence[int],
+        chunk: int,
+        memory_limit: int | None = None,
+    ):
+        self.batch_labels = tuple(batch_labels)
+        self.chunk = int(chunk)
+        base = absorb_small(network)
+        self.dtype = base.dtype
+        labels = set(base.size) | set(network.output)
+        s = max(labels, default=-1) + 1
+        inputs = list(base.indices) + [(s, lab) for lab in self.batch_labels]
+        size = dict(base.size)
+        size[s] = self.chunk
+        for lab in self.batch_labels:
+            size[lab] = 2
+        eye = np.eye(2, dtype=self.dtype)
+        leaves = [eye[np.zeros(self.chunk, np.intp)] for _ in self.batch_labels]
+        self.network = TensorNetwork(
+            list(base.arrays) + leaves,
+            inputs,
+            size,
+            (s,) + tuple(open_labels),
+            base.exponent,
+            self.dtype,
+        )
+        self.num_fixed = len(base.arrays)
+        # Plan the network of one batch member (the E leaves as plain vectors): a planner
+        # that saw the batch label shared by every E leaf would join those leaves first.
+        single = TensorNetwork(
+            self.network.arrays,
+            [tuple(i for i in ix if i != s) for ix in inputs],
+            base.size | dict.fromkeys(self.batch_labels, 2),
+            tuple(open_labels),
+            base.exponent,
+            self.dtype,
+        )
+        plan = make_plan(single, memory_limit=memory_limit)
+        self.tree = ContractionTree(tuple(inputs), self.network.output, size, plan.tree.path)
+        self.sliced = tuple(plan.sliced)
+        self.cached: dict[int, tuple[np.ndarray, int]] = {}
+        if not self.sliced:
+            self._contract_fixed()
+
+    def _contract_fixed(self) -> None:
+        """Contract every step that no batch leaf feeds; keep what later steps need."""
+        tree = self.tree
+        self.steps = compile_tree(tree)
+        n = tree.num_leaves
+        varying = [k >= self.num_fixed for k in range(n)]
+        nodes: dict[int, tuple[np.ndarray, int]] = {
+            k: (self.network.arrays[k], 0) for k in range(self.num_fixed)
+        }
+        for k, ((x, y), step) in enumerate(zip(tree.path, self.steps)):
+            v = varying[x] or varying[y]
+            varying.append(v)
+            if not v:
+                (a, ea), (b, eb) = nodes.pop(x), nodes.pop(y)
+                c, e = normalize(apply_step(step, a, b))
+                nodes[n + k] = (c, ea + eb + e)
+        self.varying = varying
+        self.cached = nodes
+
+    def _leaves(self, values: np.ndarray) -> list[np.ndarray]:
+        eye = np.eye(2, dtype=self.dtype)
+        padded = np.zeros((self.chunk, len(self.batch_labels)), dtype=np.intp)
+        padded[: len(values)] = values
+        return [eye[padded[:, j]] for j in range(len(self.batch_labels))]
+
+    def run(self, values: np.ndarray) -> Scaled:
+        """Contract for up to ``chunk`` batch members.
+
+        Parameters
+        ----------
+        values : numpy.ndarray
+            ``(count, len(batch_labels))`` array of 0/1, ``count <= chunk``.
+
+        Returns
+        -------
+        Scaled
+            Axes: the batch member (``count`` long), then the open labels.
+        """
+        values = np.asarray(values)
+        count = len(values)
+        if count > self.chunk:
+            raise ValueError(f"at most {self.chunk} batch members per run, got {count}")
+        leaves = self._leaves(values)
+        if self.sliced:
+            net = self.network
+            full = TensorNetwork(
+                list(net.arrays[: self.num_fixed]) + leaves,
+                net.indices,
+                net.size,
+                net.output,
+                net.exponent,
+                net.dtype,
+            )
+            out = execute(full, self.tree, self.sliced)
+            return Scaled(out.mantissa[:count], out.exponent)
+        return self._run_cached(leaves, count)
+
+    def _run_cached(self, leaves: list[np.ndarray], count: int) -> Scaled:
+        tree = self.tree
+        n = tree.num_leaves
+        nodes = dict(self.cached)
+        for k, leaf in enumerate(leaves):
+            nodes[self.num_fixed + k] = (leaf, 0)
+        labels = list(tree.inputs)
+        for k, ((x, y), step) in enumerate(zip(tree.path, self.steps)):
+            labels.append(step.out_labels)
+            if not self.varying[n + k]:
+                continue
+            (a, ea), (b, eb) = nodes.pop(x), nodes.pop(y)
+            c, e = normalize(apply_step(step, a, b))
+            nodes[n + k] = (c, ea + eb + e)
+        root_id = n + len(tree.path) - 1 if tree.path else 0
+        root, exponent = nodes[root_id]
+        final = labels[root_id]
+        extra = tuple(k for k, i in enumerate(final) if i not in tree.output)
+        if extra:
+            root = root.sum(axis=extra)
+            final = tuple(i for i in final if i in tree.output)
+        root = root.transpose([final.index(i) for i in tree.output])
+        root, e = normalize(np.ascontiguousarray(root[:count]))
+        return Scaled(root, exponent + e + self.network.exponent)
