@@ -158,3 +158,41 @@ def test_missing_backend_is_an_input_error():
     tn = TensorNetwork([np.ones(2)], [(0,)], {0: 2})
     with pytest.raises(InputError, match="not installed"):
         execute(tn, greedy_tree(tn.indices, tn.output, tn.size), backend="no_such_array_lib")
+
+
+def _random_pair(rng):
+    """Two random label lists over labels 0..7 (sizes 1..3), and which labels are kept."""
+    labels = list(range(8))
+    ia = list(rng.choice(labels, rng.integers(1, 6), replace=False))
+    ib = list(rng.choice(labels, rng.integers(1, 6), replace=False))
+    keep = {int(i) for i in rng.choice(labels, rng.integers(0, 6), replace=False)}
+    return [int(i) for i in ia], [int(i) for i in ib], keep
+
+
+def test_apply_step_matches_einsum_on_random_layouts():
+    # Reference: numpy.einsum with the same labels (sum over every label not kept).
+    rng = np.random.default_rng(42)
+    size = {i: int(rng.integers(1, 4)) for i in range(8)}
+    flags = set()
+    for _ in range(400):
+        ia, ib, keep = _random_pair(rng)
+        step = ex.pair_step(ia, ib, keep, size)
+        flags.add((step.trans_a, step.trans_b))
+        a = rng.normal(size=[size[i] for i in ia]) + 1j * rng.normal(size=[size[i] for i in ia])
+        b = rng.normal(size=[size[i] for i in ib]) + 1j * rng.normal(size=[size[i] for i in ib])
+        sym = "abcdefgh"
+        eq = f"{''.join(sym[i] for i in ia)},{''.join(sym[i] for i in ib)}->"
+        eq += "".join(sym[i] for i in step.out_labels)
+        assert set(step.out_labels) == (set(ia) | set(ib)) & keep
+        np.testing.assert_allclose(ex.apply_step(step, a, b), np.einsum(eq, a, b), atol=1e-12)
+    assert {(True, False), (False, True)} <= flags  # both transposed-view paths were taken
+
+
+def test_grouped_operand_is_not_copied():
+    # b's axes already lie as (summed, right): matmul gets a view of it, no copy.
+    size = dict.fromkeys(range(4), 3)
+    step = ex.pair_step([0, 1], [1, 2, 3], {0, 2, 3}, size)
+    assert step.view_b == (27,) and step.perm_b == (0,)  # one run: nothing to permute
+    b = np.arange(27.0).reshape(3, 3, 3)
+    view = b.reshape(step.view_b).transpose(step.perm_b).reshape(step.mat_b)
+    assert np.shares_memory(view, b)
