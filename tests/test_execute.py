@@ -196,3 +196,12 @@ def test_grouped_operand_is_not_copied():
     b = np.arange(27.0).reshape(3, 3, 3)
     view = b.reshape(step.view_b).transpose(step.perm_b).reshape(step.mat_b)
     assert np.shares_memory(view, b)
+
+
+def test_progress_bar_only_when_asked(sliced_case, capsys):
+    _, _, network, tree, sliced = sliced_case(10, 60, seed=2, num_sliced=3)
+    execute(network, tree, sliced, chunk_size=2)  # default: not a terminal, small work
+    assert capsys.readouterr().err == ""
+    execute(network, tree, sliced, chunk_size=2, progress=True)
+    err = capsys.readouterr().err
+    assert "8/8" in err and "slice" in err and "GFLOP/s" in err

@@ -66,7 +66,7 @@ class SliceProgress:
             from tqdm import tqdm
 
             self.bar = tqdm(
-                total=num_slices, initial=done_slices, unit="slice", file=sys.stderr, leave=False
+                total=num_slices, initial=done_slices, unit="slice", file=sys.stderr, leave=True
             )
 
     def advance(self, slices: int) -> None:
