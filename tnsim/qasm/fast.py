@@ -38,12 +38,18 @@ _NUMBER_RE = re.compile(
     r"[+-]?(?:(?:[0-9]+\.[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[0-9]+(?:[eE][+-]?[0-9]+)?)",
     re.ASCII,
 )
+_ONE_NUMBER_RE = re.compile(rf"{_B}{_NUMBER_RE.pattern}{_B}", re.ASCII)
 _BLANKS = " \t\r\f\v"
 
 
 def _numbers(text: str | None) -> tuple[float, ...] | None:
     """The values of a parameter list of plain signed numbers, else ``None``."""
-    if text is None or not text.strip(_BLANKS):
+    if text is None:
+        return ()
+    if _ONE_NUMBER_RE.fullmatch(text) is not None:
+        value = float(text)
+        return (value,) if isfinite(value) else None
+    if not text.strip(_BLANKS):
         return ()
     values = []
     for piece in text.split(","):
@@ -57,23 +63,17 @@ def _numbers(text: str | None) -> tuple[float, ...] | None:
     return tuple(values)
 
 
-def _qubit(qregs: dict, name: str, index: str) -> int:
-    """The number of qubit ``name[index]``, or -1 for an unknown register or index."""
-    reg = qregs.get(name)
-    if reg is None or int(index) >= reg[1]:
-        return -1
-    return reg[0] + int(index)
-
-
 def _qubits(qregs: dict, groups: tuple) -> tuple[int, ...] | None:
     """Distinct qubit numbers of the ``reg[i]`` arguments in ``groups``, else ``None``."""
-    first = _qubit(qregs, groups[2], groups[3])
-    if groups[4] is None:
-        return None if first < 0 else (first,)
-    qubits = [first, _qubit(qregs, groups[4], groups[5])]
-    if groups[6] is not None:
-        qubits.append(_qubit(qregs, groups[6], groups[7]))
-    if min(qubits) < 0 or len(set(qubits)) < len(qubits):
+    qubits = []
+    for k in (2, 4, 6):
+        if groups[k] is None:
+            break
+        reg, index = qregs.get(groups[k]), int(groups[k + 1])
+        if reg is None or index >= reg[1]:
+            return None
+        qubits.append(reg[0] + index)
+    if len(qubits) > 1 and len(set(qubits)) < len(qubits):
         return None
     return tuple(qubits)
 
@@ -112,7 +112,7 @@ def read_simple_statements(
         gate = builtin(groups[0]) or defined(groups[0])
         if gate is None or program.op_count + gate.size > program.max_ops:
             break
-        values = () if groups[1] is None else _numbers(groups[1])
+        values = _numbers(groups[1])
         if values is None:
             values = cache.get(groups[1])
             if values is None:

@@ -1,7 +1,9 @@
-"""The OpenQASM 2.0 reader: statements, includes, declarations, gate definitions, calls.
+"""The OpenQASM 2.0 reader: program structure, includes, and :func:`read_qasm`.
 
-A recursive-descent parser over :class:`~tnsim.qasm.lexer.Lexer` tokens; runs
-of simple gate statements in the main program are read by
+A recursive-descent parser over :class:`~tnsim.qasm.lexer.Lexer` tokens
+(helpers in :mod:`~tnsim.qasm.parser`, gate definitions in
+:mod:`~tnsim.qasm.gatedef`, other statements in :mod:`~tnsim.qasm.statements`);
+runs of simple gate statements in the main program are read by
 :func:`~tnsim.qasm.fast.read_simple_statements` without tokens.  The accepted
 language is described in :mod:`tnsim.qasm`.
 """
@@ -13,22 +15,14 @@ from pathlib import Path
 
 from ..circuit import Circuit
 from ..errors import InputError, QasmError
-from .arith import Code, MathError, constant, parse_expression
-from .definitions import (
-    BUILTINS,
-    EXTENSION_TOKENS,
-    MAX_GATE_DEPTH,
-    QELIB1,
-    SIZE_CAP,
-    Call,
-    Gate,
-    expand,
-)
+from .arith import constant, parse_expression
+from .definitions import QELIB1
 from .fast import read_simple_statements
 from .files import looks_like_missing_file, names_file, read_text
-from .header import EXTENSION_DEFINITIONS, KEYWORDS, QELIB1_GATES, RESERVED, UNITARY_ONLY
-from .lexer import Lexer, Source, Token, describe
-from .program import Arg, Program
+from .header import UNITARY_ONLY
+from .lexer import Source, Token, describe
+from .program import Program
+from .statements import StatementParser
 
 __all__ = ["DEFAULT_MAX_OPS", "MAX_INCLUDE_DEPTH", "read_qasm"]
 
@@ -39,55 +33,13 @@ MAX_INCLUDE_DEPTH = 8
 """Deepest allowed chain of included files."""
 
 
-class _Parser:
+class _Parser(StatementParser):
     """Recursive-descent parser for one file (or text) of a program."""
 
     def __init__(self, source: Source, directory: Path | None, program: Program):
-        self.source, self.directory, self.program = source, directory, program
-        self.lexer = Lexer(source)
-        self.tok = self.lexer.next()
-        self.recording: list[tuple[str, str]] | None = None
+        super().__init__(source, program)
+        self.directory = directory
         self.param_cache: dict[str, tuple[float, ...]] = {}
-
-    # -- token helpers
-
-    def advance(self) -> Token:
-        tok = self.tok
-        if self.recording is not None:
-            self.recording.append((tok.kind, tok.text))
-        if tok.kind != "eof":
-            self.tok = self.lexer.next()
-        return tok
-
-    def error(self, message: str, tok: Token | None = None) -> QasmError:
-        tok = self.tok if tok is None else tok
-        return self.source.error(message, tok.offset)
-
-    def at(self, text: str) -> bool:
-        return self.tok.text == text and self.tok.kind in ("sym", "id")
-
-    def expect(self, text: str, context: str = "") -> Token:
-        if not self.at(text):
-            hint = " (every statement ends with ';')" if text == ";" else ""
-            where = f" {context}" if context else ""
-            raise self.error(f"expected '{text}'{where}, found {describe(self.tok)}{hint}")
-        return self.advance()
-
-    def expect_id(self, what: str) -> Token:
-        if self.tok.kind != "id":
-            raise self.error(f"expected {what}, found {describe(self.tok)}")
-        return self.advance()
-
-    def expect_int(self, what: str) -> tuple[int, Token]:
-        tok = self.tok
-        if tok.kind != "int":
-            raise self.error(f"expected {what} (a non-negative integer), found {describe(tok)}")
-        self.advance()
-        if len(tok.text) > 15:
-            raise self.error(f"{what} {tok.text} is too large", tok)
-        return int(tok.text), tok
-
-    # -- program structure
 
     def parse(self, *, main: bool) -> Token:
         """Parse every statement; return the ``eof`` token."""
@@ -178,8 +130,6 @@ class _Parser:
             tok,
         )
 
-    # -- includes
-
     def include(self) -> None:
         self.advance()
         name_tok = self.tok
@@ -241,331 +191,6 @@ class _Parser:
                 tok,
             )
         return path
-
-    # -- declarations
-
-    def new_name(self, tok: Token, kind: str) -> None:
-        if tok.text in RESERVED:
-            raise self.error(f"'{tok.text}' is a reserved word and cannot name a {kind}", tok)
-
-    def register(self, kind: str) -> None:
-        self.advance()
-        name = self.expect_id(f"a {kind} name")
-        self.new_name(name, "register")
-        if name.text in self.program.qregs or name.text in self.program.cregs:
-            raise self.error(
-                f"register '{name.text}' is already declared; choose another name", name
-            )
-        self.expect("[", f"after the register name '{name.text}'")
-        size, size_tok = self.expect_int("the register size")
-        if size < 1:
-            raise self.error(f"register '{name.text}' needs at least one element", size_tok)
-        self.expect("]", "after the register size")
-        self.expect(";", f"after the declaration of '{name.text}'")
-        if kind == "qreg":
-            self.program.qregs[name.text] = (self.program.num_qubits, size)
-            self.program.num_qubits += size
-        else:
-            self.program.cregs[name.text] = size
-
-    # -- gate definitions
-
-    def gate_definition(self) -> None:
-        self.recording = []
-        self.advance()
-        name = self.expect_id("a gate name")
-        self.check_gate_name(name)
-        params = self.id_list("(", ")", "parameter") if self.at("(") else []
-        qargs = self.id_list(None, "{", "qubit argument")
-        self.check_formals(params, qargs)
-        brace = self.tok
-        self.expect("{", f"to open the body of gate '{name.text}'")
-        body = self.gate_body(name, brace, params, qargs)
-        tokens, self.recording = tuple(self.recording), None
-        self.program.gates[name.text] = self.make_gate(name, len(params), len(qargs), body, tokens)
-
-    def check_gate_name(self, name: Token) -> None:
-        self.new_name(name, "gate")
-        existing = self.program.gates.get(name.text)
-        if existing is not None:
-            raise self.error(
-                f"gate '{name.text}' is already defined by {existing.origin}; choose another name",
-                name,
-            )
-
-    def id_list(self, opener: str | None, closer: str, what: str) -> list[Token]:
-        if opener is not None:
-            self.advance()
-            if self.at(closer):
-                self.advance()
-                return []
-        names = [self.expect_id(f"a {what} name")]
-        while self.at(","):
-            self.advance()
-            names.append(self.expect_id(f"a {what} name"))
-        if opener is not None:
-            self.expect(closer, f"to close the {what} list")
-        return names
-
-    def check_formals(self, params: list[Token], qargs: list[Token]) -> None:
-        seen: set[str] = set()
-        for tok in params + qargs:
-            self.new_name(tok, "gate parameter or argument")
-            if tok.text in seen:
-                raise self.error(f"'{tok.text}' is listed twice in the gate's signature", tok)
-            seen.add(tok.text)
-
-    def gate_body(
-        self, name: Token, brace: Token, params: list[Token], qargs: list[Token]
-    ) -> list[Call]:
-        env = {tok.text: i for i, tok in enumerate(params)}
-        formal = {tok.text: i for i, tok in enumerate(qargs)}
-        body = []
-        while not self.at("}"):
-            if self.tok.kind == "eof":
-                raise self.error(
-                    f"the body of gate '{name.text}' opened here is never closed; add '}}'", brace
-                )
-            call = self.body_statement(name.text, env, formal)
-            if call is not None:
-                body.append(call)
-        self.advance()
-        return body
-
-    def body_statement(self, owner: str, env: dict[str, int], formal: dict[str, int]):
-        tok = self.tok
-        if tok.kind != "id":
-            raise self.error(
-                f"expected a gate call in the body of '{owner}', found {describe(tok)}"
-            )
-        if tok.text in UNITARY_ONLY:
-            raise self.unsupported(tok)
-        if tok.text == "barrier":
-            self.advance()
-            self.formal_args(formal, owner)
-            self.expect(";", "after the barrier")
-            return None
-        if tok.text in KEYWORDS - {"U", "CX"}:
-            raise self.error(
-                f"'{tok.text}' cannot appear inside a gate body; only gate calls and barrier can"
-            )
-        if tok.text == owner:
-            raise self.error(
-                f"gate '{owner}' cannot call itself: a gate is defined only after its body ends"
-            )
-        gate = self.lookup(self.advance())
-        codes = self.param_list(env)
-        args = self.formal_args(formal, owner)
-        self.expect(";", f"after the call of '{tok.text}'")
-        self.check_counts(gate, tok, len(codes), len(args))
-        indices = tuple(formal[a.text] for a in args)
-        self.check_distinct(indices, args, tok.text, lambda i: f"'{args[i].text}'")
-        return Call(gate, tuple(codes), indices)
-
-    def formal_args(self, formal: dict[str, int], owner: str) -> list[Token]:
-        args = []
-        while True:
-            tok = self.expect_id(f"a qubit argument of gate '{owner}'")
-            if tok.text not in formal:
-                raise self.error(
-                    f"'{tok.text}' is not a qubit argument of gate '{owner}' "
-                    f"(its arguments: {', '.join(formal)})",
-                    tok,
-                )
-            if self.at("["):
-                raise self.error(
-                    "qubit arguments inside a gate body are the gate's own names, without indices"
-                )
-            args.append(tok)
-            if not self.at(","):
-                return args
-            self.advance()
-
-    def make_gate(self, name: Token, n_params: int, n_qubits: int, body, tokens) -> Gate:
-        line, column = self.source.where(name.offset)
-        origin = f"{self.source.name}:{line}:{column}"
-        if EXTENSION_TOKENS.get(name.text) == tokens:
-            return Gate(name.text, n_params, n_qubits, origin, native=name.text)
-        depth = 1 + max((call.gate.depth for call in body), default=0)
-        if depth > MAX_GATE_DEPTH:
-            raise self.error(
-                f"gate definitions nest deeper than {MAX_GATE_DEPTH} levels at '{name.text}'; "
-                "flatten the definitions",
-                name,
-            )
-        size = min(sum(call.gate.size for call in body), SIZE_CAP)
-        return Gate(name.text, n_params, n_qubits, origin, None, True, tuple(body), size, depth)
-
-    # -- gate calls at the top level
-
-    def lookup(self, tok: Token) -> Gate:
-        gate = BUILTINS.get(tok.text) or self.program.gates.get(tok.text)
-        if gate is not None:
-            return gate
-        if tok.text in QELIB1_GATES:
-            hint = "it is defined in qelib1.inc: add 'include \"qelib1.inc\";' after the header"
-        elif tok.text in EXTENSION_DEFINITIONS:
-            hint = f"define it first, e.g. as {EXTENSION_DEFINITIONS[tok.text].split(' {')[0]}"
-        elif tok.text.lower() in self.program.gates or tok.text.lower() in QELIB1_GATES:
-            hint = f"names are case-sensitive: did you mean '{tok.text.lower()}'?"
-        else:
-            hint = f"define it with 'gate {tok.text} ... {{ ... }}' before using it"
-        raise self.error(f"unknown gate '{tok.text}'; {hint}", tok)
-
-    def param_list(self, env: dict[str, int] | None) -> list[Code]:
-        if not self.at("("):
-            return []
-        self.advance()
-        codes: list[Code] = []
-        if self.at(")"):
-            self.advance()
-            return codes
-        codes.append(parse_expression(self, env))
-        while self.at(","):
-            self.advance()
-            codes.append(parse_expression(self, env))
-        self.expect(")", "to close the parameter list")
-        return codes
-
-    def check_counts(self, gate: Gate, tok: Token, n_params: int, n_qubits: int) -> None:
-        if n_params != gate.num_params:
-            raise self.error(
-                f"gate '{tok.text}' takes {gate.num_params} parameter(s), got {n_params}", tok
-            )
-        if n_qubits != gate.num_qubits:
-            raise self.error(
-                f"gate '{tok.text}' acts on {gate.num_qubits} qubit(s), got {n_qubits} argument(s)",
-                tok,
-            )
-
-    def check_distinct(self, qubits, args, gate_name: str, label) -> None:
-        if len(set(qubits)) == len(qubits):
-            return
-        for j, q in enumerate(qubits):
-            if q in qubits[:j]:
-                raise self.error(
-                    f"{label(j)} appears twice in '{gate_name}'; a gate needs distinct qubits",
-                    args[j].token if isinstance(args[j], Arg) else args[j],
-                )
-
-    def application(self) -> None:
-        tok = self.advance()
-        gate = self.lookup(tok)
-        codes = self.param_list(None)
-        args = self.arg_list(quantum=True)
-        self.expect(";", f"after the call of '{tok.text}'")
-        self.check_counts(gate, tok, len(codes), len(args))
-        values = tuple(constant(code) for code in codes)
-        count = self.broadcast_size(args)
-        self.reserve(gate.size * count, tok)
-        template: list = []
-        try:
-            expand(gate, values, tuple(range(gate.num_qubits)), template)
-        except MathError as exc:
-            line, column = self.source.where(tok.offset)
-            note = f" (in gate '{tok.text}' called at {self.source.name}:{line}:{column})"
-            raise exc.to_qasm_error(note) from None
-        # An empty body emits nothing: check one instance instead of looping over a huge register.
-        for i in range(count if template else min(count, 1)):
-            qubits = tuple(a.indices[i] if a.register else a.indices[0] for a in args)
-            self.check_distinct(qubits, args, tok.text, lambda j, q=qubits: self.qname(q[j]))
-            measured = self.program.first_measured(template, qubits)
-            if measured is not None:
-                raise self.error(
-                    f"gate '{tok.text}' acts on {self.qname(measured)} after it was measured; "
-                    "tnsim simulates unitary circuits only: move measurements to the end",
-                    tok,
-                )
-            self.program.emit(template, qubits)
-
-    def qname(self, qubit: int) -> str:
-        return f"qubit {self.program.qubit_name(qubit)}"
-
-    def reserve(self, count: int, tok: Token) -> None:
-        total = self.program.op_count + count
-        if total > self.program.max_ops:
-            raise self.error(
-                f"the program expands to more than max_ops={self.program.max_ops} operations "
-                f"(this statement adds {count}); raise max_ops if you mean it",
-                tok,
-            )
-        self.program.op_count = total
-
-    def broadcast_size(self, args: list[Arg]) -> int:
-        size = None
-        for arg in args:
-            if arg.register:
-                if size is not None and len(arg.indices) != size:
-                    raise self.error(
-                        f"register sizes differ ({size} and {len(arg.indices)}) in one statement; "
-                        "use registers of equal size or index single qubits",
-                        arg.token,
-                    )
-                size = len(arg.indices)
-        return 1 if size is None else size
-
-    def arg_list(self, *, quantum: bool) -> list[Arg]:
-        args = [self.argument(quantum)]
-        while self.at(","):
-            self.advance()
-            args.append(self.argument(quantum))
-        return args
-
-    def argument(self, quantum: bool) -> Arg:
-        kind = "qubit" if quantum else "classical"
-        tok = self.expect_id(f"a {kind} register name")
-        offset, size = self.find_register(tok, quantum)
-        if not self.at("["):
-            return Arg(range(offset, offset + size), True, tok)
-        self.advance()
-        index, index_tok = self.expect_int("an index")
-        if index >= size:
-            raise self.error(
-                f"index {index} is out of range for register '{tok.text}' of size {size} "
-                f"(valid: 0..{size - 1})",
-                index_tok,
-            )
-        self.expect("]", "after the index")
-        return Arg(range(offset + index, offset + index + 1), False, tok)
-
-    def find_register(self, tok: Token, quantum: bool) -> tuple[int, int]:
-        mine = self.program.qregs if quantum else {n: (0, s) for n, s in self.program.cregs.items()}
-        if tok.text in mine:
-            return mine[tok.text]
-        other = self.program.cregs if quantum else self.program.qregs
-        if tok.text in other:
-            want = "qubit register (qreg)" if quantum else "classical register (creg)"
-            raise self.error(f"'{tok.text}' is not a {want} here", tok)
-        decl = "qreg" if quantum else "creg"
-        raise self.error(
-            f"undeclared register '{tok.text}'; declare it with '{decl} {tok.text}[n];' first",
-            tok,
-        )
-
-    # -- barrier and measure
-
-    def barrier(self) -> None:
-        self.advance()
-        self.arg_list(quantum=True)
-        self.expect(";", "after the barrier")
-
-    def measure(self) -> None:
-        self.advance()
-        qarg = self.argument(quantum=True)
-        self.expect("->", "between the measured qubits and the classical bits")
-        carg = self.argument(quantum=False)
-        self.expect(";", "after the measurement")
-        if qarg.register != carg.register or len(qarg.indices) != len(carg.indices):
-            raise self.error(
-                f"measure needs a qubit register and a classical register of equal size, or a "
-                f"single qubit and a single bit; got {len(qarg.indices)} qubit(s) and "
-                f"{len(carg.indices)} bit(s)",
-                qarg.token,
-            )
-        if qarg.register:
-            self.program.measured_regs.add(qarg.token.text)
-        else:
-            self.program.measured.add(qarg.indices[0])
 
 
 def read_qasm(path_or_text: str | os.PathLike, *, max_ops: int = DEFAULT_MAX_OPS) -> Circuit:
