@@ -73,29 +73,29 @@ def _gather_bits(args: argparse.Namespace, n: int) -> np.ndarray:
     return np.concatenate(rows)
 
 
-def _amp_rows(circuit: Circuit, rows: np.ndarray, dtype) -> list[dict]:
-    from .queries import amplitude
+def _amp_rows(circuit: Circuit, rows: np.ndarray, dtype):
+    """Yield one record per bitstring, chunk by chunk as the batch is contracted."""
+    from .execute import Scaled
+    from .queries import iter_amplitudes
 
-    out = []
-    for row in rows:
-        a = amplitude(circuit, row, dtype=dtype, scaled=True)
-        value = complex(a)
-        out.append(
-            {
-                "bits": format_bits(row),
+    for start, mantissa, exponent in iter_amplitudes(circuit, rows, dtype=dtype, chunk=64):
+        for k in range(len(mantissa)):
+            a = Scaled(np.asarray(mantissa[k]), int(exponent[k]))
+            value = complex(a)
+            yield {
+                "bits": format_bits(rows[start + k]),
                 "real": value.real,
                 "imag": value.imag,
                 "probability": abs(value) ** 2,
                 "log10_abs": a.log10_abs(),
                 "phase": a.phase(),
             }
-        )
-    return out
 
 
-def _print_amp_table(rows: list[dict], stream=None) -> None:
+def _print_amp_table(rows, num_bits: int, stream=None) -> None:
+    """Print records as they come (flushing each), so long batches stream."""
     stream = stream or sys.stdout
-    width = max(12, *(len(r["bits"]) for r in rows)) if len(rows[0]["bits"]) <= 64 else 12
+    width = max(12, num_bits) if num_bits <= 64 else 12
     print(f"{'bitstring':<{width}}  {'amplitude':>34}  {'probability':>12}  log10|a|", file=stream)
     for r in rows:
         bits = r["bits"] if len(r["bits"]) <= 64 else r["bits"][:9] + "..."
@@ -103,6 +103,7 @@ def _print_amp_table(rows: list[dict], stream=None) -> None:
         print(
             f"{bits:<{width}}  {amp:>34}  {r['probability']:12.6e}  {r['log10_abs']:.6f}",
             file=stream,
+            flush=True,
         )
 
 
@@ -112,9 +113,9 @@ def _cmd_amp(args: argparse.Namespace) -> int:
     dtype = np.complex64 if args.single else np.complex128
     result = _amp_rows(circuit, rows, dtype)
     if args.json:
-        print(json.dumps({"num_qubits": circuit.num_qubits, "amplitudes": result}))
+        print(json.dumps({"num_qubits": circuit.num_qubits, "amplitudes": list(result)}))
     else:
-        _print_amp_table(result)
+        _print_amp_table(result, circuit.num_qubits)
     return 0
 
 
@@ -206,7 +207,11 @@ def build_parser() -> argparse.ArgumentParser:
     amp.add_argument(
         "--bits", action="append", metavar="BITS", help=f"a bitstring (repeatable); {BITS_HELP}"
     )
-    amp.add_argument("--bits-file", metavar="FILE", help="file with one bitstring per line")
+    amp.add_argument(
+        "--bits-file",
+        metavar="FILE",
+        help="file with one bitstring per line; rows are printed as they are computed",
+    )
     amp.add_argument("--single", action="store_true", help="contract in complex64")
     amp.add_argument("--json", action="store_true", help="machine-readable output")
     add_run_arguments(amp)
@@ -216,6 +221,9 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--quick", action="store_true", help="smaller instances")
     demo.set_defaults(func=_cmd_demo)
     _add_gen_and_bench(sub)
+    from .cli_queries import add_query_commands
+
+    add_query_commands(sub)
     return parser
 
 
