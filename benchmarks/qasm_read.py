@@ -6,7 +6,9 @@ qubits drawn with a seeded generator (``--seed``), plus a line of ``rz(pi/4)``
 every 100 statements.  Such simple statements are read by the reader's fast
 path; ``--general`` writes ``rzz(0.6/2) q[i], q[j];`` and
 ``U(pi/2, 0, pi) q[i];`` instead, whose expressions send every statement
-through the lexer and the general parser.
+through the lexer and the expression parser; the reader remembers the values
+of a parameter list by its text, so ``--distinct`` makes every expression
+different (``rzz(k/7) ...`` and ``U(pi/2, 0, k/3) ...`` for statement ``k``).
 
 ``--baseline REV`` also times the reader as it was at git revision ``REV``
 (a single-file ``tnsim/qasm.py``), loaded from ``git show`` into a throw-away
@@ -40,13 +42,19 @@ ROOT = Path(__file__).resolve().parent.parent
 
 
 def make_program(
-    num_gates: int, num_qubits: int = 1000, seed: int = 0, general: bool = False
+    num_gates: int,
+    num_qubits: int = 1000,
+    seed: int = 0,
+    general: bool = False,
+    distinct: bool = False,
 ) -> str:
     """Return an OpenQASM 2.0 program of ``num_gates`` gate statements."""
     one, two = ("U(pi/2, 0, pi)", "rzz(0.6/2)") if general else ("h", "rzz(0.3)")
     rng = np.random.default_rng(seed)
     lines = ["OPENQASM 2.0;", 'include "qelib1.inc";', f"qreg q[{num_qubits}];"]
     for k in range(num_gates):
+        if distinct:
+            one, two = f"U(pi/2, 0, {k}/3)", f"rzz({k}/7)"
         if k % 100 == 99:
             lines.append(f"rz(pi/4) q[{int(rng.integers(num_qubits))}];")
         elif k % 2:
@@ -88,11 +96,12 @@ def main() -> None:
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--general", action="store_true", help="statements with expressions")
+    parser.add_argument("--distinct", action="store_true", help="no repeated expressions")
     parser.add_argument("--baseline", metavar="REV", help="also time the reader at git REV")
     parser.add_argument("--profile", action="store_true", help="cProfile the current reader")
     args = parser.parse_args()
-    text = make_program(args.gates, seed=args.seed, general=args.general)
-    form = "general" if args.general else "simple"
+    text = make_program(args.gates, seed=args.seed, general=args.general, distinct=args.distinct)
+    form = ("distinct " if args.distinct else "") + ("general" if args.general else "simple")
     print(
         f"{args.gates} {form} statements, {len(text) / 1e6:.1f} MB, best CPU time of {args.repeats}"
     )
