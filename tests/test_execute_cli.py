@@ -73,3 +73,23 @@ def test_bad_run_options_exit_2_with_one_line(circuit_and_file, capsys, args, ma
     assert main(["amp", *_bit_args(path), *args]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and match in err[0]
+
+
+@pytest.mark.parametrize(
+    "command",
+    [
+        ["marginal", "--qubits", "0,3"],
+        ["expect", "--observable", "0.5 Z0 Z1 - 1.2 X3"],
+    ],
+)
+def test_query_subcommands_take_run_options(circuit_and_file, capsys, tmp_path, command):
+    _, path = circuit_and_file
+    argv = [command[0], path, *command[1:], "--json"]
+    assert main(argv) == 0
+    plain = capsys.readouterr().out
+    opts = ["--memory", "1GiB", "--workers", "1", "--checkpoint", str(tmp_path / "q")]
+    assert main([*argv, *opts]) == 0
+    assert capsys.readouterr().out == plain
+    assert os.listdir(tmp_path / "q")
+    assert main([*argv, "--memory", "64"]) == 2  # bytes
+    assert "smallest limit" in capsys.readouterr().err

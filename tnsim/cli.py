@@ -224,6 +224,8 @@ def build_parser() -> argparse.ArgumentParser:
     from .cli_queries import add_query_commands
 
     add_query_commands(sub)
+    for name in ("marginal", "expect", "sample", "xeb"):
+        add_run_arguments(sub.choices[name])
     return parser
 
 
