@@ -266,3 +266,12 @@ def test_run_all_quick_smoke(tmp_path):
         "crossover_quick.json",
     ):
         assert (tmp_path / name).is_file()
+
+
+def test_crossover_is_first_size_after_the_last_loss():
+    crossover = _load("crossover")
+    rows = [{"qubits": n, "speedup": s} for n, s in [(9, 0.5), (12, 1.5), (14, 0.9), (16, 3.0)]]
+    assert crossover.crossover(rows) == 16
+    rows.append({"qubits": 26, "speedup": None})  # dense not run: ignored
+    assert crossover.crossover(rows) == 16
+    assert crossover.crossover([{"qubits": 9, "speedup": 0.5}]) is None
