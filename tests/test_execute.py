@@ -205,3 +205,24 @@ def test_progress_bar_only_when_asked(sliced_case, capsys):
     execute(network, tree, sliced, chunk_size=2, progress=True)
     err = capsys.readouterr().err
     assert "8/8" in err and "slice" in err and "GFLOP/s" in err
+
+
+def test_script_without_main_guard_gets_a_clear_error(tmp_path):
+    # Worker processes are started with 'spawn' and re-import the main script
+    # (Python docs, multiprocessing, "Safe importing of main module").
+    import subprocess
+    import sys
+
+    script = tmp_path / "noguard.py"
+    script.write_text(
+        "import numpy as np\n"
+        "from tnsim.execute import execute\n"
+        "from tnsim.network import TensorNetwork\n"
+        "from tnsim.plan import greedy_tree\n"
+        "tn = TensorNetwork([np.ones((2, 2))] * 2, [(0, 1), (1, 2)], dict.fromkeys(range(3), 2))\n"
+        "tree = greedy_tree(tn.indices, tn.output, tn.size)\n"
+        "execute(tn, tree, [0, 1], chunk_size=1, workers=2)\n"
+    )
+    run = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=120)
+    assert run.returncode != 0
+    assert "SliceError" in run.stderr and '__name__ == "__main__"' in run.stderr

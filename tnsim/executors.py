@@ -26,6 +26,7 @@ import multiprocessing
 import os
 from collections.abc import Callable, Sequence
 from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
 from typing import Any
 
 from .errors import TnsimError
@@ -125,6 +126,19 @@ def _worker_environment():
                 os.environ[key] = value
 
 
+def _result(future, local: bool) -> Any:
+    try:
+        return future.result()
+    except BrokenProcessPool as exc:
+        if not local:
+            raise
+        raise SliceError(
+            f"a local worker process stopped abruptly ({exc}); if this runs from a script, "
+            'put the script\'s code under `if __name__ == "__main__":` (worker processes '
+            "are started with 'spawn' and import the main module), or use workers=1"
+        ) from exc
+
+
 def run_chunks(
     fn: Callable[[Any, int, int], Any],
     job: Any,
@@ -174,7 +188,7 @@ def run_chunks(
         with _worker_environment() if own is not None else contextlib.nullcontext():
             futures = {executor.submit(_call, fn, ref, *bounds[i]): i for i in todo}
         for fut in as_completed(futures):
-            on_result(futures[fut], fut.result())
+            on_result(futures[fut], _result(fut, own is not None))
         failed = False
     finally:
         if failed:
