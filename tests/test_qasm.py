@@ -7,6 +7,7 @@ Language", arXiv:1707.03429 (2017); the statements exercised below follow its gr
 
 from __future__ import annotations
 
+import contextlib
 import math
 import time
 
@@ -15,6 +16,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import tnsim.qasm.reader as qasm_reader
 from tnsim import read_qasm, write_qasm
 from tnsim.circuit import Circuit, Operation
 from tnsim.errors import InputError, QasmError
@@ -579,26 +581,35 @@ def test_fast_path_changes_nothing_but_speed(monkeypatch_fast, program):
 
 @pytest.fixture(scope="module")
 def monkeypatch_fast():
-    import contextlib
-
-    import tnsim.qasm.reader as reader
+    """A context in which the reader's fast path takes no statement at all."""
 
     @contextlib.contextmanager
     def general_parser_only():
-        saved = reader.read_simple_statements
-        reader.read_simple_statements = lambda text, pos, *rest: pos
+        saved = qasm_reader.read_simple_statements
+        qasm_reader.read_simple_statements = lambda text, pos, *rest: pos
         try:
             yield
         finally:
-            reader.read_simple_statements = saved
+            qasm_reader.read_simple_statements = saved
 
     return general_parser_only
 
 
-def test_fast_path_is_used_and_agrees_on_a_long_program(monkeypatch_fast):
+def test_fast_path_is_used_and_agrees_on_a_long_program(monkeypatch, monkeypatch_fast):
     lines = [f"rzz({k / 7!r}) q[{k % 2}], r[{k % 3}];\nh r[{k % 3}];" for k in range(300)]
     text = PRE + "\n".join(lines) + "\nmeasure q[1] -> c[1];\n"
+    taken = []
+    real = qasm_reader.read_simple_statements
+
+    def counting(text, pos, *rest):
+        end = real(text, pos, *rest)
+        taken.append(text[pos:end].count(";"))
+        return end
+
+    monkeypatch.setattr(qasm_reader, "read_simple_statements", counting)
     fast = read_qasm(text).ops
+    monkeypatch.undo()
     with monkeypatch_fast():
         general = read_qasm(text).ops
     assert fast == general and len(fast) == 600
+    assert sum(taken) == 600  # every gate statement went by the fast path
