@@ -129,13 +129,20 @@ def test_failing_slice_is_named(sliced_case, monkeypatch):
         execute(network, tree, sliced, chunk_size=2)
 
 
-def test_normalize_in_place_matches_normalize():
+@pytest.mark.parametrize("dtype", [np.complex64, np.complex128])
+@pytest.mark.parametrize("scale", [-140, -70, 0, 3, 90, 120])
+def test_normalize_in_place_matches_normalize(dtype, scale):
+    # Scaling by a power of two is exact for normal results and correctly rounded for
+    # subnormal ones, whether done by multiplication or ldexp (IEEE 754-2019, sec. 5.3.3
+    # scaleB and sec. 5.4.1 multiplication).
     rng = np.random.default_rng(0)
-    x = (rng.normal(size=50) + 1j * rng.normal(size=50)) * 2.0**-70
+    x = rng.normal(size=50) + 1j * rng.normal(size=50)
+    x[:5] *= 2.0**-60  # components far below the peak: subnormal after scaling in complex64
+    x = (x * 2.0**scale).astype(dtype)
     ref, e = normalize(x)
     got, e2 = ex._normalize_owned(x.copy())
     assert e == e2 and ref.tobytes() == got.tobytes()
-    assert 0.5 <= np.max(np.abs(ref.view(np.float64))) < 1
+    assert 0.5 <= np.max(np.abs(ref.view(ref.real.dtype))) < 1
 
 
 def test_chunk_bounds_cover_every_slice_once():
