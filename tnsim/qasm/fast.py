@@ -3,9 +3,9 @@
 One regex matches a whole statement (after blanks and comments) straight from
 the text.  Plain numbers are read without tokens; other parameter lists (no
 parentheses inside) go to a callback that parses them with the general
-expression parser, and their values are remembered by text.  A statement it
-cannot settle for certain (an erroneous parameter list, a whole-register
-argument, an unknown
+expression parser.  Values are remembered by the text of the list (up to
+4096 lists, then forgotten at once).  A statement it cannot settle for
+certain (an erroneous parameter list, a whole-register argument, an unknown
 gate or register, a repeated qubit, a measured qubit, the operation cap, an
 arithmetic failure inside a definition) is left to the general parser, which
 then reads it, or reports it, exactly as it always does.  So the fast path
@@ -42,10 +42,8 @@ _ONE_NUMBER_RE = re.compile(rf"{_B}{_NUMBER_RE.pattern}{_B}", re.ASCII)
 _BLANKS = " \t\r\f\v"
 
 
-def _numbers(text: str | None) -> tuple[float, ...] | None:
+def _numbers(text: str) -> tuple[float, ...] | None:
     """The values of a parameter list of plain signed numbers, else ``None``."""
-    if text is None:
-        return ()
     if _ONE_NUMBER_RE.fullmatch(text) is not None:
         value = float(text)
         return (value,) if isfinite(value) else None
@@ -112,16 +110,17 @@ def read_simple_statements(
         gate = builtin(groups[0]) or defined(groups[0])
         if gate is None or program.op_count + gate.size > program.max_ops:
             break
-        values = _numbers(groups[1])
+        values = () if groups[1] is None else cache.get(groups[1])
         if values is None:
-            values = cache.get(groups[1])
+            values = _numbers(groups[1])
             if values is None:
                 values = expressions(match.start(2), match.end(2))
-                if values is not None:
-                    if len(cache) >= _CACHE_SIZE:
-                        cache.clear()
-                    cache[groups[1]] = values
-        if values is None or len(values) != gate.num_params:
+                if values is None:
+                    break
+            if len(cache) >= _CACHE_SIZE:
+                cache.clear()
+            cache[groups[1]] = values
+        if len(values) != gate.num_params:
             break
         qubits = _qubits(qregs, groups)
         if qubits is None or len(qubits) != gate.num_qubits:
