@@ -5,10 +5,11 @@ Not part of the tnsim library.  The file has one 1,000-qubit register and
 qubits drawn with a seeded generator (``--seed``), plus a line of ``rz(pi/4)``
 every 100 statements.  Such simple statements are read by the reader's fast
 path; ``--general`` writes ``rzz(0.6/2) q[i], q[j];`` and
-``U(pi/2, 0, pi) q[i];`` instead, whose expressions send every statement
-through the lexer and the expression parser; the reader remembers the values
-of a parameter list by its text, so ``--distinct`` makes every expression
-different (``rzz(k/7) ...`` and ``U(pi/2, 0, k/3) ...`` for statement ``k``).
+``U(pi/2, 0, pi) q[i];`` instead, whose expressions go through the lexer and
+the expression parser.  The reader remembers the values of a parameter list by
+its text, so ``--distinct`` makes every list different: ``rzz(<k/7>)`` with
+the number written out (simple), or ``rzz(k/7)`` and ``U(pi/2, 0, k/3)``
+(general), for statement ``k``.
 
 ``--baseline REV`` also times the reader as it was at git revision ``REV``
 (a single-file ``tnsim/qasm.py``), loaded from ``git show`` into a throw-away
@@ -53,8 +54,10 @@ def make_program(
     rng = np.random.default_rng(seed)
     lines = ["OPENQASM 2.0;", 'include "qelib1.inc";', f"qreg q[{num_qubits}];"]
     for k in range(num_gates):
-        if distinct:
+        if distinct and general:
             one, two = f"U(pi/2, 0, {k}/3)", f"rzz({k}/7)"
+        elif distinct:
+            two = f"rzz({k / 7!r})"
         if k % 100 == 99:
             lines.append(f"rz(pi/4) q[{int(rng.integers(num_qubits))}];")
         elif k % 2:
