@@ -233,3 +233,16 @@ def test_script_without_main_guard_gets_a_clear_error(tmp_path):
     run = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=120)
     assert run.returncode != 0
     assert "SliceError" in run.stderr and '__name__ == "__main__"' in run.stderr
+
+
+def test_rescaling_rule_does_not_change_bits(sliced_case, monkeypatch):
+    # Scaling by a power of two is exact outside the subnormal range (IEEE 754-2019,
+    # sec. 5.3.3), so rescaling every intermediate or only out-of-range ones agrees.
+    _, _, network, tree, _ = sliced_case(16, 110, seed=4)
+    lazy = ex.contract_tree(network.arrays, tree)
+    monkeypatch.setattr(ex, "SLACK", 0)
+    eager = ex.contract_tree(network.arrays, tree)
+    assert lazy.exponent == eager.exponent and lazy.mantissa.tobytes() == eager.mantissa.tobytes()
+    monkeypatch.setattr(ex, "SLACK", 1000)  # never rescale in between
+    never = ex.contract_tree(network.arrays, tree)
+    assert never.mantissa.tobytes() == eager.mantissa.tobytes()

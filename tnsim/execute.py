@@ -1,8 +1,11 @@
 """Run a contraction tree: pairwise contractions as batched matrix products.
 
-Every intermediate is kept with a power-of-two scale: after each pairwise
-contraction the array is divided by ``2**e`` (exactly, with ``numpy.ldexp``) so its
-largest component lies in ``[0.5, 1)``, and ``e`` is added to a running exponent.
+Every intermediate is kept with a power-of-two scale: when the largest component
+of a pairwise contraction's result leaves ``[2**-32, 2**32]``, the array is divided
+by ``2**e`` (exactly: a power-of-two scaling) so that component lies in
+``[0.5, 1)``, and ``e`` is added to a running exponent; the final result is always
+brought to ``[0.5, 1)``.  Floating-point products are unchanged by exact
+power-of-two scalings, so the rescaling rule does not alter a result's bits.
 Amplitudes of very wide circuits (``|a|`` near ``2**(-n/2)``) therefore keep
 their log-magnitude and phase even when the value itself underflows.
 """
@@ -362,8 +365,16 @@ def contract_tree(
     return Scaled(root, exponent + e)
 
 
-def _normalize_owned(array: np.ndarray) -> tuple[np.ndarray, int]:
-    """:func:`normalize` in place, for a freshly computed intermediate."""
+#: Intermediates whose largest component lies in ``[2**-SLACK, 2**SLACK]`` are not rescaled.
+SLACK = 32
+
+
+def _normalize_owned(array: np.ndarray, slack: int = 0) -> tuple[np.ndarray, int]:
+    """:func:`normalize` in place, for a freshly computed intermediate.
+
+    With ``slack``, an array whose peak exponent ``e`` has ``|e| <= slack`` is
+    left as it is (``e = 0`` is returned).
+    """
     flat = array.reshape(-1)
     if np.iscomplexobj(flat):
         flat = flat.view(flat.real.dtype)
@@ -373,6 +384,8 @@ def _normalize_owned(array: np.ndarray) -> tuple[np.ndarray, int]:
     if peak == 0.0 or not math.isfinite(peak):
         return array, 0
     e = math.frexp(peak)[1]
+    if abs(e) <= slack:
+        return array, 0
     if -100 <= e <= 100:  # 2**-e is a normal number even in float32: multiply (SIMD, exact)
         np.multiply(flat, flat.dtype.type(math.ldexp(1.0, -e)), out=flat)
     elif e:
@@ -386,7 +399,7 @@ def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
     for (x, y), step in zip(tree.path, steps):
         c = apply_step(step, nodes[x], nodes[y])
         nodes[x] = nodes[y] = None
-        c, e = _normalize_owned(c)
+        c, e = _normalize_owned(c, SLACK)
         exponent += e
         nodes.append(c)
     return nodes[-1], exponent
