@@ -89,14 +89,22 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description="Reproduce the README's benchmark figures.")
     ap.add_argument("--quick", action="store_true", help="small smoke run (< 2 minutes)")
     ap.add_argument("--out", help="output folder (default benchmarks/results)")
+    ap.add_argument("--only", help="comma-separated step names to run (default: all)")
     args = ap.parse_args(argv)
     out = os.path.abspath(args.out or os.path.join(HERE, "results"))
+    todo = steps(args.quick, out)
+    if args.only:
+        wanted = [w.strip() for w in args.only.split(",") if w.strip()]
+        unknown = sorted(set(wanted) - {name for name, _ in todo})
+        if unknown:
+            ap.error(f"--only: no step {unknown[0]!r}; steps: {', '.join(n for n, _ in todo)}")
+        todo = [(name, cmd) for name, cmd in todo if name in wanted]
     os.makedirs(out, exist_ok=True)
     if not args.quick:
         os.makedirs(os.path.join(ROOT, "docs"), exist_ok=True)
     env = {**os.environ, "PYTHONPATH": ROOT + os.pathsep + os.environ.get("PYTHONPATH", "")}
     failed = []
-    for name, cmd in steps(args.quick, out):
+    for name, cmd in todo:
         t0 = time.perf_counter()
         shown = " ".join(os.path.relpath(c, ROOT) if c.startswith(ROOT) else c for c in cmd[1:])
         print(f"== {name}: {shown}", flush=True)

@@ -243,21 +243,26 @@ def test_gen_list(capsys):
     assert all(name in out for name in FAMILIES)
 
 
-def test_run_all_quick_smoke(tmp_path):
-    # The CI smoke run of benchmarks/run_all.py.
-    result = subprocess.run(
+def _run_all(tmp_path, *extra):
+    return subprocess.run(
         [
             sys.executable,
             os.path.join(ROOT, "benchmarks", "run_all.py"),
             "--quick",
             "--out",
             str(tmp_path),
+            *extra,
         ],
         capture_output=True,
         text=True,
-        timeout=300,
+        timeout=600,
         cwd=ROOT,
     )
+
+
+def test_run_all_quick_own_steps(tmp_path):
+    # The smoke run of this module's benchmark steps (the others' take longer: see below).
+    result = _run_all(tmp_path, "--only", "bench_grid,bench_qaoa,crossover")
     assert result.returncode == 0, result.stderr[-3000:]
     for name in (
         "bench_grid_quick.csv",
@@ -266,6 +271,20 @@ def test_run_all_quick_smoke(tmp_path):
         "crossover_quick.json",
     ):
         assert (tmp_path / name).is_file()
+
+
+@pytest.mark.slow
+def test_run_all_quick_smoke(tmp_path):
+    # The CI smoke run of benchmarks/run_all.py, every committed script included.
+    result = _run_all(tmp_path)
+    assert result.returncode == 0, result.stderr[-3000:]
+    assert (tmp_path / "crossover_quick.md").is_file()
+
+
+def test_run_all_only_rejects_unknown_step(tmp_path):
+    result = _run_all(tmp_path, "--only", "nope")
+    assert result.returncode == 2 and "no step 'nope'" in result.stderr
+    assert os.listdir(tmp_path) == []
 
 
 def test_crossover_is_first_size_after_the_last_loss():
