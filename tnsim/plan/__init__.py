@@ -1,22 +1,41 @@
 """Contraction planning: trees, their cost, and the planners that choose them.
 
 :func:`make_plan` is the single entry point the queries use: network in, :class:`Plan` out.
+Planners: :func:`greedy_tree` (opt_einsum greedy), :mod:`.elimination` (treewidth
+heuristics on the index graph), :mod:`.partition` (recursive bisection, spectral
+sweeps), :mod:`.reoptimize` (exact re-planning of sub-trees), :mod:`.search` (the
+seeded search driver), :mod:`.slicing`.
 """
 
 from __future__ import annotations
 
+import math
+import time
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
+import opt_einsum.paths as oe_paths
+
+from ..errors import InputError, ResourceLimitError
 from ..network import TensorNetwork
 from .greedy import greedy_tree
-from .tree import ContractionTree
+from .reoptimize import reoptimize_path
+from .search import search_path
+from .slicing import choose_slices
+from .tree import ContractionTree, linear_to_ssa, tree_cost
 
-__all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan"]
+__all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_path"]
+
+EXACT_MAX_TENSORS = 14
+"""Networks with at most this many tensors are planned exactly (opt_einsum ``dp``)."""
+
+SEARCH_THRESHOLD_FLOPS = 1e9
+"""A greedy tree cheaper than this many FLOPs is kept without further search."""
 
 
 @dataclass(frozen=True)
 class Plan:
-    """A contraction tree plus the labels to slice over.
+    """A contraction tree plus the labels to slice over, with the plan's cost.
 
     Attributes
     ----------
@@ -24,34 +43,233 @@ class Plan:
         Order of pairwise contractions over the network's tensors.
     sliced : tuple of int
         Labels fixed to each of their values in turn; the slices are summed.
+    flops : int
+        Real FLOPs of the whole plan (every slice, plus summing the slices;
+        a complex multiply-add is 8).
+    peak_bytes : int
+        Largest total bytes of intermediates alive at once within one slice
+        (inputs not counted).
+    width : float
+        ``log2`` of the largest intermediate of one slice, in elements.
+    num_slices : int
+        Number of slices (1 if none).
+    overhead : float
+        ``flops / unsliced_flops`` (1.0 without slicing).
+    unsliced_flops, unsliced_peak_bytes : int
+        The same tree's figures without slicing.
+    itemsize : int
+        Bytes per element used for the byte figures.
+    method : str
+        Planner that produced the tree.
+    seconds : float
+        Planning time.
     """
 
     tree: ContractionTree
     sliced: tuple[int, ...] = ()
+    flops: int = 0
+    peak_bytes: int = 0
+    width: float = 0.0
+    num_slices: int = 1
+    overhead: float = 1.0
+    unsliced_flops: int = 0
+    unsliced_peak_bytes: int = 0
+    itemsize: int = 16
+    method: str = ""
+    seconds: float = 0.0
+
+    @property
+    def largest_bytes(self) -> int:
+        """Bytes of the largest intermediate of one slice."""
+        return int(round(2.0**self.width)) * self.itemsize if self.width else 0
+
+
+def _exact_path(inputs, output, size) -> tuple[tuple[int, int], ...]:
+    """opt_einsum's exact dynamic programming (outer products allowed) on a small network."""
+    ins = [frozenset(ix) for ix in inputs]
+    opt = oe_paths.DynamicProgramming(minimize="flops", search_outer=True)
+    linear = opt(ins, frozenset(output), dict(size))
+    return linear_to_ssa(linear, len(ins))
+
+
+def _default_budget(flops: int) -> float:
+    """Seconds of search worth spending on a tree whose greedy cost is ``flops``."""
+    return float(min(30.0, max(0.3, flops / 1e11)))
+
+
+def plan_path(
+    inputs: Sequence[Sequence[int]],
+    output: Sequence[int],
+    size: Mapping[int, int],
+    *,
+    time_budget: float | None = None,
+    seed: int = 0,
+    memory_limit: int | None = None,
+    itemsize: int = 16,
+    max_trials: int | None = None,
+    progress: bool = False,
+) -> tuple[tuple[tuple[int, int], ...], str]:
+    """Choose an SSA path for a network given as label lists; return it and the planner's name.
+
+    Small networks (at most :data:`EXACT_MAX_TENSORS` tensors) are planned
+    exactly; otherwise greedy is tried first and kept if it costs under
+    :data:`SEARCH_THRESHOLD_FLOPS` (unless a ``time_budget`` is given), and the
+    search driver runs for ``time_budget`` seconds (default: grows with the
+    greedy cost, 0.3 to 30 s).
+
+    Examples
+    --------
+    >>> plan_path([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2})
+    (((1, 2), (0, 3)), 'exact')
+    """
+    n = len(inputs)
+    if n <= 1:
+        return (), "trivial"
+    if n <= EXACT_MAX_TENSORS and time_budget is None:
+        return _exact_path(inputs, output, size), "exact"
+    greedy = greedy_tree(inputs, output, size).path
+    cost = tree_cost(inputs, output, size, greedy, itemsize=itemsize)
+    fits = memory_limit is None or cost.peak_bytes <= memory_limit
+    if time_budget is None and max_trials is None and cost.flops < SEARCH_THRESHOLD_FLOPS and fits:
+        return greedy, "greedy"
+    budget = _default_budget(cost.flops) if time_budget is None else time_budget
+    result = search_path(
+        inputs,
+        output,
+        size,
+        time_budget=budget,
+        max_trials=max_trials,
+        seed=seed,
+        memory_limit=memory_limit,
+        itemsize=itemsize,
+        progress=progress,
+    )
+    return result.path, result.method
 
 
 def make_plan(
     network: TensorNetwork,
     *,
-    memory_limit: int | None = None,
+    memory_limit: int | str | None = None,
     time_budget: float | None = None,
     seed: int = 0,
+    max_trials: int | None = None,
+    progress: bool = False,
 ) -> Plan:
-    """Choose a contraction plan for ``network``.
+    """Choose a contraction plan for ``network``, sliced to fit ``memory_limit``.
 
     Parameters
     ----------
     network : TensorNetwork
         The (simplified) network to plan.
-    memory_limit : int, optional
-        Bytes the live intermediates may use; the plan is sliced to fit.
+    memory_limit : int or str, optional
+        Bytes (or text such as ``"4GiB"``) that one slice's live intermediates
+        may use; the plan is sliced to fit.  Inputs are not counted.
     time_budget : float, optional
-        Seconds the planner may search.
+        Seconds the planner may search (default: tiny networks are planned
+        exactly and at once; larger ones get a budget growing with their
+        greedy cost, see :func:`plan_path`).
     seed : int
-        Seed of every random choice (same seed, same plan).
+        Seed of every random choice (same seed and a binding ``max_trials``:
+        same plan).
+    max_trials : int, optional
+        Limit on the search's trials.
+    progress : bool
+        Show a progress bar while searching.
 
     Returns
     -------
     Plan
+
+    Raises
+    ------
+    ResourceLimitError
+        If no slicing fits ``memory_limit``; nothing has been allocated.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> tn = TensorNetwork([np.ones((2, 2))] * 3, [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
+    >>> p = make_plan(tn)
+    >>> p.tree.path, p.flops, p.num_slices
+    (((1, 2), (0, 3)), 96, 1)
     """
-    return Plan(greedy_tree(network.indices, network.output, network.size))
+    start = time.perf_counter()
+    limit = _limit(memory_limit)
+    itemsize = int(network.dtype.itemsize)
+    inputs = tuple(tuple(ix) for ix in network.indices)
+    size = dict(network.size)
+    path, method = plan_path(
+        inputs,
+        network.output,
+        size,
+        time_budget=time_budget,
+        seed=seed,
+        memory_limit=limit,
+        itemsize=itemsize,
+        max_trials=max_trials,
+        progress=progress,
+    )
+    tree = ContractionTree(inputs, tuple(network.output), size, tuple(path))
+    return _finish(tree, limit, itemsize, method, start)
+
+
+def _limit(memory_limit: int | str | None) -> int | None:
+    if memory_limit is None:
+        return None
+    if isinstance(memory_limit, str):
+        from ..memory import parse_memory
+
+        return parse_memory(memory_limit)
+    if isinstance(memory_limit, bool) or not isinstance(memory_limit, (int, float)):
+        raise InputError(f"memory_limit must be bytes or text such as '4GiB', got {memory_limit!r}")
+    if memory_limit <= 0:
+        raise InputError(f"memory_limit must be positive, got {memory_limit!r}")
+    return int(memory_limit)
+
+
+def _finish(
+    tree: ContractionTree, limit: int | None, itemsize: int, method: str, start: float
+) -> Plan:
+    """Slice ``tree`` to fit ``limit`` and fill in the plan's cost fields."""
+    full = tree.cost(itemsize=itemsize)
+    sliced: tuple[int, ...] = ()
+    cost, num = full, 1
+    if limit is not None and full.peak_bytes > limit:
+        try:
+            sliced, cost, num = choose_slices(
+                tree.inputs, tree.output, tree.size, tree.path, limit, itemsize=itemsize
+            )
+        except ResourceLimitError as exc:
+            raise ResourceLimitError(
+                f"no plan fits a memory limit of {limit} bytes: {exc}"
+            ) from None
+        tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize)
+    out_numel = math.prod(tree.size[i] for i in tree.output)
+    flops = cost.flops * num + 2 * out_numel * (num - 1)
+    return Plan(
+        tree=tree,
+        sliced=tuple(sliced),
+        flops=flops,
+        peak_bytes=cost.peak_bytes,
+        width=cost.width,
+        num_slices=num,
+        overhead=flops / full.flops if full.flops else 1.0,
+        unsliced_flops=full.flops,
+        unsliced_peak_bytes=full.peak_bytes,
+        itemsize=itemsize,
+        method=method,
+        seconds=time.perf_counter() - start,
+    )
+
+
+def _reoptimize_sliced(tree, sliced, cost, limit, itemsize):
+    """Re-plan sub-trees of the sliced tree; keep the result if it still fits."""
+    gone = set(sliced)
+    ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
+    out = tuple(i for i in tree.output if i not in gone)
+    new = reoptimize_path(ins, out, tree.size, tree.path, max_leaves=8, passes=1, time_budget=2.0)
+    new_cost = tree_cost(ins, out, tree.size, new, itemsize=itemsize)
+    if new_cost.flops < cost.flops and new_cost.peak_bytes <= limit:
+        return ContractionTree(tree.inputs, tree.output, tree.size, new), new_cost
+    return tree, cost

@@ -1,0 +1,118 @@
+"""Incremental construction of an SSA contraction path with label bookkeeping.
+
+Planners that build a tree step by step (elimination orders, bisection,
+sub-tree re-planning) share this helper: it knows, after any set of joins,
+which labels each live node still carries.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Mapping, Sequence
+
+import opt_einsum.paths as oe_paths
+
+__all__ = ["PathBuilder"]
+
+
+class PathBuilder:
+    """Live nodes of a partly contracted network.
+
+    Parameters
+    ----------
+    inputs : sequence of sequence of int
+        Labels of each leaf.
+    output : iterable of int
+        Open labels.
+    size : mapping
+        Dimension of every label.
+
+    Examples
+    --------
+    >>> b = PathBuilder([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2})
+    >>> sorted(b.labels[b.join(1, 2)])
+    [1]
+    >>> b.finish_greedy()
+    ((1, 2), (0, 3))
+    """
+
+    def __init__(
+        self, inputs: Sequence[Iterable[int]], output: Iterable[int], size: Mapping[int, int]
+    ):
+        self.n = len(inputs)
+        self.labels: list[frozenset[int]] = [frozenset(ix) for ix in inputs]
+        self.holders: dict[int, set[int]] = {}
+        for t, ix in enumerate(self.labels):
+            for i in ix:
+                self.holders.setdefault(i, set()).add(t)
+        self.out = frozenset(output)
+        self.size = size
+        self.path: list[tuple[int, int]] = []
+        self.alive: set[int] = set(range(self.n))
+
+    def numel(self, labels: Iterable[int]) -> int:
+        """Number of elements of a tensor with these labels."""
+        return math.prod(self.size[i] for i in labels)
+
+    def merged(self, x: int, y: int) -> frozenset[int]:
+        """Labels of the result of joining live nodes ``x`` and ``y``."""
+        hold = self.holders
+        out = self.out
+        return frozenset(
+            i
+            for i in self.labels[x] | self.labels[y]
+            if i in out or len(hold[i]) > (x in hold[i]) + (y in hold[i])
+        )
+
+    def join(self, x: int, y: int) -> int:
+        """Contract live nodes ``x`` and ``y``; return the new node's id."""
+        new = self.n + len(self.path)
+        res = self.merged(x, y)
+        for i in self.labels[x] | self.labels[y]:
+            self.holders[i].discard(x)
+            self.holders[i].discard(y)
+        for i in res:
+            self.holders[i].add(new)
+        self.labels.append(res)
+        self.path.append((x, y))
+        self.alive -= {x, y}
+        self.alive.add(new)
+        return new
+
+    def external(self, group: Iterable[int]) -> frozenset[int]:
+        """Labels of ``group`` needed outside it (other live nodes or the output)."""
+        g = set(group)
+        both = set().union(*(self.labels[t] for t in g)) if g else set()
+        return frozenset(i for i in both if i in self.out or self.holders[i] - g)
+
+    def join_greedy(self, group: Sequence[int]) -> int:
+        """Contract ``group`` into one node with opt_einsum's greedy order; return its id."""
+        group = list(group)
+        if len(group) == 1:
+            return group[0]
+        ins = [self.labels[t] for t in group]
+        outs = self.external(group)
+        sizes = {i: self.size[i] for ix in ins for i in ix}
+        linear = oe_paths.greedy(ins, outs, sizes)
+        return self.apply_linear(group, linear)
+
+    def apply_linear(self, group: Sequence[int], linear: Sequence[Sequence[int]]) -> int:
+        """Apply a linear path over ``group`` (positions index the current group list)."""
+        ids = list(group)
+        for step in linear:
+            picked = [ids[p] for p in sorted(step)]
+            for p in sorted(step, reverse=True):
+                del ids[p]
+            cur = picked[0]
+            for other in picked[1:]:
+                cur = self.join(cur, other)
+            ids.append(cur)
+        while len(ids) > 1:
+            ids.append(self.join(ids.pop(0), ids.pop(0)))
+        return ids[0]
+
+    def finish_greedy(self) -> tuple[tuple[int, int], ...]:
+        """Join every live node greedily and return the whole SSA path."""
+        if len(self.alive) > 1:
+            self.join_greedy(sorted(self.alive))
+        return tuple(self.path)

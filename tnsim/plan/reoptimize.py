@@ -1,0 +1,193 @@
+"""Local improvement of a contraction tree: re-plan small sub-trees exactly.
+
+For an internal node, its sub-tree is cut at a frontier of at most
+``max_leaves`` nodes (the largest nodes are expanded first); the frontier is a
+small self-contained network whose output is the node's labels.  opt_einsum's
+exact planners (``optimal`` for a few leaves, ``dp`` for more) re-order it and
+the new sub-tree replaces the old one when it costs fewer FLOPs under
+:mod:`tnsim.plan.tree`'s model.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Mapping, Sequence
+
+import opt_einsum.paths as oe_paths
+
+from .tree import linear_to_ssa, step_labels, tree_cost
+
+__all__ = ["reoptimize_path", "step_flops"]
+
+
+def step_flops(a: frozenset, b: frozenset, keep: frozenset, size: Mapping[int, int]) -> int:
+    """FLOPs of joining label sets ``a`` and ``b`` into ``keep`` (the model of :mod:`.tree`).
+
+    Examples
+    --------
+    >>> step_flops(frozenset({0, 1}), frozenset({1, 2}), frozenset({0, 2}), {0: 2, 1: 3, 2: 4})
+    192
+    """
+    a2 = frozenset(i for i in a if i in b or i in keep)
+    b2 = frozenset(i for i in b if i in a or i in keep)
+    f = 8 * math.prod(size[i] for i in a2 | b2)
+    if a2 != a:
+        f += 2 * (math.prod(size[i] for i in a) - math.prod(size[i] for i in a2))
+    if b2 != b:
+        f += 2 * (math.prod(size[i] for i in b) - math.prod(size[i] for i in b2))
+    return f
+
+
+class _Tree:
+    def __init__(self, inputs, output, size, path):
+        self.n = len(inputs)
+        self.size = size
+        self.labels = step_labels(inputs, output, path)
+        self.children: dict[int, tuple[int, int]] = {}
+        for s, (x, y) in enumerate(path):
+            self.children[self.n + s] = (x, y)
+        self.root = self.n + len(path) - 1 if path else None
+        self.flops = {
+            v: step_flops(self.labels[x], self.labels[y], self.labels[v], size)
+            for v, (x, y) in self.children.items()
+        }
+
+    def numel(self, v: int) -> int:
+        return math.prod(self.size[i] for i in self.labels[v])
+
+    def frontier(self, v: int, k: int) -> tuple[list[int], list[int]]:
+        """Frontier of at most ``k`` nodes under ``v`` and the internal nodes above it."""
+        front = list(self.children[v])
+        inner = [v]
+        while len(front) < k:
+            cand = [u for u in front if u in self.children]
+            if not cand:
+                break
+            u = max(cand, key=lambda t: (self.numel(t), t))
+            front.remove(u)
+            front.extend(self.children[u])
+            inner.append(u)
+        return front, inner
+
+    def replace(self, v: int, front: list[int], inner: list[int], ssa) -> None:
+        """Rebuild ``v``'s sub-tree over ``front`` from an SSA path over it."""
+        for u in inner[1:]:
+            del self.children[u]
+            del self.flops[u]
+        ids = list(front)
+        k = len(front)
+        for s, (x, y) in enumerate(ssa):
+            last = s == len(ssa) - 1
+            node = v if last else len(self.labels)
+            a, b = ids[x], ids[y]
+            if last:
+                keep = self.labels[v]
+            else:
+                keep = _keep(self.labels, front, ssa, s, k, self.labels[v])
+                self.labels.append(keep)
+            self.children[node] = (a, b)
+            self.flops[node] = step_flops(self.labels[a], self.labels[b], keep, self.size)
+            ids.append(node)
+
+    def path(self) -> tuple[tuple[int, int], ...]:
+        """Post-order SSA path (renumbered) of the current tree."""
+        if self.root is None:
+            return ()
+        order: list[int] = []
+        stack = [(self.root, False)]
+        while stack:
+            v, seen = stack.pop()
+            if v not in self.children:
+                continue
+            if seen:
+                order.append(v)
+            else:
+                stack.append((v, True))
+                x, y = self.children[v]
+                stack.append((y, False))
+                stack.append((x, False))
+        new_id = {v: self.n + s for s, v in enumerate(order)}
+        return tuple(
+            (
+                new_id.get(self.children[v][0], self.children[v][0]),
+                new_id.get(self.children[v][1], self.children[v][1]),
+            )
+            for v in order
+        )
+
+
+def _keep(labels, front, ssa, s, k, out) -> frozenset:
+    """Labels of step ``s``'s result in a sub-network over ``front`` with output ``out``."""
+    node_labels = [labels[t] for t in front]
+    for x, y in ssa[: s + 1]:
+        a, b = node_labels[x], node_labels[y]
+        node_labels.append(None)
+        node_labels[x] = node_labels[y] = None
+        rest = set().union(*(ls for ls in node_labels if ls is not None))
+        node_labels[-1] = frozenset(i for i in a | b if i in rest or i in out)
+    return node_labels[-1]
+
+
+def reoptimize_path(
+    inputs: Sequence[Sequence[int]],
+    output: Sequence[int],
+    size: Mapping[int, int],
+    path: Sequence[tuple[int, int]],
+    *,
+    max_leaves: int = 8,
+    passes: int = 2,
+    time_budget: float | None = None,
+    min_fraction: float = 1e-6,
+) -> tuple[tuple[int, int], ...]:
+    """Improve an SSA path by re-planning sub-trees of up to ``max_leaves`` leaves exactly.
+
+    Nodes are visited from the most expensive down, skipping steps cheaper
+    than ``min_fraction`` of the total; a pass stops early once
+    ``time_budget`` seconds are spent.  The result never costs more FLOPs.
+
+    Examples
+    --------
+    >>> size = {i: 2 for i in range(5)}
+    >>> size[4] = 64
+    >>> ins = [(0, 4), (1, 4), (0, 1), (2,)]
+    >>> bad = ((0, 1), (2, 3), (4, 5))
+    >>> tree_cost(ins, (), size, reoptimize_path(ins, (), size, bad)).flops < tree_cost(
+    ...     ins, (), size, bad).flops
+    True
+    """
+    path = tuple(tuple(p) for p in path)
+    if len(path) < 2:
+        return path
+    start = time.perf_counter()
+    t = _Tree(inputs, output, size, path)
+    for _ in range(passes):
+        improved = False
+        floor = min_fraction * sum(t.flops.values())
+        for v in sorted(t.children, key=lambda u: -t.flops[u]):
+            if t.flops.get(v, 0) < floor:
+                break
+            if time_budget is not None and time.perf_counter() - start > time_budget:
+                break
+            if v not in t.children:
+                continue
+            front, inner = t.frontier(v, max_leaves)
+            if len(front) < 3:
+                continue
+            old = sum(t.flops[u] for u in inner)
+            sub_in = [t.labels[u] for u in front]
+            sub_out = t.labels[v]
+            sizes = {i: size[i] for ix in sub_in for i in ix}
+            opt = oe_paths.optimal if len(front) <= 5 else oe_paths.dynamic_programming
+            try:
+                linear = opt(list(sub_in), sub_out, sizes)
+            except (ValueError, RuntimeError):
+                continue
+            ssa = linear_to_ssa(linear, len(front))
+            new = tree_cost(sub_in, sub_out, size, ssa).flops
+            if new < old:
+                t.replace(v, front, inner, ssa)
+                improved = True
+        if not improved:
+            break
+    return t.path()

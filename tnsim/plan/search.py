@@ -1,0 +1,303 @@
+"""The search driver: many seeded planner trials under a time and trial budget.
+
+Each trial draws a planner (greedy with Boltzmann-randomised choices, an
+elimination order, recursive bisection, a spectral sweep) and random
+parameters from one ``numpy`` generator seeded once, scores the tree by the
+objective, and keeps the best.  The best tree is then improved by exact
+re-planning of its sub-trees (:mod:`.reoptimize`).  With the same seed and a
+binding ``max_trials`` the result is reproducible; a binding ``time_budget``
+depends on the machine's speed.
+"""
+
+from __future__ import annotations
+
+import heapq
+import math
+import time
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import opt_einsum.paths as oe_paths
+
+from .elimination import elimination_path
+from .partition import bisection_path, sweep_path
+from .reoptimize import reoptimize_path
+from .tree import TreeCost, tree_cost
+
+__all__ = ["SearchResult", "search_path", "random_greedy_path", "OBJECTIVES", "score"]
+
+OBJECTIVES = ("flops", "size", "combo")
+
+
+@dataclass(frozen=True)
+class SearchResult:
+    """Outcome of :func:`search_path`.
+
+    Attributes
+    ----------
+    path : tuple of (int, int)
+        Best SSA path found.
+    cost : TreeCost
+        Its cost.
+    method : str
+        Planner of the winning trial.
+    trials : int
+        Trials run.
+    seconds : float
+        Wall time spent.
+    """
+
+    path: tuple[tuple[int, int], ...]
+    cost: TreeCost
+    method: str
+    trials: int
+    seconds: float
+
+
+def score(cost: TreeCost, objective: str = "flops", memory_limit: int | None = None) -> float:
+    """Objective value of a tree's cost (lower is better).
+
+    ``flops``: the FLOPs; ``size``: the largest intermediate, then FLOPs;
+    ``combo``: ``log2 FLOPs + log2 written``.  With ``memory_limit`` (bytes) a
+    tree whose peak exceeds it is charged the slicing it would need: its FLOPs
+    times ``peak / limit`` (slicing by a factor ``k`` costs at least ``k``
+    slices of FLOPs each no smaller than ``1/k``; the factor estimates the
+    overhead from above for balanced trees).
+
+    Examples
+    --------
+    >>> c = TreeCost(800, 32, 1.0, 2, 2, 64, 16)
+    >>> score(c), score(c, memory_limit=16)
+    (800.0, 1600.0)
+    """
+    flops = float(cost.flops)
+    if memory_limit is not None and cost.peak_bytes > memory_limit:
+        flops *= cost.peak_bytes / memory_limit
+    if objective == "flops":
+        return flops
+    if objective == "size":
+        return cost.largest * 1e30 + flops
+    if objective == "combo":
+        return math.log2(max(flops, 1)) + math.log2(max(cost.written, 1))
+    raise ValueError(f"unknown objective {objective!r}; use one of {OBJECTIVES}")
+
+
+def random_greedy_path(
+    inputs: Sequence[Sequence[int]],
+    output: Sequence[int],
+    size: Mapping[int, int],
+    *,
+    temperature: float = 0.3,
+    nbranch: int = 8,
+    cost_fn: str = "memory-removed-jitter",
+    seed: int | np.random.Generator | None = 0,
+) -> tuple[tuple[int, int], ...]:
+    """Greedy pairwise joins, each drawn from the ``nbranch`` cheapest with Boltzmann weights.
+
+    Uses opt_einsum's greedy engine (``ssa_greedy_optimize``) with a chooser
+    drawing from a numpy generator (``temperature`` is relative to the cheapest
+    candidate's cost; 0 gives plain greedy).
+
+    Examples
+    --------
+    >>> random_greedy_path([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2}, seed=1)
+    ((1, 2), (0, 3))
+    """
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+
+    def choose(queue, remaining):
+        choices = []
+        while queue and len(choices) < nbranch:
+            cand = heapq.heappop(queue)
+            if cand[1] in remaining and cand[2] in remaining:
+                choices.append(cand)
+        if not choices:
+            return None
+        if len(choices) == 1 or temperature <= 0:
+            pick = 0
+        else:
+            costs = np.array([c[0][0] for c in choices], dtype=float)
+            t = temperature * max(1.0, abs(costs[0]))
+            w = np.exp(-(costs - costs[0]) / t)
+            pick = int(rng.choice(len(choices), p=w / w.sum()))
+        chosen = choices.pop(pick)
+        for other in choices:
+            heapq.heappush(queue, other)
+        return chosen
+
+    ins = [frozenset(ix) for ix in inputs]
+    if cost_fn == "memory-removed-jitter":
+
+        def cost(size12, size1, size2, k12, k1, k2):
+            return (size12 - size1 - size2) * (1 + 0.01 * rng.standard_normal())
+
+    else:
+        cost = cost_fn
+    ssa = oe_paths.ssa_greedy_optimize(
+        ins, frozenset(output), dict(size), choose_fn=choose, cost_fn=cost
+    )
+    return _pairs(ssa, len(ins))
+
+
+def _pairs(ssa, n: int) -> tuple[tuple[int, int], ...]:
+    """Make every step of an SSA path pairwise (opt_einsum may emit singletons)."""
+    out: list[tuple[int, int]] = []
+    remap: dict[int, int] = {}
+    nxt = n
+    for k, step in enumerate(ssa):
+        ids = [remap.get(t, t) for t in step]
+        if len(ids) == 1:
+            remap[n + k] = ids[0]
+            continue
+        cur = ids[0]
+        for other in ids[1:]:
+            out.append((cur, other))
+            cur = nxt
+            nxt += 1
+        remap[n + k] = cur
+    return tuple(out)
+
+
+def _trial(method: str, inputs, output, size, rng: np.random.Generator):
+    if method == "greedy":
+        return random_greedy_path(inputs, output, size, temperature=0.0, seed=rng)
+    if method == "random-greedy":
+        t = float(rng.choice([0.01, 0.03, 0.1, 0.3, 1.0]))
+        return random_greedy_path(inputs, output, size, temperature=t, seed=rng)
+    if method == "elimination":
+        return elimination_path(
+            inputs,
+            output,
+            size,
+            heuristic=str(rng.choice(["min-fill", "min-degree"])),
+            noise=float(rng.choice([0.0, 0.3, 1.0])),
+            fill_weight=float(rng.choice([0.3, 1.0, 3.0])),
+            seed=rng,
+        )
+    if method == "bisection":
+        return bisection_path(
+            inputs,
+            output,
+            size,
+            leaf_size=int(rng.choice([4, 8, 16])),
+            imbalance=float(rng.choice([0.05, 0.1, 0.2, 0.3])),
+            noise=float(rng.choice([0.0, 0.2, 0.5])),
+            seed=rng,
+        )
+    if method == "sweep":
+        return sweep_path(
+            inputs,
+            output,
+            size,
+            num_vectors=int(rng.integers(2, 9)),
+            mixes=int(rng.integers(0, 17)),
+            noise=float(rng.choice([0.0, 0.2, 0.5])),
+            seed=rng,
+        )
+    raise ValueError(f"unknown planner {method!r}")
+
+
+METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep")
+
+
+def search_path(
+    inputs: Sequence[Sequence[int]],
+    output: Sequence[int],
+    size: Mapping[int, int],
+    *,
+    time_budget: float | None = 1.0,
+    max_trials: int | None = None,
+    seed: int = 0,
+    objective: str = "flops",
+    memory_limit: int | None = None,
+    itemsize: int = 16,
+    methods: Sequence[str] = METHODS,
+    reoptimize: bool = True,
+    progress: bool = False,
+) -> SearchResult:
+    """Search for a good contraction tree with seeded random trials.
+
+    Parameters
+    ----------
+    inputs, output, size
+        The network.
+    time_budget : float or None
+        Seconds for the whole search (trials take about 70%, sub-tree
+        re-planning the rest); at least one trial always runs.  ``None``: no
+        time limit (then ``max_trials`` defaults to 16), fully reproducible.
+    max_trials : int, optional
+        Stop after this many trials.
+    seed : int
+        Seeds the single numpy generator behind every random choice.
+    objective : {"flops", "size", "combo"}
+        See :func:`score`.
+    memory_limit : int, optional
+        Bytes; trees whose peak exceeds it are charged their slicing overhead.
+    itemsize : int
+        Bytes per element.
+    methods : sequence of str
+        Planners to draw from (subset of ``METHODS``).
+    reoptimize : bool
+        Re-plan sub-trees of the best tree exactly afterwards.
+    progress : bool
+        Show a tqdm progress bar of the trials.
+
+    Returns
+    -------
+    SearchResult
+
+    Examples
+    --------
+    >>> r = search_path([(0, 1), (1, 2), (2, 3)], (), {i: 2 for i in range(4)}, max_trials=3)
+    >>> r.cost.flops, r.trials
+    (56, 3)
+    """
+    if objective not in OBJECTIVES:
+        raise ValueError(f"unknown objective {objective!r}; use one of {OBJECTIVES}")
+    start = time.perf_counter()
+    rng = np.random.default_rng(seed)
+    if time_budget is None and max_trials is None:
+        max_trials = 16
+    trial_time = math.inf if time_budget is None else (0.7 if reoptimize else 1.0) * time_budget
+    best: tuple[float, tuple, TreeCost, str] | None = None
+    trials = 0
+    bar = None
+    if progress:
+        from tqdm.auto import tqdm
+
+        bar = tqdm(total=max_trials, desc="planning", unit="trial", leave=False)
+    methods = list(methods)
+    try:
+        while True:
+            if trials >= len(methods):
+                method = str(rng.choice([m for m in methods if m != "greedy"] or methods))
+            else:
+                method = methods[trials]
+            path = _trial(method, inputs, output, size, rng)
+            cost = tree_cost(inputs, output, size, path, itemsize=itemsize)
+            key = score(cost, objective, memory_limit)
+            if best is None or key < best[0]:
+                best = (key, path, cost, method)
+            trials += 1
+            if bar is not None:
+                bar.update(1)
+                bar.set_postfix(log10_flops=f"{math.log10(max(best[2].flops, 1)):.2f}")
+            if max_trials is not None and trials >= max_trials:
+                break
+            if time.perf_counter() - start > trial_time:
+                break
+    finally:
+        if bar is not None:
+            bar.close()
+    _, path, cost, method = best
+    if reoptimize and len(path) > 2:
+        left = None
+        if time_budget is not None:
+            spent = time.perf_counter() - start
+            left = max(0.1 * time_budget, time_budget - spent)
+        new = reoptimize_path(inputs, output, size, path, time_budget=left)
+        new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
+        if score(new_cost, objective, memory_limit) <= score(cost, objective, memory_limit):
+            path, cost = new, new_cost
+    return SearchResult(tuple(path), cost, method, trials, time.perf_counter() - start)
