@@ -8,9 +8,11 @@ import numpy as np
 import pytest
 
 from tnsim import Circuit
+from tnsim.batch import BatchContraction
 from tnsim.errors import InputError
 from tnsim.families import brickwork
-from tnsim.queries import amplitudes, expectation, iter_amplitudes, marginal
+from tnsim.network import amplitude_network
+from tnsim.queries import amplitude, amplitudes, expectation, iter_amplitudes, marginal
 from tnsim.testing import dense_state, random_circuit
 
 _PAULI = {
@@ -36,26 +38,49 @@ def test_batch_with_few_varying_qubits_is_one_open_contraction():
     assert len(list(iter_amplitudes(c, rows))) == 1
 
 
-def test_wide_batch_reuses_the_fixed_part_and_matches_dense():
-    # 20 qubits, bitstrings differing everywhere: the batched path (more than OPEN_LIMIT
-    # differing qubits), chunks of 16.
+def test_wide_batch_matches_dense():
+    # 20 qubits, bitstrings differing everywhere (more than OPEN_LIMIT differing qubits):
+    # batched or row by row, whichever costs fewer FLOPs.
     c = brickwork(20, 3, seed=2)
     psi = dense_state(c)
     rows = np.random.default_rng(1).integers(0, 2, (40, 20)).astype(np.uint8)
-    parts = list(iter_amplitudes(c, rows, chunk=16))
-    assert [p[0] for p in parts] == [0, 16, 32]
+    starts = [p[0] for p in iter_amplitudes(c, rows, chunk=16)]
+    assert starts == sorted(starts) and starts[0] == 0
     np.testing.assert_allclose(amplitudes(c, rows), psi[_flat(rows)], atol=1e-12)
 
 
+def test_batch_engine_contracts_the_fixed_part_once():
+    # The batched engine directly: one plan, the fixed part contracted once, chunks reuse it.
+    c = brickwork(20, 3, seed=2)
+    psi = dense_state(c)
+    rows = np.random.default_rng(3).integers(0, 2, (40, 20)).astype(np.uint8)
+    base = amplitude_network(c, None, open_qubits=range(20))
+    engine = BatchContraction(base, base.output, (), chunk=16)
+    fixed, per_run = engine.flops()
+    assert per_run > 0
+    got = np.concatenate(
+        [engine.run(rows[k : k + 16]).value().reshape(-1) for k in range(0, 40, 16)]
+    )
+    np.testing.assert_allclose(got, psi[_flat(rows)], atol=1e-12)
+
+
 def test_scaled_batch_keeps_wide_amplitudes():
-    # 1,500 qubits: |a|^2 ~ 2^-1500 underflows float64; the scaled form keeps it.
-    c = brickwork(1500, 2, seed=3)
-    rows = np.random.default_rng(2).integers(0, 2, (20, 1500)).astype(np.uint8)
+    # 2,400 qubits: |a| = 2^-1200 underflows float64; the scaled form keeps log10|a|
+    # (closed form: -1200 log10 2) and the phase, equal to one-at-a-time amplitudes.
+    c = Circuit(2400)
+    for q in range(2400):
+        c.h(q)
+    for q in range(0, 2400, 2):
+        c.cz(q, q + 1).rz(0.3, q)
+    rows = np.random.default_rng(2).integers(0, 2, (6, 2400)).astype(np.uint8)
     s = amplitudes(c, rows, scaled=True)
     logs = s.log10_abs()
-    assert np.all(np.isfinite(logs)) and np.all(logs < -200)
-    plain = amplitudes(c, rows)
-    assert np.all(plain == 0)
+    np.testing.assert_allclose(logs, -1200 * np.log10(2), atol=1e-9)
+    assert np.all(amplitudes(c, rows) == 0)
+    for k in (0, 5):
+        one = amplitude(c, rows[k], scaled=True)
+        assert logs[k] == pytest.approx(one.log10_abs(), abs=1e-9)
+        assert s.phase()[k] == pytest.approx(one.phase(), abs=1e-9)
 
 
 @pytest.mark.parametrize("seed", range(4))

@@ -15,7 +15,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .execute import Scaled, apply_step, compile_tree, execute, normalize
+from .execute import Scaled, apply_step, compile_tree, count_flops, execute, normalize
 from .network import TensorNetwork
 from .plan import ContractionTree, make_plan
 from .simplify import absorb_small
@@ -93,27 +93,32 @@ class BatchContraction:
         plan = make_plan(single, memory_limit=memory_limit)
         self.tree = ContractionTree(tuple(inputs), self.network.output, size, plan.tree.path)
         self.sliced = tuple(plan.sliced)
-        self.cached: dict[int, tuple[np.ndarray, int]] = {}
-        if not self.sliced:
-            self._contract_fixed()
+        self.cached: dict[int, tuple[np.ndarray, int]] | None = None
+        self.steps = compile_tree(self.tree, self.sliced)
+        n = self.tree.num_leaves
+        self.varying = [k >= self.num_fixed for k in range(n)]
+        for x, y in self.tree.path:
+            self.varying.append(self.varying[x] or self.varying[y])
+
+    def flops(self) -> tuple[int, int]:
+        """Real FLOPs of the part done once and of the part redone per run (per slice)."""
+        n = self.tree.num_leaves
+        fixed = [s for s, v in zip(self.steps, self.varying[n:]) if not v]
+        per_run = [s for s, v in zip(self.steps, self.varying[n:]) if v]
+        return count_flops(fixed), count_flops(per_run)
 
     def _contract_fixed(self) -> None:
         """Contract every step that no batch leaf feeds; keep what later steps need."""
         tree = self.tree
-        self.steps = compile_tree(tree)
         n = tree.num_leaves
-        varying = [k >= self.num_fixed for k in range(n)]
         nodes: dict[int, tuple[np.ndarray, int]] = {
             k: (self.network.arrays[k], 0) for k in range(self.num_fixed)
         }
         for k, ((x, y), step) in enumerate(zip(tree.path, self.steps)):
-            v = varying[x] or varying[y]
-            varying.append(v)
-            if not v:
+            if not self.varying[n + k]:
                 (a, ea), (b, eb) = nodes.pop(x), nodes.pop(y)
                 c, e = normalize(apply_step(step, a, b))
                 nodes[n + k] = (c, ea + eb + e)
-        self.varying = varying
         self.cached = nodes
 
     def _leaves(self, values: np.ndarray) -> list[np.ndarray]:
@@ -155,6 +160,8 @@ class BatchContraction:
         return self._run_cached(leaves, count)
 
     def _run_cached(self, leaves: list[np.ndarray], count: int) -> Scaled:
+        if self.cached is None:
+            self._contract_fixed()
         tree = self.tree
         n = tree.num_leaves
         nodes = dict(self.cached)

@@ -16,14 +16,14 @@ import numpy as np
 
 from .batch import BatchContraction
 from .bits import parse_many
+from .budget import fit_plan
 from .circuit import Circuit
 from .errors import InputError
-from .execute import Scaled, execute
+from .execute import Scaled, compile_tree, count_flops, execute
 from .lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from .network import TensorNetwork, amplitude_network, doubled_network
 from .observables import Observable, parse_observable
 from .plan import make_plan
-from .runconfig import slice_memory_limit
 from .simplify import absorb_small
 
 __all__ = [
@@ -76,7 +76,7 @@ def contract_network(network: TensorNetwork, *, memory_limit: int | None = None)
         ``mantissa * 2**exponent``, axes in the order of ``network.output``.
     """
     small = absorb_small(network)
-    plan = make_plan(small, memory_limit=slice_memory_limit(memory_limit))
+    plan = fit_plan(small, memory_limit)
     return execute(small, plan.tree, plan.sliced, memory_limit=memory_limit)
 
 
@@ -187,13 +187,37 @@ def iter_amplitudes(
     if len(vary) <= OPEN_LIMIT:
         yield (0, *_open_block(circuit, rows, vary, dt, memory_limit))
         return
+    first = absorb_small(amplitude_network(circuit, rows[0], dtype=dt))
+    plan = make_plan(first, memory_limit=memory_limit)
+    single = count_flops(compile_tree(plan.tree, plan.sliced)) << len(plan.sliced)
+    chunk = min(chunk, len(rows))
     base = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt)
     engine = BatchContraction(base, base.output, (), chunk=chunk, memory_limit=memory_limit)
+    fixed, per_run = engine.flops()
+    # Row by row also rebuilds and simplifies the network each time: about 2e4 FLOPs'
+    # worth of Python per tensor (measured on this project's machine, order of magnitude).
+    per_row = single + 20_000 * len(base)
+    if fixed + per_run * -(-len(rows) // chunk) > per_row * len(rows):
+        yield from _row_by_row(circuit, rows, dt, first, plan, memory_limit)
+        return
     for start in range(0, len(rows), chunk):
         part = rows[start : start + chunk][:, vary]
         result = engine.run(part)
         mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(-1)
         yield start, mantissa, np.full(len(part), result.exponent, dtype=np.int64)
+
+
+def _row_by_row(
+    circuit, rows, dt, first, plan, memory_limit
+) -> Iterator[tuple[int, np.ndarray, np.ndarray]]:
+    """One contraction per bitstring, all on the plan of the first (same network shape)."""
+    for k, row in enumerate(rows):
+        small = first if k == 0 else absorb_small(amplitude_network(circuit, row, dtype=dt))
+        if tuple(small.indices) != tuple(plan.tree.inputs):
+            plan = make_plan(small, memory_limit=memory_limit)
+        result = execute(small, plan.tree, plan.sliced)
+        mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(1)
+        yield k, mantissa, np.array([result.exponent], dtype=np.int64)
 
 
 def amplitudes(
