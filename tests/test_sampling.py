@@ -6,7 +6,7 @@ from scipy.stats import chisquare
 
 import tnsim.sampling as sampling
 from tnsim import Circuit
-from tnsim.errors import InputError
+from tnsim.errors import InputError, ResourceLimitError
 from tnsim.sampling import sample
 from tnsim.testing import dense_state, random_circuit
 
@@ -24,15 +24,28 @@ def _chi_square_pvalue(samples, probs):
     return chisquare(obs, exp).pvalue
 
 
-@pytest.mark.parametrize("block, open_limit", [(3, 16), (4, 2), (12, 16)])
-def test_samples_follow_the_born_rule(block, open_limit, monkeypatch):
-    # open_limit 2 forces the doubled-network path, 16 the open-amplitude path.
-    monkeypatch.setattr(sampling, "OPEN_LIMIT", open_limit)
+@pytest.mark.parametrize("block, kind", [(3, "amplitudes"), (4, "doubled"), (12, "cheaper")])
+def test_samples_follow_the_born_rule(block, kind, monkeypatch):
+    # Force each way of computing the conditionals, or let the cost estimate choose.
+    original = sampling._candidates
+    if kind != "cheaper":
+        want = kind == "amplitudes"
+        monkeypatch.setattr(
+            sampling,
+            "_candidates",
+            lambda *a: [c for c in original(*a) if c[1] == want],
+        )
     c = random_circuit(10, 60, seed=5)
     probs = np.abs(dense_state(c)) ** 2
     s = sample(c, 8000, seed=2, block=block)
     assert s.shape == (8000, 10) and s.dtype == np.uint8
     assert _chi_square_pvalue(s, probs) > 1e-3
+
+
+def test_memory_limit_is_respected():
+    c = random_circuit(10, 60, seed=5)
+    with pytest.raises(ResourceLimitError, match="memory limit"):
+        sample(c, 10, seed=0, block=4, memory_limit=64)
 
 
 def test_wrong_distribution_is_rejected():

@@ -6,7 +6,8 @@ distribution ``p(x_B | x_A)`` comes from the backward light cone of ``A ∪ B``
 (:mod:`tnsim.lightcone`): with ``D`` the other qubits of that cone,
 ``p(x_A, x_B) = sum over x_D of |<x_A x_B x_D| C_cone |0>|²``.  It is computed
 either from amplitudes with the legs of ``B ∪ D`` open (when ``B ∪ D`` is
-small) or from the doubled network with ``B`` open and ``D`` summed.  Shots
+small) or from the doubled network with ``B`` open and ``D`` summed, whichever
+has fewer estimated FLOPs within the memory limit.  Shots
 that share ``x_A`` share the conditional distribution: the distinct
 prefixes are one batch (:class:`tnsim.batch.BatchContraction`), so the part of
 the network that does not depend on ``x_A`` is contracted once per block.
@@ -14,21 +15,25 @@ the network that does not depend on ``x_A`` is contracted once per block.
 
 from __future__ import annotations
 
+import math
 import numbers
 
 import numpy as np
 
 from .batch import BatchContraction
 from .circuit import Circuit
-from .errors import InputError
+from .errors import InputError, ResourceLimitError
+from .execute import compile_tree, count_flops, execute
 from .lightcone import canonical_cone, cone_circuit, index_circuit
-from .network import amplitude_network, doubled_network
-from .queries import contract_network
+from .memory import default_memory_limit
+from .network import TensorNetwork, amplitude_network, doubled_network
+from .plan import make_plan
+from .simplify import absorb_small
 
 __all__ = ["sample", "sample_blocks"]
 
-OPEN_LIMIT = 16
-"""Largest ``|B ∪ D|`` computed from amplitudes with open legs (else the doubled network)."""
+AMPLITUDE_WIDTH = 20
+"""Largest ``|B ∪ D|`` for which amplitudes with open legs are considered (``2**20`` outputs)."""
 
 
 def sample_blocks(num_qubits: int, block: int) -> list[list[int]]:
@@ -42,29 +47,74 @@ def sample_blocks(num_qubits: int, block: int) -> list[list[int]]:
     return [list(range(k, min(k + block, num_qubits))) for k in range(0, num_qubits, block)]
 
 
+def _engine_cost(engine: BatchContraction, prefixes: int) -> tuple[int, int]:
+    """(real FLOPs for all prefixes, largest intermediate in elements) of a batched engine."""
+    fixed, per_run = engine.flops()
+    runs = -(-prefixes // engine.chunk)
+    peak = max((math.prod(step.out_shape) for step in engine.steps), default=1)
+    return fixed + per_run * runs, peak
+
+
+def _candidates(local, a: int, b: int, dtype) -> list[tuple[TensorNetwork, bool]]:
+    """The networks that give ``p(x_B | x_A)``: open amplitudes (if small) and doubled."""
+    width = local.num_qubits - a
+    out = []
+    if width <= AMPLITUDE_WIDTH:
+        out.append(
+            (amplitude_network(local, None, open_qubits=range(local.num_qubits), dtype=dtype), True)
+        )
+    out.append((doubled_network(local, open_qubits=range(a + b), dtype=dtype), False))
+    return out
+
+
 def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> np.ndarray:
-    """``p(x_block | x_prior)`` for each row of ``prefixes``: shape ``(rows, 2**len(block))``."""
+    """``p(x_block | x_prior)`` for each row of ``prefixes``: shape ``(rows, 2**len(block))``.
+
+    Of the two networks that give it, the one with fewer estimated FLOPs whose
+    largest intermediate fits ``memory_limit`` is contracted.
+    """
     targets = [(q, "P") for q in prior + block]
     _, gates, qubits = canonical_cone(index, targets)
     local = cone_circuit(index, gates, len(qubits))
     a, b = len(prior), len(block)
-    rest = list(range(a + b, len(qubits)))
-    use_amplitudes = b + len(rest) <= OPEN_LIMIT
-    if use_amplitudes:
-        network = amplitude_network(local, None, open_qubits=list(range(len(qubits))), dtype=dtype)
-    else:
-        network = doubled_network(local, open_qubits=list(range(a + b)), dtype=dtype)
-    batch, kept = network.output[:a], network.output[a:]
+    limit = memory_limit or default_memory_limit()
+    itemsize = np.dtype(dtype).itemsize
+    best = None
+    for network, is_amp in _candidates(local, a, b, dtype):
+        if a == 0:
+            small = absorb_small(network)
+            plan = make_plan(small, memory_limit=limit)
+            steps = compile_tree(plan.tree, plan.sliced)
+            cost = count_flops(steps) << len(plan.sliced)
+            peak = max((math.prod(st.out_shape) for st in steps), default=1)
+            runner = (small, plan)
+        else:
+            size = min(chunk, len(prefixes))
+            while True:
+                runner = BatchContraction(network, network.output[:a], network.output[a:], size)
+                cost, peak = _engine_cost(runner, len(prefixes))
+                if peak * itemsize * 3 <= limit or size == 1:
+                    break
+                size = max(1, size // 4)
+        if peak * itemsize * 3 <= limit and (best is None or cost < best[0]):
+            best = (cost, runner, is_amp)
+    if best is None:
+        raise ResourceLimitError(
+            f"sampling qubits {block[0]}..{block[-1]}: every network for the conditional "
+            f"distribution needs intermediates over the memory limit of {limit} bytes; "
+            "use a smaller --block or raise the limit"
+        )
+    _, runner, is_amp = best
     if a == 0:
-        values = [contract_network(network, memory_limit=memory_limit).value()[None]]
+        small, plan = runner
+        values = [execute(small, plan.tree, plan.sliced).value()[None]]
     else:
-        engine = BatchContraction(network, batch, kept, chunk=chunk, memory_limit=memory_limit)
         values = []
-        for start in range(0, len(prefixes), chunk):
-            part = engine.run(prefixes[start : start + chunk])
+        for start in range(0, len(prefixes), runner.chunk):
+            part = runner.run(prefixes[start : start + runner.chunk])
             values.append(np.asarray(part.mantissa, dtype=np.complex128))
     table = np.concatenate([v.reshape(len(v), -1) for v in values])
-    if use_amplitudes:
+    if is_amp:
         table = (np.abs(table) ** 2).reshape(len(table), 1 << b, -1).sum(axis=2)
     else:
         table = np.clip(table.real, 0.0, None)
