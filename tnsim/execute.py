@@ -225,6 +225,18 @@ def _merged_permutation(
 
 def apply_step(step: PairStep, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Contract two arrays as prepared by :func:`pair_step` (no rescaling)."""
+    return _apply_owned(step, [a, b])
+
+
+def _apply_owned(step: PairStep, pair: list) -> np.ndarray:
+    """:func:`apply_step` on operands handed over in a list, which is emptied.
+
+    Holding the only references, it lets each operand go as soon as its
+    reordered copy exists, so the step never holds an operand and its copy
+    together with the other operand's copy (see :func:`peak_memory`).
+    """
+    a, b = pair
+    pair.clear()
     if step.pre_a:
         a = a.sum(axis=step.pre_a)
     if step.pre_b:
@@ -282,9 +294,10 @@ def count_flops(steps: Sequence[PairStep]) -> int:
 def peak_memory(tree: ContractionTree, steps: Sequence[PairStep], itemsize: int) -> int:
     """Return the most bytes of intermediates alive at once while contracting ``tree``.
 
-    Counts every intermediate not yet consumed, plus what one step allocates:
-    the summed and transposed copies of both operands and the result.  Input
-    arrays (and their slices, which are views) are not counted.
+    Follows what the executor allocates: every intermediate not yet consumed;
+    within a step, an operand's summed or reordered copy is made while the
+    operand still exists and the operand is let go right after; then the
+    result.  Input arrays are not counted, except the copies made of them.
 
     Parameters
     ----------
@@ -299,21 +312,33 @@ def peak_memory(tree: ContractionTree, steps: Sequence[PairStep], itemsize: int)
     --------
     >>> from tnsim.plan import greedy_tree
     >>> tree = greedy_tree([(0, 1), (1, 2)], (0, 2), {0: 4, 1: 5, 2: 6})
-    >>> peak_memory(tree, compile_tree(tree), 16)  # 4*5 + 5*6 copies + 4*6 result
+    >>> peak_memory(tree, compile_tree(tree), 16)  # copies of both inputs (4*5 + 5*6) + result
     1184
     """
     n = tree.num_leaves
     held: list[int] = [0] * n
     live = peak = 0
     for (x, y), step in zip(tree.path, steps):
-        copy_a = math.prod(step.mat_a) * (2 if step.pre_a else 1)
-        copy_b = math.prod(step.mat_b) * (2 if step.pre_b else 1)
+        others = live - held[x] - held[y]
+        cur = [held[x], held[y]]
+        for k, (pre, perm, mat, leaf) in enumerate(
+            [
+                (step.pre_a, step.perm_a, step.mat_a, x < n),
+                (step.pre_b, step.perm_b, step.mat_b, y < n),
+            ]
+        ):
+            if pre:  # the sum is a new array, made while the operand exists
+                peak = max(peak, others + sum(cur) + math.prod(mat))
+                cur[k] = math.prod(mat)
+            if leaf or perm != tuple(range(len(perm))):  # reordered (or sliced) copy
+                peak = max(peak, others + sum(cur) + math.prod(mat))
+                cur[k] = math.prod(mat)
         out = math.prod(step.out_shape)
-        peak = max(peak, live + copy_a + copy_b + out)
-        live += out - held[x] - held[y]
+        peak = max(peak, others + sum(cur) + out)
+        live = others + out
         held.append(out)
     if steps:
-        peak = max(peak, live + held[-1])
+        peak = max(peak, live + held[-1])  # the result's final transposed copy
     return peak * itemsize
 
 
@@ -397,8 +422,9 @@ def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
     nodes: list[np.ndarray | None] = list(arrays)
     exponent = 0
     for (x, y), step in zip(tree.path, steps):
-        c = apply_step(step, nodes[x], nodes[y])
+        pair = [nodes[x], nodes[y]]
         nodes[x] = nodes[y] = None
+        c = _apply_owned(step, pair)
         c, e = _normalize_owned(c, SLACK)
         exponent += e
         nodes.append(c)
