@@ -214,25 +214,37 @@ def test_progress_bar_only_when_asked(sliced_case, capsys):
     assert "8/8" in err and "slice" in err and "GFLOP/s" in err
 
 
-def test_script_without_main_guard_gets_a_clear_error(tmp_path):
-    # Worker processes are started with 'spawn' and re-import the main script
-    # (Python docs, multiprocessing, "Safe importing of main module").
+@pytest.mark.parametrize("with_thread", [False, True])
+def test_script_without_main_guard(tmp_path, with_thread):
+    # Without other threads the pool is forked and a script needs no main guard; with a
+    # thread running it is started with 'spawn', which re-imports the main script
+    # (Python docs, multiprocessing, "Safe importing of main module"): a clear error.
     import subprocess
     import sys
 
     script = tmp_path / "noguard.py"
     script.write_text(
+        "import threading, time\n"
         "import numpy as np\n"
         "from tnsim.execute import execute\n"
         "from tnsim.network import TensorNetwork\n"
         "from tnsim.plan import greedy_tree\n"
-        "tn = TensorNetwork([np.ones((2, 2))] * 2, [(0, 1), (1, 2)], dict.fromkeys(range(3), 2))\n"
+        + (
+            "threading.Thread(target=time.sleep, args=(30,), daemon=True).start()\n"
+            if with_thread
+            else ""
+        )
+        + "tn = TensorNetwork([np.ones((2, 2))] * 2, [(0, 1), (1, 2)], {0: 2, 1: 2, 2: 2})\n"
         "tree = greedy_tree(tn.indices, tn.output, tn.size)\n"
-        "execute(tn, tree, [0, 1], chunk_size=1, workers=2)\n"
+        "print(complex(execute(tn, tree, [0, 1], chunk_size=1, workers=2)))\n"
     )
     run = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=120)
-    assert run.returncode != 0
-    assert "SliceError" in run.stderr and '__name__ == "__main__"' in run.stderr
+    if with_thread:
+        assert run.returncode != 0
+        assert "SliceError" in run.stderr and '__name__ == "__main__"' in run.stderr
+    else:
+        assert run.returncode == 0, run.stderr
+        assert complex(run.stdout.strip()) == 8  # sum over all labels of two all-ones 2x2
 
 
 def test_rescaling_rule_does_not_change_bits(sliced_case, monkeypatch):

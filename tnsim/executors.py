@@ -9,9 +9,10 @@ workers, so the same plan gives bit-for-bit the same result everywhere.
 Where the work runs:
 
 - serially in this process (small work, or ``workers=1``);
-- a local process pool (``workers=N``, started with ``spawn``, one BLAS thread
-  per process): the job (network arrays and plan) is shipped once per worker
-  process through the pool's initializer;
+- a local process pool (``workers=N``, one BLAS thread per process; forked
+  when this process runs no other thread, else started with ``spawn``): the
+  job (network arrays and plan) is shipped once per worker process through
+  the pool's initializer;
 - any :class:`concurrent.futures.Executor` given by the caller.  A Dask
   ``Client.get_executor()`` gets the job scattered to every worker once
   (``Client.scatter(..., broadcast=True)``); other executors receive it with each
@@ -21,9 +22,11 @@ Where the work runs:
 from __future__ import annotations
 
 import contextlib
+import ctypes
 import math
 import multiprocessing
 import os
+import threading
 from collections.abc import Callable, Sequence
 from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
@@ -90,6 +93,34 @@ def _install(job: Any) -> None:
     """Process-pool initializer: keep the job for every task of this worker."""
     global _WORKER_JOB
     _WORKER_JOB = job
+    _one_blas_thread()
+
+
+def _one_blas_thread() -> None:
+    """Limit an already loaded OpenBLAS to one thread (a forked worker keeps the parent's)."""
+    try:
+        with open("/proc/self/maps", encoding="ascii", errors="replace") as fh:
+            paths = {line.split()[-1] for line in fh if "openblas" in line.lower()}
+    except OSError:
+        return
+    for path in sorted(paths):
+        try:
+            lib = ctypes.CDLL(path)
+        except OSError:
+            continue
+        for name in _BLAS_SETTERS:
+            setter = getattr(lib, name, None)
+            if setter is not None:
+                setter(ctypes.c_int(1))
+                break
+
+
+_BLAS_SETTERS = (
+    "scipy_openblas_set_num_threads64_",
+    "scipy_openblas_set_num_threads",
+    "openblas_set_num_threads64_",
+    "openblas_set_num_threads",
+)
 
 
 def _call(fn: Callable, job: Any, start: int, stop: int) -> Any:
@@ -107,7 +138,14 @@ WORKER_ENV = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THRE
 
 
 def _pool(workers: int, job: Any) -> ProcessPoolExecutor:
-    ctx = multiprocessing.get_context("spawn")
+    """A pool of ``workers`` processes holding ``job``.
+
+    Forked (instant, nothing to import or pickle) when this process runs no
+    other thread, so forking is safe; started with ``spawn`` otherwise.
+    """
+    forkable = "fork" in multiprocessing.get_all_start_methods()
+    method = "fork" if forkable and threading.active_count() == 1 else "spawn"
+    ctx = multiprocessing.get_context(method)
     return ProcessPoolExecutor(workers, mp_context=ctx, initializer=_install, initargs=(job,))
 
 
