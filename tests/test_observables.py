@@ -43,6 +43,7 @@ def test_forms(text, terms):
         ("Z0 +", 5, "expected a coefficient"),
         ("Z0 * + Z1", 4, "'*' must be followed"),
         ("Z0 0.5 Z1", 4, "unexpected '0.5'"),
+        ("Z0 - 1e999 X1", 6, "not finite"),
     ],
 )
 def test_errors_name_the_column(text, column, words):

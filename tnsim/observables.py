@@ -15,6 +15,7 @@ spaces or ``*``.  ``I`` (or ``I3``) or a bare number is the identity.  Terms are
 
 from __future__ import annotations
 
+import math
 import numbers
 import re
 from collections.abc import Mapping
@@ -112,6 +113,8 @@ def _parse_text(text: str) -> Observable:
         coef, factors, seen_any = 1.0, {}, False
         if k < len(toks) and toks[k][0] == "num":
             coef = float(toks[k][1])
+            if not math.isfinite(coef):
+                raise _error(text, toks[k][2], f"coefficient {toks[k][1]!r} is not finite")
             k += 1
             seen_any = True
             if k < len(toks) and toks[k][0] == "star":
