@@ -20,14 +20,14 @@ from tnsim.bench import (
     parse_sizes,
     plan_with,
     run_bench,
-    tree_cost,
 )
 from tnsim.cli import main
 from tnsim.errors import InputError
 from tnsim.families import grid_circuit, make_family
-from tnsim.network import amplitude_network
-from tnsim.plan.tree import ContractionTree
+from tnsim.network import TensorNetwork, amplitude_network
+from tnsim.plan import make_plan
 from tnsim.qasm import read_qasm
+from tnsim.simplify import absorb_small
 from tnsim.testing import dense_state, random_circuit
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
@@ -66,37 +66,34 @@ def test_dense_amplitude_bit_order():
     assert abs(dense.dense_amplitude(c, "0110", np.complex128) - ref[0b0110]) < 1e-12
 
 
-def test_tree_cost_matches_opt_einsum_on_a_matrix_chain():
+def test_reported_flops_match_opt_einsum_on_a_matrix_chain():
     # opt_einsum's flop_count counts 2 per multiply-add of a pairwise contraction with
     # a summed index (opt_einsum helpers.flop_count); tnsim counts 8 real FLOPs per complex
     # multiply-add, so the ratio is exactly 4 on a chain where every step sums an index.
     sizes = {0: 3, 1: 5, 2: 7, 3: 2, 4: 6}
     inputs = [(0, 1), (1, 2), (2, 3), (3, 4)]
-    eq = "ab,bc,cd,de->ae"
     shapes = [tuple(sizes[i] for i in ix) for ix in inputs]
-    path, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize="optimal")
-    ssa = tuple(tuple(p) for p in opt_einsum.paths.linear_to_ssa(path))
-    tree = ContractionTree(tuple(inputs), (0, 4), sizes, ssa)
-    cost = tree_cost(tree, itemsize=16)
-    assert cost.flops == 4 * float(info.opt_cost)
-    assert 2**cost.width == max(int(info.largest_intermediate), max(map(math.prod, shapes)))
+    arrays = [np.ones(s, dtype=np.complex128) for s in shapes]
+    net = TensorNetwork(arrays, inputs, sizes, (0, 4))
+    plan = plan_with("greedy", net)
+    linear = plan.tree.linear_path()
+    _, info = opt_einsum.contract_path("ab,bc,cd,de->ae", *shapes, shapes=True, optimize=linear)
+    assert plan.flops == 4 * int(info.opt_cost)
+    assert math.isclose(2**plan.width, int(info.largest_intermediate))
 
 
-def test_tree_cost_sums_hyperedge_once():
-    # Three vectors sharing one label: sum_i a_i b_i c_i, 2 steps over the 4-element label.
-    tree = ContractionTree(((0,), (0,), (0,)), (), {0: 4}, ((0, 1), (2, 3)))
-    cost = tree_cost(tree)
-    assert cost.flops == 8 * (4 + 4) and cost.width == 2
-
-
-def test_tree_cost_slicing_multiplies_slices():
-    net = amplitude_network(grid_circuit(3, 3, 4, seed=0), "0" * 9)
-    tree, _ = plan_with("greedy", net)
-    whole = tree_cost(tree)
-    label = tree.inputs[len(tree.inputs) // 2][0]
-    part = tree_cost(tree, (label,))
-    assert part.num_slices == 2 and part.width <= whole.width
-    assert part.flops >= whole.flops / 2
+def test_tnsim_planner_row_is_make_plans_plan():
+    net = absorb_small(amplitude_network(grid_circuit(3, 3, 4, seed=0), "0" * 9))
+    want = make_plan(net, time_budget=0.2, seed=0)
+    (row,) = run_bench(
+        "grid",
+        [{"rows": 3, "cols": 3}],
+        params={"cycles": 4},
+        planners=["tnsim"],
+        time_budget=0.2,
+        seed=0,
+    )
+    assert (row.flops, row.width, row.num_slices) == (want.flops, want.width, want.num_slices)
 
 
 @pytest.mark.parametrize("planner", ["tnsim", "greedy", "random-greedy"])

@@ -9,10 +9,12 @@ amplitude network of one seeded random bitstring is built and simplified
 * ``random-greedy`` — opt_einsum's ``RandomGreedy`` (best of up to 64 randomized
   greedy runs within the time budget).
 
-Every plan is scored by one cost model, :func:`tree_cost`, so the planners are
-compared like for like.  Units: FLOPs are real floating-point operations, a
-complex multiply-add counting 8; width is log2 of the largest intermediate's
-element count; bytes are for the dtype contracted.
+Every plan is scored by tnsim's one cost model (:func:`tnsim.plan.tree.tree_cost`,
+the figures of :class:`tnsim.plan.Plan`), so the planners are compared like for
+like.  Units: FLOPs are real floating-point operations, a complex multiply-add
+counting 8, all slices included; width is log2 of the largest intermediate's
+element count; peak bytes are the intermediates alive at once in one slice
+(inputs not counted), for the dtype contracted.
 """
 
 from __future__ import annotations
@@ -25,7 +27,6 @@ import os
 import platform
 import time
 import tracemalloc
-from collections import Counter
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, fields
 
@@ -34,15 +35,13 @@ import numpy as np
 from .errors import InputError
 from .families import FAMILIES, Family, make_family
 from .network import TensorNetwork, amplitude_network
-from .plan import make_plan
-from .plan.tree import ContractionTree
+from .plan import Plan, make_plan
+from .plan.tree import ContractionTree, linear_to_ssa
 from .simplify import absorb_small
 
 __all__ = [
     "PLANNERS",
-    "TreeCost",
     "BenchRecord",
-    "tree_cost",
     "parse_sizes",
     "plan_with",
     "measure_matmul_rate",
@@ -56,82 +55,6 @@ __all__ = [
 
 PLANNERS = ("tnsim", "greedy", "random-greedy")
 """Planner names ``tnsim bench`` accepts."""
-
-
-@dataclass(frozen=True)
-class TreeCost:
-    """The cost of contracting a network along a tree (summed over slices).
-
-    Attributes
-    ----------
-    flops : float
-        Real floating-point operations (a complex multiply-add is 8).
-    width : float
-        log2 of the element count of the largest tensor, inputs included.
-    peak_bytes : float
-        Largest total size of the tensors alive at once during one slice.
-    num_slices : int
-        Number of slices the sum is split into.
-    """
-
-    flops: float
-    width: float
-    peak_bytes: float
-    num_slices: int
-
-
-def tree_cost(tree: ContractionTree, sliced: Sequence[int] = (), itemsize: int = 8) -> TreeCost:
-    """Score a contraction tree; hyperedges are summed when their last tensor joins.
-
-    Each pairwise step costs one complex multiply-add (8 real FLOPs) per element
-    of the space of all labels of the two tensors.  Sliced labels are removed
-    and the per-slice cost multiplied by the number of slices.
-
-    Parameters
-    ----------
-    tree : ContractionTree
-        The tree.
-    sliced : sequence of int
-        Labels fixed in each slice.
-    itemsize : int
-        Bytes per element (8 for complex64, 16 for complex128).
-
-    Examples
-    --------
-    >>> t = ContractionTree(((0, 1), (1, 2)), (0, 2), {0: 2, 1: 4, 2: 2}, ((0, 1),))
-    >>> tree_cost(t)
-    TreeCost(flops=128.0, width=3.0, peak_bytes=160.0, num_slices=1)
-    >>> tree_cost(t, sliced=(1,))
-    TreeCost(flops=128.0, width=2.0, peak_bytes=64.0, num_slices=4)
-    """
-    cut = set(sliced)
-    size = tree.size
-    nodes = [frozenset(i for i in ix if i not in cut) for ix in tree.inputs]
-    count = Counter(i for ix in nodes for i in ix)
-    count.update(i for i in tree.output if i not in cut)
-
-    def numel(labels: frozenset) -> int:
-        return math.prod(size[i] for i in labels)
-
-    live = sum(numel(ix) for ix in nodes)
-    peak, biggest, flops = live, max((numel(ix) for ix in nodes), default=1), 0
-    for x, y in tree.path:
-        a, b = nodes[x], nodes[y]
-        count.subtract(a)
-        count.subtract(b)
-        out = frozenset(i for i in a | b if count[i] > 0)
-        count.update(out)
-        flops += numel(a | b)
-        n_out = numel(out)
-        biggest = max(biggest, n_out)
-        live += n_out
-        peak = max(peak, live)
-        live -= numel(a) + numel(b)
-        nodes.append(out)
-    slices = math.prod(size[i] for i in cut)
-    return TreeCost(
-        float(8 * flops * slices), math.log2(biggest), float(peak * itemsize), int(slices)
-    )
 
 
 def parse_sizes(text: str, family: Family) -> list[dict[str, int]]:
@@ -161,41 +84,47 @@ def parse_sizes(text: str, family: Family) -> list[dict[str, int]]:
     return out
 
 
-def _opt_einsum_tree(network: TensorNetwork, optimizer) -> ContractionTree:
-    import opt_einsum.paths as oe_paths
-
+def _opt_einsum_plan(network: TensorNetwork, optimizer, name: str, start: float) -> Plan:
     ins = tuple(tuple(ix) for ix in network.indices)
-    if len(ins) < 2:
-        return ContractionTree(ins, tuple(network.output), dict(network.size), ())
-    linear = optimizer([frozenset(ix) for ix in ins], frozenset(network.output), network.size)
-    ssa = tuple(tuple(p) for p in oe_paths.linear_to_ssa(linear))
-    return ContractionTree(ins, tuple(network.output), dict(network.size), ssa)
+    out, size = tuple(network.output), dict(network.size)
+    path: tuple = ()
+    if len(ins) > 1:
+        linear = optimizer([frozenset(ix) for ix in ins], frozenset(out), size)
+        path = linear_to_ssa(linear, len(ins))
+    tree = ContractionTree(ins, out, size, path)
+    itemsize = int(network.dtype.itemsize)
+    cost = tree.cost(itemsize=itemsize)
+    return Plan(
+        tree, (), flops=cost.flops, peak_bytes=cost.peak_bytes, width=cost.width,
+        unsliced_flops=cost.flops, unsliced_peak_bytes=cost.peak_bytes, itemsize=itemsize,
+        method=name, seconds=time.perf_counter() - start,
+    )  # fmt: skip
 
 
 def plan_with(
     planner: str, network: TensorNetwork, *, time_budget: float = 2.0, seed: int = 0
-) -> tuple[ContractionTree, tuple[int, ...]]:
-    """Plan ``network`` with the named planner; return ``(tree, sliced labels)``.
+) -> Plan:
+    """Plan ``network`` with the named planner; return a :class:`~tnsim.plan.Plan` with its cost.
 
     Examples
     --------
     >>> from tnsim.families import ghz
-    >>> tree, sliced = plan_with("greedy", amplitude_network(ghz(3), "000"))
-    >>> len(tree.path), sliced
-    (8, ())
+    >>> plan = plan_with("greedy", amplitude_network(ghz(3), "000"))
+    >>> len(plan.tree.path), plan.sliced, plan.num_slices
+    (8, (), 1)
     """
+    start = time.perf_counter()
     if planner == "tnsim":
-        plan = make_plan(network, time_budget=time_budget, seed=seed)
-        return plan.tree, tuple(plan.sliced)
+        return make_plan(network, time_budget=time_budget, seed=seed)
     if planner == "greedy":
         import opt_einsum.paths as oe_paths
 
-        return _opt_einsum_tree(network, oe_paths.greedy), ()
+        return _opt_einsum_plan(network, oe_paths.greedy, planner, start)
     if planner == "random-greedy":
         import opt_einsum
 
         opt = opt_einsum.RandomGreedy(max_repeats=64, max_time=time_budget, minimize="flops")
-        return _opt_einsum_tree(network, opt), ()
+        return _opt_einsum_plan(network, opt, planner, start)
     raise InputError(f"unknown planner {planner!r}; choose from {', '.join(PLANNERS)}")
 
 
@@ -238,7 +167,9 @@ class BenchRecord:
     planner : str
         Planner name.
     flops, width, peak_bytes, num_slices
-        From :func:`tree_cost` (real FLOPs; log2 elements; bytes).
+        The plan's cost (:class:`tnsim.plan.Plan`): real FLOPs of all slices;
+        log2 elements of the largest intermediate; peak bytes of live
+        intermediates in one slice; number of slices.
     plan_seconds : float
         Wall time of planning.
     executed : bool
@@ -354,7 +285,6 @@ def run_bench(
     for p in planners:
         if p not in PLANNERS:
             raise InputError(f"unknown planner {p!r}; choose from {', '.join(PLANNERS)}")
-    itemsize = np.dtype(dtype).itemsize
     records = []
     for size in sizes:
         all_params = {**(params or {}), **size}
@@ -363,13 +293,12 @@ def run_bench(
         depth = int(_depth_of(fam, all_params))
         for planner in planners:
             t0 = time.perf_counter()
-            tree, sliced = plan_with(planner, network, time_budget=time_budget, seed=seed)
+            plan = plan_with(planner, network, time_budget=time_budget, seed=seed)
             plan_seconds = time.perf_counter() - t0
-            cost = tree_cost(tree, sliced, itemsize)
-            run = execute and cost.flops <= flop_cap
+            run = execute and plan.flops <= flop_cap
             value, seconds, traced = complex(math.nan, math.nan), math.nan, math.nan
             if run:
-                value, seconds, traced = _contract(network, tree, sliced, trace=True)
+                value, seconds, traced = _contract(network, plan.tree, plan.sliced, trace=True)
             records.append(
                 BenchRecord(
                     fam.name,
@@ -379,14 +308,14 @@ def run_bench(
                     depth,
                     len(network),
                     planner,
-                    cost.flops,
-                    cost.width,
-                    cost.peak_bytes,
-                    cost.num_slices,
+                    float(plan.flops),
+                    float(plan.width),
+                    float(plan.peak_bytes),
+                    int(plan.num_slices),
                     plan_seconds,
                     run,
                     seconds,
-                    cost.flops / seconds if run and seconds > 0 else math.nan,
+                    plan.flops / seconds if run and seconds > 0 else math.nan,
                     traced,
                     value.real,
                     value.imag,
@@ -419,7 +348,7 @@ def _machine() -> dict:
 _UNITS = {
     "flops": "real floating-point operations (complex multiply-add = 8), all slices",
     "width": "log2 of the largest tensor's element count",
-    "peak_bytes": "planned peak of live tensors in one slice, bytes of the dtype",
+    "peak_bytes": "planned peak of live intermediates in one slice (inputs not counted), bytes",
     "plan_seconds": "wall seconds of planning",
     "contract_seconds": "wall seconds of one untraced contraction",
     "flop_rate": "flops / contract_seconds (real FLOP/s)",
@@ -541,7 +470,7 @@ def plot_records(
     bx.set(
         yscale="log",
         xlabel="qubits",
-        ylabel="planned peak bytes (one slice)",
+        ylabel="planned peak bytes of intermediates (one slice)",
         title="memory a plan needs",
     )
     bx.legend(fontsize=7)
