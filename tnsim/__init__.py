@@ -1,6 +1,8 @@
 """tnsim: tensor-network contraction for wide, shallow quantum circuits."""
 
+from . import plan  # callable: tnsim.plan(circuit, bits, ...) forecasts a contraction
 from .circuit import Circuit, Operation
+from .contract import contract
 from .errors import (
     CheckpointError,
     InputError,
@@ -10,6 +12,7 @@ from .errors import (
     TnsimError,
 )
 from .observables import Observable, PauliTerm, parse_observable
+from .plan.optimizer import Planner
 from .qasm import read_qasm, write_qasm
 from .queries import amplitude, amplitudes, expectation, marginal, maxcut_energy
 from .runconfig import run_options
@@ -39,5 +42,8 @@ __all__ = [
     "read_qasm",
     "write_qasm",
     "run_options",
+    "plan",
+    "contract",
+    "Planner",
 ]
 __version__ = "0.1.0"

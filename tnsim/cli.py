@@ -221,6 +221,9 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--quick", action="store_true", help="smaller instances")
     demo.set_defaults(func=_cmd_demo)
     _add_gen_and_bench(sub)
+    from .plan.cost_cli import add_cost_command
+
+    add_cost_command(sub)
     from .cli_queries import add_query_commands
 
     add_query_commands(sub)

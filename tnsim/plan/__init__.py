@@ -10,7 +10,9 @@ seeded search driver), :mod:`.slicing`.
 from __future__ import annotations
 
 import math
+import sys
 import time
+import types
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -25,6 +27,18 @@ from .slicing import choose_slices
 from .tree import ContractionTree, linear_to_ssa, tree_cost
 
 __all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_path"]
+
+
+class _CallablePackage(types.ModuleType):
+    """Lets ``tnsim.plan(circuit, bits, ...)`` forecast while ``tnsim.plan.X`` stays the package."""
+
+    def __call__(self, *args, **kwargs):
+        from .forecast import plan
+
+        return plan(*args, **kwargs)
+
+
+sys.modules[__name__].__class__ = _CallablePackage
 
 EXACT_MAX_TENSORS = 14
 """Networks with at most this many tensors are planned exactly (opt_einsum ``dp``)."""

@@ -12,7 +12,7 @@ from collections.abc import Iterable, Mapping, Sequence
 
 import opt_einsum.paths as oe_paths
 
-__all__ = ["PathBuilder"]
+__all__ = ["PathBuilder", "coarsen", "plan_coarse"]
 
 
 class PathBuilder:
@@ -116,3 +116,68 @@ class PathBuilder:
         if len(self.alive) > 1:
             self.join_greedy(sorted(self.alive))
         return tuple(self.path)
+
+
+def coarsen(
+    inputs: Sequence[Iterable[int]],
+    output: Iterable[int],
+    size: Mapping[int, int],
+    max_size: int,
+) -> PathBuilder:
+    """Join neighbouring tensors greedily while no result exceeds ``max_size`` elements.
+
+    The pair whose join removes the most elements (``|a| + |b| - |ab|``,
+    largest first) is joined first; only tensors sharing a label are paired.
+    The returned builder holds the joins made; its live nodes form the
+    coarse network that a planner then orders (see :func:`plan_coarse`).
+
+    Examples
+    --------
+    >>> b = coarsen([(0, 1), (1, 2), (2, 3)], (0, 3), {i: 2 for i in range(4)}, 4)
+    >>> sorted(b.alive), b.path
+    ([4], [(0, 1), (2, 3)])
+    """
+    import heapq
+
+    b = PathBuilder(inputs, output, size)
+    heap: list[tuple[int, int, int]] = []
+
+    def push(t: int) -> None:
+        for i in b.labels[t]:
+            for u in b.holders[i]:
+                if u == t:
+                    continue
+                merged = b.numel(b.merged(t, u))
+                if merged <= max_size:
+                    gain = b.numel(b.labels[t]) + b.numel(b.labels[u]) - merged
+                    heapq.heappush(heap, (-gain, min(t, u), max(t, u)))
+
+    for t in range(b.n):
+        push(t)
+    while heap:
+        _, x, y = heapq.heappop(heap)
+        if x not in b.alive or y not in b.alive:
+            continue
+        push(b.join(x, y))
+    return b
+
+
+def plan_coarse(
+    inputs: Sequence[Iterable[int]],
+    output: Iterable[int],
+    size: Mapping[int, int],
+    max_size: int,
+    planner,
+) -> tuple[tuple[int, int], ...]:
+    """Coarsen the network (:func:`coarsen`), plan the coarse network with ``planner``, combine.
+
+    ``planner(inputs, output, size)`` must return an SSA path over its inputs.
+    """
+    b = coarsen(inputs, output, size, max_size)
+    nodes = sorted(b.alive)
+    if len(nodes) > 1:
+        sub = planner([tuple(sorted(b.labels[t])) for t in nodes], tuple(output), size)
+        ids = list(nodes)
+        for x, y in sub:
+            ids.append(b.join(ids[x], ids[y]))
+    return b.finish_greedy()

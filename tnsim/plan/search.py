@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 import opt_einsum.paths as oe_paths
 
+from .builder import plan_coarse
 from .elimination import elimination_path
 from .partition import bisection_path, sweep_path
 from .reoptimize import reoptimize_path
@@ -160,6 +161,11 @@ def _pairs(ssa, n: int) -> tuple[tuple[int, int], ...]:
 
 
 def _trial(method: str, inputs, output, size, rng: np.random.Generator):
+    if method != "greedy" and len(inputs) > 30 and rng.random() < 0.25:
+        max_size = int(2 ** rng.integers(6, 13))
+        return plan_coarse(
+            inputs, output, size, max_size, lambda i, o, s: _trial(method, i, o, s, rng)
+        )
     if method == "greedy":
         return random_greedy_path(inputs, output, size, temperature=0.0, seed=rng)
     if method == "random-greedy":

@@ -1,0 +1,136 @@
+"""Planner benchmark: opt_einsum greedy, opt_einsum random-greedy (128 trials) and tnsim.
+
+Every planner plans the same network: the simplified amplitude network
+(``absorb_small``) of one bitstring.  Printed side by side, per instance and
+planner: opt_einsum's own cost count of the path (``contract_path(...).opt_cost``,
+log10), tnsim's real FLOPs (complex multiply-add = 8, log10), width (log2 of
+the largest intermediate, elements), planning seconds, and the ratio of each
+baseline's opt_einsum cost to tnsim's.
+
+Families: 2D grid random circuits (CZ as hyperedges, four rotating edge
+layers), QAOA p = 1..3 on random 3-regular graphs, 1D brickwork.
+
+Run::
+
+    python benchmarks/planners.py              # the full table (long)
+    python benchmarks/planners.py --quick      # small instances, short budgets
+    python benchmarks/planners.py --only grid --budget-scale 1
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import platform
+import time
+
+import numpy as np
+import opt_einsum
+from opt_einsum.path_random import RandomGreedy
+
+from tnsim.families import brickwork, grid_circuit, qaoa_maxcut
+from tnsim.network import amplitude_network
+from tnsim.plan import make_plan
+from tnsim.plan.tree import ContractionTree
+from tnsim.simplify import absorb_small
+
+
+def instances(quick: bool):
+    """(family, name, circuit, tnsim time budget in seconds)."""
+    if quick:
+        yield "grid", "grid 5x5x8", grid_circuit(5, 5, 8, seed=0), 5.0
+        yield "qaoa", "qaoa n=30 p=1", qaoa_maxcut(num_nodes=30, seed=0)[0], 5.0
+        yield "brickwork", "brickwork n=100 d=8", brickwork(100, 8, seed=0), 5.0
+        return
+    for r, c, d, budget in [
+        (6, 6, 8, 20.0),
+        (8, 8, 8, 30.0),
+        (10, 10, 8, 60.0),
+        (8, 8, 12, 60.0),
+        (10, 10, 12, 120.0),
+    ]:
+        yield "grid", f"grid {r}x{c}x{d}", grid_circuit(r, c, d, seed=0), budget
+    for p in (1, 2, 3):
+        gammas, betas = [0.4] * p, [0.3] * p
+        circuit = qaoa_maxcut(gammas=gammas, betas=betas, num_nodes=40, seed=p)[0]
+        yield "qaoa", f"qaoa n=40 p={p}", circuit, 30.0
+    for n, d in [(100, 12), (1000, 8)]:
+        yield "brickwork", f"brickwork n={n} d={d}", brickwork(n, d, seed=0), 30.0
+
+
+def network_of(circuit):
+    rng = np.random.default_rng(1)
+    bits = "".join(str(b) for b in rng.integers(0, 2, circuit.num_qubits))
+    return absorb_small(amplitude_network(circuit, bits))
+
+
+def equation(net):
+    sym = {i: opt_einsum.get_symbol(k) for k, i in enumerate(sorted(net.size))}
+    eq = ",".join("".join(sym[i] for i in ix) for ix in net.indices)
+    return eq + "->" + "".join(sym[i] for i in net.output)
+
+
+def oe_cost(net, eq, linear) -> float:
+    shapes = [tuple(net.size[i] for i in ix) for ix in net.indices]
+    _, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize=linear)
+    return float(info.opt_cost)
+
+
+def run_baseline(net, eq, optimize):
+    shapes = [tuple(net.size[i] for i in ix) for ix in net.indices]
+    t0 = time.perf_counter()
+    linear, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize=optimize)
+    seconds = time.perf_counter() - t0
+    tree = ContractionTree.from_linear(net.indices, net.output, net.size, linear)
+    cost = tree.cost()
+    return float(info.opt_cost), cost.flops, cost.width, seconds
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--quick", action="store_true", help="small instances, short budgets")
+    ap.add_argument("--only", help="family: grid, qaoa or brickwork")
+    ap.add_argument("--budget-scale", type=float, default=1.0, help="multiply tnsim budgets")
+    ap.add_argument("--seed", type=int, default=0)
+    ap.add_argument("--no-random-greedy", action="store_true")
+    args = ap.parse_args()
+    print(
+        f"# machine: {platform.processor() or platform.machine()}, python "
+        f"{platform.python_version()}, opt_einsum {opt_einsum.__version__}"
+    )
+    print(
+        "# oe = opt_einsum's cost count of the path (log10); flops = tnsim real FLOPs "
+        "(complex multiply-add = 8, log10); width = log2 largest intermediate"
+    )
+    head = (
+        f"{'instance':<22} {'tensors':>7}  {'planner':<18} {'oe':>6} {'flops':>6} "
+        f"{'width':>5} {'seconds':>8} {'oe ratio vs tnsim':>17}"
+    )
+    print(head)
+    print("-" * len(head))
+    for family, name, circuit, budget in instances(args.quick):
+        if args.only and family != args.only:
+            continue
+        net = network_of(circuit)
+        eq = equation(net)
+        rows = [("oe greedy", *run_baseline(net, eq, "greedy"))]
+        if not args.no_random_greedy:
+            rows.append(
+                ("oe random-greedy128", *run_baseline(net, eq, RandomGreedy(max_repeats=128)))
+            )
+        t0 = time.perf_counter()
+        plan = make_plan(net, time_budget=budget * args.budget_scale, seed=args.seed)
+        seconds = time.perf_counter() - t0
+        ours = oe_cost(net, eq, plan.tree.linear_path()) if len(net) > 1 else 0.0
+        rows.append((f"tnsim ({plan.method})", ours, plan.flops, plan.width, seconds))
+        for planner, oe, flops, width, sec in rows:
+            ratio = oe / ours if ours else float("nan")
+            print(
+                f"{name:<22} {len(net):>7}  {planner:<18} {math.log10(max(oe, 1)):6.2f} "
+                f"{math.log10(max(flops, 1)):6.2f} {width:5.0f} {sec:8.1f} {ratio:17.3g}",
+                flush=True,
+            )
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,267 @@
+"""The contraction planner: cost model, planners, slicing, reproducibility, doors."""
+
+import itertools
+import math
+
+import numpy as np
+import opt_einsum
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from tnsim.errors import ResourceLimitError
+from tnsim.execute import execute
+from tnsim.network import TensorNetwork
+from tnsim.plan import ContractionTree, Plan, greedy_tree, make_plan, plan_path
+from tnsim.plan.elimination import elimination_path
+from tnsim.plan.optimizer import Planner
+from tnsim.plan.partition import bisection_path, sweep_path
+from tnsim.plan.random_networks import random_arrays, random_network
+from tnsim.plan.reoptimize import reoptimize_path
+from tnsim.plan.search import random_greedy_path, search_path
+from tnsim.plan.slicing import choose_slices
+from tnsim.plan.tree import tree_cost
+
+
+def _einsum_reference(inputs, output, size, arrays):
+    # Reference: numpy.einsum (numpy documentation, numpy.einsum), the definition of the
+    # network's value: a sum over every label not in the output of the product of entries;
+    # numpy's own pairwise order (optimize="greedy") keeps it fast.
+    sym = {}
+    for ix in list(inputs) + [output]:
+        for i in ix:
+            sym.setdefault(i, opt_einsum.get_symbol(len(sym)))
+    eq = ",".join("".join(sym[i] for i in ix) for ix in inputs)
+    eq += "->" + "".join(sym[i] for i in output)
+    return np.einsum(eq, *arrays, optimize="greedy")
+
+
+def _run(inputs, output, size, arrays, path, sliced=()):
+    net = TensorNetwork(list(arrays), [tuple(ix) for ix in inputs], dict(size), tuple(output))
+    tree = ContractionTree(tuple(tuple(ix) for ix in inputs), tuple(output), dict(size), path)
+    return execute(net, tree, sliced).value()
+
+
+def _instrumented(inputs, output, size, arrays, path):
+    """Pairwise contraction by explicit loops, counting real FLOPs as it goes.
+
+    Each complex addition counts 2, each complex multiply-add 8 (common practice:
+    a complex multiply is 4 real multiplies and 2 adds, plus 2 adds to accumulate).
+    """
+    labels = [tuple(ix) for ix in inputs]
+    vals = list(arrays)
+    remaining = [set(ix) for ix in labels]
+    out = set(output)
+    flops = 0
+
+    def needed(i, skip):
+        return i in out or any(i in remaining[k] for k in range(len(remaining)) if k not in skip)
+
+    def reduce(arr, ix, drop):
+        nonlocal flops
+        keep = tuple(i for i in ix if i not in drop)
+        res = {}
+        for idx in itertools.product(*(range(size[i]) for i in ix)):
+            key = tuple(v for v, i in zip(idx, ix) if i not in drop)
+            if key in res:
+                res[key] = res[key] + arr[idx]
+                flops += 2
+            else:
+                res[key] = arr[idx]
+        new = np.zeros(tuple(size[i] for i in keep), dtype=complex)
+        for key, v in res.items():
+            new[key] = v
+        return new, keep
+
+    for x, y in path:
+        skip = {x, y}
+        (a, la), (b, lb) = (vals[x], labels[x]), (vals[y], labels[y])
+        drop_a = {i for i in la if i not in lb and not needed(i, skip)}
+        drop_b = {i for i in lb if i not in la and not needed(i, skip)}
+        if drop_a:
+            a, la = reduce(a, la, drop_a)
+        if drop_b:
+            b, lb = reduce(b, lb, drop_b)
+        union = list(dict.fromkeys(la + lb))
+        keep = tuple(i for i in union if needed(i, skip))
+        res = np.zeros(tuple(size[i] for i in keep), dtype=complex)
+        for idx in itertools.product(*(range(size[i]) for i in union)):
+            v = dict(zip(union, idx))
+            res[tuple(v[i] for i in keep)] += (
+                a[tuple(v[i] for i in la)] * b[tuple(v[i] for i in lb)]
+            )
+            flops += 8
+        vals.append(res)
+        labels.append(keep)
+        remaining.append(set(keep))
+        remaining[x], remaining[y] = set(), set()
+    root, lr = vals[-1], labels[-1]
+    extra = {i for i in lr if i not in out}
+    if extra:
+        root, lr = reduce(root, lr, extra)
+    return np.transpose(root, [lr.index(i) for i in output]), flops
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_cost_model_equals_instrumented_flop_count(seed):
+    inputs, output, size = random_network(5, max_size=3, num_open=seed % 3, seed=seed)
+    arrays = random_arrays(inputs, size, seed=seed)
+    path = greedy_tree(inputs, output, size).path
+    value, counted = _instrumented(inputs, output, size, arrays, path)
+    assert tree_cost(inputs, output, size, path).flops == counted
+    np.testing.assert_allclose(value, _einsum_reference(inputs, output, size, arrays), atol=1e-9)
+
+
+def test_cost_model_hand_example():
+    # 'ab,bc->ac' with a=2, b=3, c=4: a matrix product, 2*3*4 complex multiply-adds.
+    c = tree_cost([(0, 1), (1, 2)], (0, 2), {0: 2, 1: 3, 2: 4}, [(0, 1)])
+    assert c.flops == 8 * 2 * 3 * 4
+    assert c.width == 3.0 and c.peak_bytes == 8 * 16 and c.written == 8
+
+
+def test_cost_is_for_one_slice_and_peak_counts_live_intermediates():
+    size = {0: 4, 1: 4, 2: 4}
+    ins = [(0, 1), (1, 2), (2, 0)]
+    full = tree_cost(ins, (), size, [(0, 1), (2, 3)])
+    assert full.largest == 16 and full.peak_bytes == (16 + 1) * 16
+    one = tree_cost(ins, (), size, [(0, 1), (2, 3)], sliced=[0])
+    assert one.largest == 4 and one.flops * 4 == full.flops
+
+
+def test_linear_path_round_trip_and_opt_einsum_agrees_on_width():
+    inputs, output, size = random_network(12, seed=3)
+    tree = greedy_tree(inputs, output, size)
+    back = ContractionTree.from_linear(inputs, output, size, tree.linear_path())
+    assert back.path == tree.path
+    sym = {i: opt_einsum.get_symbol(k) for k, i in enumerate(sorted(size))}
+    eq = ",".join("".join(sym[i] for i in ix) for ix in inputs) + "->"
+    eq += "".join(sym[i] for i in output)
+    shapes = [tuple(size[i] for i in ix) for ix in inputs]
+    _, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize=tree.linear_path())
+    assert math.log2(int(info.largest_intermediate)) == pytest.approx(tree.cost().width)
+
+
+PLANNERS = {
+    "greedy": lambda i, o, s: greedy_tree(i, o, s).path,
+    "random-greedy": lambda i, o, s: random_greedy_path(i, o, s, temperature=1.0, seed=2),
+    "min-fill": lambda i, o, s: elimination_path(i, o, s, noise=0.5, seed=1),
+    "min-degree": lambda i, o, s: elimination_path(i, o, s, heuristic="min-degree"),
+    "bisection": lambda i, o, s: bisection_path(i, o, s, leaf_size=2, refine=2, noise=0.3),
+    "sweep": lambda i, o, s: sweep_path(i, o, s, mixes=2),
+    "search": lambda i, o, s: search_path(i, o, s, time_budget=None, max_trials=6).path,
+    "plan": lambda i, o, s: plan_path(i, o, s)[0],
+    "reoptimize": lambda i, o, s: reoptimize_path(i, o, s, greedy_tree(i, o, s).path),
+}
+
+
+@pytest.mark.parametrize("name", sorted(PLANNERS))
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    n=st.integers(1, 16),
+    seed=st.integers(0, 10_000),
+    num_open=st.integers(0, 3),
+    hyper=st.sampled_from([0.0, 0.3, 0.7]),
+)
+def test_every_planner_matches_numpy_einsum(name, n, seed, num_open, hyper):
+    inputs, output, size = random_network(n, num_open=num_open, hyper=hyper, seed=seed)
+    arrays = random_arrays(inputs, size, seed=seed)
+    path = PLANNERS[name](inputs, output, size)
+    assert len(path) == max(0, n - 1)
+    got = _run(inputs, output, size, arrays, path)
+    want = _einsum_reference(inputs, output, size, arrays)
+    np.testing.assert_allclose(got, want, rtol=1e-9, atol=1e-9 * max(1.0, np.abs(want).max()))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_small_networks_reach_opt_einsum_optimal_cost(seed):
+    # Reference: opt_einsum's exhaustive 'optimal' search (opt_einsum docs, "The Optimal Path").
+    n = 5 + seed % 3
+    inputs, output, size = random_network(n, num_open=seed % 2, hyper=0.3, seed=100 + seed)
+    sym = {i: opt_einsum.get_symbol(k) for k, i in enumerate(sorted(size))}
+    eq = ",".join("".join(sym[i] for i in ix) for ix in inputs) + "->"
+    eq += "".join(sym[i] for i in output)
+    shapes = [tuple(size[i] for i in ix) for ix in inputs]
+    _, best = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize="optimal")
+    _, ours = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize=Planner())
+    assert ours.opt_cost == best.opt_cost
+
+
+def test_reoptimize_never_costs_more():
+    inputs, output, size = random_network(40, hyper=0.3, seed=5)
+    for seed in range(3):
+        path = random_greedy_path(inputs, output, size, temperature=3.0, seed=seed)
+        new = reoptimize_path(inputs, output, size, path)
+        assert (
+            tree_cost(inputs, output, size, new).flops
+            <= tree_cost(inputs, output, size, path).flops
+        )
+
+
+def test_search_is_reproducible_with_a_seed():
+    inputs, output, size = random_network(30, hyper=0.3, seed=9)
+    runs = [
+        search_path(inputs, output, size, time_budget=None, max_trials=8, seed=s) for s in (4, 4)
+    ]
+    assert runs[0].path == runs[1].path
+    plans = [
+        make_plan(_net(inputs, output, size), time_budget=None, max_trials=6, seed=2) for _ in "ab"
+    ]
+    assert plans[0].tree == plans[1].tree and plans[0].sliced == plans[1].sliced
+
+
+def _net(inputs, output, size, seed=0):
+    arrays = random_arrays(inputs, size, seed=seed)
+    return TensorNetwork(arrays, [tuple(ix) for ix in inputs], dict(size), tuple(output))
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_sliced_equals_unsliced(seed):
+    inputs, output, size = random_network(14, max_size=3, num_open=1, hyper=0.3, seed=seed)
+    net = _net(inputs, output, size, seed)
+    full = make_plan(net)
+    limit = full.peak_bytes // 2
+    plan = make_plan(net, memory_limit=limit)
+    assert plan.sliced and plan.peak_bytes <= limit and plan.num_slices > 1
+    assert plan.overhead >= 1.0 and set(plan.sliced).isdisjoint(output)
+    per_slice = plan.tree.cost(sliced=plan.sliced).flops
+    out_numel = math.prod(size[i] for i in output)
+    assert plan.flops == per_slice * plan.num_slices + 2 * out_numel * (plan.num_slices - 1)
+    got = execute(net, plan.tree, plan.sliced).value()
+    np.testing.assert_allclose(got, _einsum_reference(inputs, output, size, net.arrays), atol=1e-9)
+
+
+def test_slices_chosen_for_the_limit():
+    inputs, output, size = random_network(20, max_size=2, num_open=0, hyper=0.3, seed=11)
+    path = greedy_tree(inputs, output, size).path
+    full = tree_cost(inputs, output, size, path)
+    sliced, cost, num = choose_slices(inputs, output, size, path, full.peak_bytes // 4)
+    assert cost.peak_bytes <= full.peak_bytes // 4 and num > 1
+    assert num == math.prod(size[i] for i in sliced)
+    assert cost == tree_cost(inputs, output, size, path, sliced=sliced)
+
+
+def test_impossible_memory_limit_raises_with_the_smallest_workable_limit():
+    net = _net([(0, 1), (1, 2)], (0, 2), {0: 8, 1: 2, 2: 8})
+    with pytest.raises(ResourceLimitError, match="give at least 1024 bytes"):
+        make_plan(net, memory_limit=100)
+    assert make_plan(net, memory_limit=1024).peak_bytes == 1024
+
+
+def test_plan_fields_and_text_limits():
+    net = _net(*random_network(10, seed=2))
+    plan = make_plan(net, memory_limit="1GiB")
+    assert isinstance(plan, Plan) and plan.num_slices == 1 and plan.overhead == 1.0
+    assert plan.flops == plan.tree.cost().flops and plan.width == plan.tree.cost().width
+
+
+def test_planner_inside_opt_einsum_contract():
+    inputs, output, size = random_network(18, hyper=0.3, num_open=2, seed=21)
+    arrays = random_arrays(inputs, size, seed=1)
+    sym = {i: opt_einsum.get_symbol(k) for k, i in enumerate(sorted(size))}
+    eq = ",".join("".join(sym[i] for i in ix) for ix in inputs) + "->"
+    eq += "".join(sym[i] for i in output)
+    planner = Planner(time_budget=0.5, seed=3)
+    path, info = opt_einsum.contract_path(eq, *arrays, optimize=planner)
+    assert len(path) == len(inputs) - 1 and all(len(step) == 2 for step in path)
+    got = opt_einsum.contract(eq, *arrays, optimize=Planner(seed=3))
+    np.testing.assert_allclose(got, _einsum_reference(inputs, output, size, arrays), atol=1e-9)
