@@ -7,10 +7,24 @@ from collections import deque
 
 import numpy as np
 
-from .execute import apply_step, normalize, pair_step
+from .execute import normalize
 from .network import TensorNetwork
 
 __all__ = ["absorb_small"]
+
+
+def _einsum_pair(a: np.ndarray, la, b: np.ndarray, lb, out) -> np.ndarray:
+    """Contract two small arrays with ``numpy.einsum`` (labels renumbered for its sublists)."""
+    table: dict[int, int] = {}
+    sa = [table.setdefault(i, len(table)) for i in la]
+    sb = [table.setdefault(i, len(table)) for i in lb]
+    if len(table) > 52:
+        from .execute import apply_step, pair_step
+
+        step = pair_step(la, lb, set(out), {i: d for i, d in zip(la + lb, a.shape + b.shape)})
+        res = apply_step(step, a, b)
+        return np.transpose(res, [step.out_labels.index(i) for i in out])
+    return np.einsum(a, sa, b, sb, [table[i] for i in out], optimize=False)
 
 
 class _Graph:
@@ -34,7 +48,10 @@ class _Graph:
         """Labels left after contracting ``t`` with ``u``."""
         lt, lu = self.labels[t], self.labels[u]
         union = list(lt) + [i for i in lu if i not in lt]
-        return tuple(i for i in union if i in self.output or len(self.where[i] - {t, u}) > 0)
+        where, out = self.where, self.output
+        return tuple(
+            i for i in union if i in out or len(where[i]) > (t in where[i]) + (u in where[i])
+        )
 
     def neighbours(self, t: int) -> list[int]:
         return sorted({u for i in self.labels[t] for u in self.where[i]} - {t})
@@ -42,18 +59,17 @@ class _Graph:
     def contract(self, t: int, u: int) -> int:
         """Replace ``t`` and ``u`` by their contraction; return the new id."""
         lt, lu = self.labels[t], self.labels[u]
-        keep = set(self.result_labels(t, u))
-        step = pair_step(lt, lu, keep, self.size)
-        c, e = normalize(apply_step(step, self.arrays[t], self.arrays[u]))
+        out_labels = self.result_labels(t, u)
+        c, e = normalize(_einsum_pair(self.arrays[t], lt, self.arrays[u], lu, out_labels))
         self.exponent += e
         new = len(self.arrays)
         self.arrays.append(c)
-        self.labels.append(step.out_labels)
+        self.labels.append(out_labels)
         for old in (t, u):
             for i in self.labels[old]:
                 self.where[i].discard(old)
             self.arrays[old] = None
-        for i in step.out_labels:
+        for i in out_labels:
             self.where[i].add(new)
         return new
 
