@@ -24,17 +24,22 @@ def _chi_square_pvalue(samples, probs):
     return chisquare(obs, exp).pvalue
 
 
-@pytest.mark.parametrize("block, kind", [(3, "amplitudes"), (4, "doubled"), (12, "cheaper")])
-def test_samples_follow_the_born_rule(block, kind, monkeypatch):
-    # Force each way of computing the conditionals, or let the cost estimate choose.
-    original = sampling._candidates
-    if kind != "cheaper":
-        want = kind == "amplitudes"
-        monkeypatch.setattr(
-            sampling,
-            "_candidates",
-            lambda *a: [c for c in original(*a) if c[1] == want],
-        )
+def _only(kind, original):
+    def pick(*args):
+        cands = original(*args)
+        return [c for c in cands if c[0] == kind] or [c for c in cands if c[0] == "dbl"]
+
+    return pick
+
+
+@pytest.mark.parametrize(
+    "block, kind, width", [(3, "all", 20), (4, "dbl", 20), (3, "amp", 7), (12, None, 20)]
+)
+def test_samples_follow_the_born_rule(block, kind, width, monkeypatch):
+    # Force each way of computing the conditionals, or (None) let the cost estimate choose.
+    monkeypatch.setattr(sampling, "AMPLITUDE_WIDTH", width)
+    if kind is not None:
+        monkeypatch.setattr(sampling, "_candidates", _only(kind, sampling._candidates))
     c = random_circuit(10, 60, seed=5)
     probs = np.abs(dense_state(c)) ** 2
     s = sample(c, 8000, seed=2, block=block)

@@ -55,23 +55,50 @@ def _engine_cost(engine: BatchContraction, prefixes: int) -> tuple[int, int]:
     return fixed + per_run * runs, peak
 
 
-def _candidates(local, a: int, b: int, dtype) -> list[tuple[TensorNetwork, bool]]:
-    """The networks that give ``p(x_B | x_A)``: open amplitudes (if small) and doubled."""
-    width = local.num_qubits - a
+def _planned(network: TensorNetwork, limit: int):
+    """Simplify and plan a network; return (cost, peak elements, runner)."""
+    small = absorb_small(network)
+    plan = make_plan(small, memory_limit=limit)
+    steps = compile_tree(plan.tree, plan.sliced)
+    cost = count_flops(steps) << len(plan.sliced)
+    peak = max((math.prod(st.out_shape) for st in steps), default=1)
+    return cost, peak, (small, plan)
+
+
+def _batched(network: TensorNetwork, a: int, prefixes: int, chunk: int, limit: int, itemsize):
+    """A batch engine over the first ``a`` output legs, its chunk shrunk to fit ``limit``."""
+    size = min(chunk, prefixes)
+    while True:
+        engine = BatchContraction(network, network.output[:a], network.output[a:], size)
+        cost, peak = _engine_cost(engine, prefixes)
+        if peak * itemsize * 3 <= limit or size == 1:
+            return cost, peak, engine
+        size = max(1, size // 4)
+
+
+def _candidates(local, a: int, b: int, dtype):
+    """Ways to get ``p(x_B | x_A)``: ``(kind, network)`` pairs.
+
+    ``"all"``: every amplitude of the cone, once (small cones); ``"amp"``:
+    amplitudes with ``B ∪ D`` open per prefix; ``"dbl"``: the doubled network with
+    ``B`` open and ``D`` summed, per prefix.
+    """
+    m = local.num_qubits
+    everything = list(range(m))
     out = []
-    if width <= AMPLITUDE_WIDTH:
-        out.append(
-            (amplitude_network(local, None, open_qubits=range(local.num_qubits), dtype=dtype), True)
-        )
-    out.append((doubled_network(local, open_qubits=range(a + b), dtype=dtype), False))
+    if m <= AMPLITUDE_WIDTH:
+        out.append(("all", amplitude_network(local, None, open_qubits=everything, dtype=dtype)))
+    elif a and m - a <= AMPLITUDE_WIDTH:
+        out.append(("amp", amplitude_network(local, None, open_qubits=everything, dtype=dtype)))
+    out.append(("dbl", doubled_network(local, open_qubits=range(a + b), dtype=dtype)))
     return out
 
 
 def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> np.ndarray:
     """``p(x_block | x_prior)`` for each row of ``prefixes``: shape ``(rows, 2**len(block))``.
 
-    Of the two networks that give it, the one with fewer estimated FLOPs whose
-    largest intermediate fits ``memory_limit`` is contracted.
+    Of the networks that give it (:func:`_candidates`), the one with the fewest
+    estimated FLOPs whose largest intermediate fits ``memory_limit`` is contracted.
     """
     targets = [(q, "P") for q in prior + block]
     _, gates, qubits = canonical_cone(index, targets)
@@ -80,44 +107,39 @@ def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> n
     limit = memory_limit or default_memory_limit()
     itemsize = np.dtype(dtype).itemsize
     best = None
-    for network, is_amp in _candidates(local, a, b, dtype):
-        if a == 0:
-            small = absorb_small(network)
-            plan = make_plan(small, memory_limit=limit)
-            steps = compile_tree(plan.tree, plan.sliced)
-            cost = count_flops(steps) << len(plan.sliced)
-            peak = max((math.prod(st.out_shape) for st in steps), default=1)
-            runner = (small, plan)
+    for kind, network in _candidates(local, a, b, dtype):
+        if kind == "all" or a == 0:
+            cost, peak, runner = _planned(network, limit)
         else:
-            size = min(chunk, len(prefixes))
-            while True:
-                runner = BatchContraction(network, network.output[:a], network.output[a:], size)
-                cost, peak = _engine_cost(runner, len(prefixes))
-                if peak * itemsize * 3 <= limit or size == 1:
-                    break
-                size = max(1, size // 4)
+            cost, peak, runner = _batched(network, a, len(prefixes), chunk, limit, itemsize)
         if peak * itemsize * 3 <= limit and (best is None or cost < best[0]):
-            best = (cost, runner, is_amp)
+            best = (cost, kind, runner)
     if best is None:
         raise ResourceLimitError(
             f"sampling qubits {block[0]}..{block[-1]}: every network for the conditional "
             f"distribution needs intermediates over the memory limit of {limit} bytes; "
             "use a smaller --block or raise the limit"
         )
-    _, runner, is_amp = best
-    if a == 0:
+    _, kind, runner = best
+    if kind == "all" or a == 0:
         small, plan = runner
-        values = [execute(small, plan.tree, plan.sliced).value()[None]]
+        values = execute(small, plan.tree, plan.sliced).value()
+        if kind == "dbl":
+            table = np.clip(values.real.reshape(1, -1), 0.0, None)
+        else:
+            probs = (np.abs(values) ** 2).reshape(1 << a, 1 << b, -1).sum(axis=2)
+            weights = 1 << np.arange(a - 1, -1, -1)
+            table = probs[prefixes.astype(np.int64) @ weights if a else np.zeros(1, np.int64)]
     else:
-        values = []
+        parts = []
         for start in range(0, len(prefixes), runner.chunk):
             part = runner.run(prefixes[start : start + runner.chunk])
-            values.append(np.asarray(part.mantissa, dtype=np.complex128))
-    table = np.concatenate([v.reshape(len(v), -1) for v in values])
-    if is_amp:
-        table = (np.abs(table) ** 2).reshape(len(table), 1 << b, -1).sum(axis=2)
-    else:
-        table = np.clip(table.real, 0.0, None)
+            parts.append(np.asarray(part.mantissa, dtype=np.complex128))
+        table = np.concatenate([v.reshape(len(v), -1) for v in parts])
+        if kind == "amp":
+            table = (np.abs(table) ** 2).reshape(len(table), 1 << b, -1).sum(axis=2)
+        else:
+            table = np.clip(table.real, 0.0, None)
     totals = table.sum(axis=1, keepdims=True)
     if np.any(totals <= 0):
         raise ArithmeticError("a sampled prefix has zero probability (numerical underflow)")
