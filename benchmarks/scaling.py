@@ -128,16 +128,30 @@ def section_workers(num_sliced: int = 5) -> None:
     size = (4, 4, 8) if QUICK[0] else (5, 6, 14)
     network, tree, sliced = _grid_problem(*size, 2 if QUICK[0] else num_sliced)
     flops = count_flops(compile_tree(tree, sliced)) * 2 ** len(sliced)
-    runs = {}
+    import resource
+
+    runs, cpu = {}, {}
     for workers in (1, 2):
+        who = resource.RUSAGE_SELF if workers == 1 else resource.RUSAGE_CHILDREN
+        before = resource.getrusage(who)
         start = time.perf_counter()
-        runs[workers] = execute(network, tree, sliced, workers=workers, progress=False)
+        chunk = 1 if QUICK[0] else None  # quick: tiny slices, one per chunk, to use the pool
+        runs[workers] = execute(
+            network, tree, sliced, workers=workers, progress=False, chunk_size=chunk
+        )
         runs[workers, "s"] = time.perf_counter() - start
+        after = resource.getrusage(who)
+        cpu[workers] = after.ru_utime + after.ru_stime - before.ru_utime - before.ru_stime
     same = runs[1].mantissa.tobytes() == runs[2].mantissa.tobytes()
     print(
         f"workers: grid {size}, {len(sliced)} sliced labels, {flops:.3g} FLOPs: "
         f"1 worker {runs[1, 's']:.2f} s, 2 workers {runs[2, 's']:.2f} s, "
         f"speed-up {runs[1, 's'] / runs[2, 's']:.2f} (target >= 1.6), bit-for-bit equal: {same}"
+    )
+    print(
+        f"workers: CPU seconds 1 worker {cpu[1]:.2f}, 2 workers {cpu[2]:.2f} (summed); "
+        f"CPU share of the run {cpu[1] / runs[1, 's']:.2f} and {cpu[2] / runs[2, 's']:.2f} cores; "
+        f"speed-up on two free cores at most {2 * cpu[1] / max(cpu[2], 1e-9):.2f}"
     )
 
 
