@@ -24,7 +24,7 @@ from .greedy import greedy_tree
 from .reoptimize import reoptimize_path
 from .search import search_path
 from .slicing import choose_slices
-from .tree import ContractionTree, linear_to_ssa, tree_cost
+from .tree import ContractionTree, linear_to_ssa, memory_order, tree_cost
 
 __all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_path"]
 
@@ -154,7 +154,6 @@ def plan_path(
         time_budget=budget,
         max_trials=max_trials,
         seed=seed,
-        memory_limit=memory_limit,
         itemsize=itemsize,
         progress=progress,
     )
@@ -225,7 +224,7 @@ def make_plan(
         progress=progress,
     )
     tree = ContractionTree(inputs, tuple(network.output), size, tuple(path))
-    return _finish(tree, limit, itemsize, method, start)
+    return _finish(tree, limit, itemsize, method, start, time_budget, seed, max_trials)
 
 
 def _limit(memory_limit: int | str | None) -> int | None:
@@ -243,12 +242,24 @@ def _limit(memory_limit: int | str | None) -> int | None:
 
 
 def _finish(
-    tree: ContractionTree, limit: int | None, itemsize: int, method: str, start: float
+    tree: ContractionTree,
+    limit: int | None,
+    itemsize: int,
+    method: str,
+    start: float,
+    time_budget: float | None = None,
+    seed: int = 0,
+    max_trials: int | None = None,
 ) -> Plan:
     """Slice ``tree`` to fit ``limit`` and fill in the plan's cost fields."""
     full = tree.cost(itemsize=itemsize)
     sliced: tuple[int, ...] = ()
     cost, num = full, 1
+    if limit is not None and full.peak_bytes > limit:
+        ordered = memory_order(tree.inputs, tree.output, tree.size, tree.path)
+        tree = ContractionTree(tree.inputs, tree.output, tree.size, ordered)
+        full = tree.cost(itemsize=itemsize)
+        cost = full
     if limit is not None and full.peak_bytes > limit:
         try:
             sliced, cost, num = choose_slices(
@@ -259,6 +270,9 @@ def _finish(
                 f"no plan fits a memory limit of {limit} bytes: {exc}"
             ) from None
         tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize)
+        tree, cost = _replan_sliced(
+            tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials
+        )
     out_numel = math.prod(tree.size[i] for i in tree.output)
     flops = cost.flops * num + 2 * out_numel * (num - 1)
     return Plan(
@@ -286,4 +300,31 @@ def _reoptimize_sliced(tree, sliced, cost, limit, itemsize):
     new_cost = tree_cost(ins, out, tree.size, new, itemsize=itemsize)
     if new_cost.flops < cost.flops and new_cost.peak_bytes <= limit:
         return ContractionTree(tree.inputs, tree.output, tree.size, new), new_cost
+    return tree, cost
+
+
+def _replan_sliced(tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials):
+    """Search again on the network with the sliced labels removed; keep a cheaper tree that fits."""
+    if len(tree.path) < 3:
+        return tree, cost
+    gone = set(sliced)
+    ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
+    out = tuple(i for i in tree.output if i not in gone)
+    budget = 0.5 * time_budget if time_budget is not None else _default_budget(cost.flops)
+    if max_trials is not None and time_budget is None:
+        budget = None
+    result = search_path(
+        ins,
+        out,
+        tree.size,
+        time_budget=budget,
+        max_trials=max_trials,
+        seed=seed,
+        memory_limit=limit,
+        itemsize=itemsize,
+    )
+    path = memory_order(ins, out, tree.size, result.path)
+    new_cost = tree_cost(ins, out, tree.size, path, itemsize=itemsize)
+    if new_cost.flops < cost.flops and new_cost.peak_bytes <= limit:
+        return ContractionTree(tree.inputs, tree.output, tree.size, path), new_cost
     return tree, cost

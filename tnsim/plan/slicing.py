@@ -4,8 +4,9 @@ Fixing (slicing) a label removes it from every tensor; the network's value is
 the sum over the label's values of the smaller networks, so the FLOPs grow by
 the *overhead factor* ``num_slices * sliced_flops / unsliced_flops >= 1``
 while the peak memory shrinks.  Labels are chosen greedily: each time, among
-the labels of the largest intermediates, the one whose slicing gives the
-lowest total FLOPs (then the lowest peak) is added, until the peak fits.
+the labels of the largest intermediates, the one with the smallest growth of
+total FLOPs per unit of peak reduction (both in log) is added, until the peak
+fits.
 """
 
 from __future__ import annotations
@@ -81,10 +82,14 @@ def choose_slices(
                 f"{memory_limit} bytes: give at least {cost.peak_bytes} bytes"
             )
         best = None
+        base = cost.flops * math.prod(size[j] for j in sliced)
         for i in cands:
             trial = tree_cost(inputs, output, size, path, sliced=sliced + [i], itemsize=itemsize)
             k = math.prod(size[j] for j in sliced) * size[i]
-            key = (trial.flops * k, trial.peak_bytes, i)
+            gain = math.log(cost.peak_bytes / max(trial.peak_bytes, 1))
+            growth = math.log(max(trial.flops * k, 1) / max(base, 1))
+            # FLOP growth per unit of peak reduction; labels that do not shrink the peak last.
+            key = (gain <= 0, growth / gain if gain > 0 else growth, trial.peak_bytes, i)
             if best is None or key < best[0]:
                 best = (key, i, trial)
         _, i, cost = best

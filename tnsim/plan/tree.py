@@ -35,7 +35,14 @@ from collections import Counter
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
-__all__ = ["ContractionTree", "TreeCost", "relabel_compact", "tree_cost", "step_labels"]
+__all__ = [
+    "ContractionTree",
+    "TreeCost",
+    "relabel_compact",
+    "tree_cost",
+    "step_labels",
+    "memory_order",
+]
 
 
 @dataclass(frozen=True)
@@ -296,3 +303,56 @@ def relabel_compact(
     table: dict[int, int] = {}
     new = [tuple(table.setdefault(i, len(table)) for i in ix) for ix in indices]
     return new, tuple(table.setdefault(i, len(table)) for i in output)
+
+
+def memory_order(
+    inputs: Sequence[Iterable[int]],
+    output: Iterable[int],
+    size: Mapping[int, int],
+    path: Sequence[tuple[int, int]],
+) -> tuple[tuple[int, int], ...]:
+    """The same tree with its steps reordered to lower the peak of live intermediates.
+
+    At every node the child sub-tree needing more memory is computed first
+    (the Sethi-Ullman order; Sethi and Ullman, J. ACM 17, 715, 1970), so the
+    tree, its FLOPs and its intermediates are unchanged.
+
+    Examples
+    --------
+    >>> ins = [(0, 1), (1, 2), (2, 3), (3, 4)]
+    >>> memory_order(ins, (0, 4), {i: 2 for i in range(5)}, [(0, 1), (2, 3), (4, 5)])
+    ((0, 1), (2, 3), (4, 5))
+    """
+    n = len(inputs)
+    if len(path) < 2:
+        return tuple(tuple(p) for p in path)
+    labels = step_labels(inputs, output, path)
+    numel = [0] * n + [_numel(ls, size) for ls in labels[n:]]
+    children = {n + s: tuple(p) for s, p in enumerate(path)}
+    need = [0] * n + [0] * len(path)
+    first: dict[int, tuple[int, int]] = {}
+    for v in range(n, n + len(path)):
+        x, y = children[v]
+        a = max(need[x], numel[x] + need[y])
+        b = max(need[y], numel[y] + need[x])
+        order = (x, y) if a <= b else (y, x)
+        first[v] = order
+        need[v] = max(min(a, b), numel[x] + numel[y] + numel[v])
+    out: list[int] = []
+    stack = [(n + len(path) - 1, False)]
+    while stack:
+        v, done = stack.pop()
+        if v < n:
+            continue
+        if done:
+            out.append(v)
+            continue
+        stack.append((v, True))
+        x, y = first[v]
+        stack.append((y, False))
+        stack.append((x, False))
+    new_id = {v: n + k for k, v in enumerate(out)}
+    return tuple(
+        (new_id.get(children[v][0], children[v][0]), new_id.get(children[v][1], children[v][1]))
+        for v in out
+    )
