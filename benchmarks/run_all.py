@@ -35,7 +35,7 @@ OTHERS = {
     "qasm_read.py": ["--gates", "5000", "--repeats", "1"],
 }
 
-GRID_FULL = "4x4,5x5,6x6,7x7,8x8,9x9,10x10"
+GRID_FULL = "4x4,5x5,6x6,7x7,8x8,9x9,10x10,11x11,12x12"
 QAOA_FULL = "16,32,64,96,128,160,192,256"
 
 
