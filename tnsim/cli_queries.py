@@ -185,7 +185,7 @@ def add_query_commands(sub) -> None:
     s.add_argument("circuit", help="OpenQASM 2.0 file")
     s.add_argument("--shots", type=int, required=True, metavar="N", help="number of samples")
     s.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    s.add_argument("--block", type=int, default=8, help="qubits per chain-rule step (default 8)")
+    s.add_argument("--block", type=int, default=5, help="qubits per chain-rule step (default 5)")
     s.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
     s.add_argument("--json", action="store_true", help="write JSON instead of lines")
     s.set_defaults(func=_cmd_sample)

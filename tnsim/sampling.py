@@ -151,7 +151,7 @@ def sample(
     shots: int,
     *,
     seed: int | np.random.Generator | None = 0,
-    block: int = 8,
+    block: int = 5,
     dtype: type | np.dtype = np.complex128,
     chunk: int = 64,
     memory_limit: int | None = None,
