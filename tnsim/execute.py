@@ -650,6 +650,11 @@ def execute(
     need = peak_memory(tree, steps, np.dtype(network.dtype).itemsize)
     job = SliceJob(tuple(network.arrays), tree, sliced, ops.name)
     num_slices = math.prod(job.dims)
+    if num_slices >= 2**62:
+        raise ResourceLimitError(
+            f"the plan has {num_slices:.3g} slices, more than can be counted in 64 bits "
+            "(and far more than can be run); plan with a larger memory limit"
+        )
     slice_flops = count_flops(steps)
     bounds = chunk_bounds(num_slices, slice_flops, chunk_size)
     if executor is None and workers is None:
