@@ -46,16 +46,15 @@ def instances(quick: bool):
         (6, 6, 8, 20.0),
         (8, 8, 8, 30.0),
         (10, 10, 8, 60.0),
-        (8, 8, 12, 60.0),
         (10, 10, 12, 120.0),
     ]:
         yield "grid", f"grid {r}x{c}x{d}", grid_circuit(r, c, d, seed=0), budget
     for p in (1, 2, 3):
         gammas, betas = [0.4] * p, [0.3] * p
         circuit = qaoa_maxcut(gammas=gammas, betas=betas, num_nodes=40, seed=p)[0]
-        yield "qaoa", f"qaoa n=40 p={p}", circuit, 30.0
+        yield "qaoa", f"qaoa n=40 p={p}", circuit, 20.0
     for n, d in [(100, 12), (1000, 8)]:
-        yield "brickwork", f"brickwork n={n} d={d}", brickwork(n, d, seed=0), 30.0
+        yield "brickwork", f"brickwork n={n} d={d}", brickwork(n, d, seed=0), 20.0
 
 
 def network_of(circuit):

@@ -267,6 +267,7 @@ def search_path(
         max_trials = 16
     trial_time = math.inf if time_budget is None else (0.7 if reoptimize else 1.0) * time_budget
     best: tuple[float, tuple, TreeCost, str] | None = None
+    per_method: dict[str, tuple[float, tuple, TreeCost, str]] = {}
     trials = 0
     bar = None
     if progress:
@@ -285,6 +286,8 @@ def search_path(
             key = score(cost, objective, memory_limit)
             if best is None or key < best[0]:
                 best = (key, path, cost, method)
+            if method not in per_method or key < per_method[method][0]:
+                per_method[method] = (key, path, cost, method)
             trials += 1
             if bar is not None:
                 bar.update(1)
@@ -298,12 +301,16 @@ def search_path(
             bar.close()
     _, path, cost, method = best
     if reoptimize and len(path) > 2:
-        left = None
-        if time_budget is not None:
-            spent = time.perf_counter() - start
-            left = max(0.1 * time_budget, time_budget - spent)
-        new = reoptimize_path(inputs, output, size, path, time_budget=left)
-        new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
-        if score(new_cost, objective, memory_limit) <= score(cost, objective, memory_limit):
-            path, cost = new, new_cost
+        # Re-plan the best tree of each of the (up to) three best planners: sub-tree
+        # re-planning helps some planners' trees (sweeps) far more than others.
+        finalists = sorted(per_method.values(), key=lambda r: r[0])[:3]
+        for k, (_, cand, _, name) in enumerate(finalists):
+            left = None
+            if time_budget is not None:
+                spent = time.perf_counter() - start
+                left = max(0.05 * time_budget, (time_budget - spent) / (len(finalists) - k))
+            new = reoptimize_path(inputs, output, size, cand, time_budget=left)
+            new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
+            if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
+                path, cost, method = new, new_cost, name
     return SearchResult(tuple(path), cost, method, trials, time.perf_counter() - start)
