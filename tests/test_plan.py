@@ -265,3 +265,49 @@ def test_planner_inside_opt_einsum_contract():
     assert len(path) == len(inputs) - 1 and all(len(step) == 2 for step in path)
     got = opt_einsum.contract(eq, *arrays, optimize=Planner(seed=3))
     np.testing.assert_allclose(got, _einsum_reference(inputs, output, size, arrays), atol=1e-9)
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_memory_order_keeps_the_tree_and_never_raises_the_peak(seed):
+    from tnsim.plan.tree import memory_order
+
+    inputs, output, size = random_network(30, hyper=0.3, seed=seed)
+    path = random_greedy_path(inputs, output, size, temperature=1.0, seed=seed)
+    new = memory_order(inputs, output, size, path)
+    old_c, new_c = tree_cost(inputs, output, size, path), tree_cost(inputs, output, size, new)
+    assert new_c.flops == old_c.flops and new_c.written == old_c.written
+    assert new_c.peak_bytes <= old_c.peak_bytes
+
+
+def test_coarsened_plans_match_numpy_einsum():
+    from tnsim.plan.builder import coarsen, plan_coarse
+
+    inputs, output, size = random_network(25, hyper=0.3, num_open=2, seed=4)
+    b = coarsen(inputs, output, size, 16)
+    assert all(b.numel(b.labels[t]) <= 16 for t in b.alive if t >= len(inputs))
+    path = plan_coarse(inputs, output, size, 16, lambda i, o, s: greedy_tree(i, o, s).path)
+    arrays = random_arrays(inputs, size, seed=4)
+    got = _run(inputs, output, size, arrays, path)
+    np.testing.assert_allclose(got, _einsum_reference(inputs, output, size, arrays), atol=1e-9)
+
+
+def test_package_doors():
+    import tnsim
+    from tnsim import Circuit
+
+    report = tnsim.plan(Circuit(3).h(0).cx(0, 1).cx(1, 2), "111")
+    assert report.num_qubits == 3 and report.num_slices == 1
+    assert issubclass(tnsim.Planner, opt_einsum.paths.PathOptimizer)
+    assert tnsim.plan.make_plan is make_plan
+
+
+@pytest.mark.slow
+def test_search_beats_opt_einsum_greedy_on_a_grid_circuit():
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.simplify import absorb_small
+
+    net = absorb_small(amplitude_network(grid_circuit(8, 8, 8, seed=0), "0" * 64))
+    greedy = greedy_tree(net.indices, net.output, net.size).cost().flops
+    plan = make_plan(net, time_budget=20, seed=0)
+    assert plan.flops * 10 < greedy
