@@ -335,10 +335,21 @@ def _depth_of(family: Family, params: dict) -> int:
     return int(params.get(family.depth, default))
 
 
+def _cpu_model() -> str:
+    try:
+        with open("/proc/cpuinfo", encoding="utf-8") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    return line.split(":", 1)[1].strip()
+    except OSError:
+        pass
+    return platform.processor() or platform.machine()
+
+
 def _machine() -> dict:
     return {
         "platform": platform.platform(),
-        "processor": platform.processor() or platform.machine(),
+        "processor": _cpu_model(),
         "cpu_count": os.cpu_count(),
         "memory_bytes": machine_memory(),
         "numpy": np.__version__,

@@ -184,7 +184,9 @@ def _add_gen_and_bench(sub) -> None:
     bench.add_argument("--csv", metavar="FILE", help="write the records as CSV")
     bench.add_argument("--json", metavar="FILE", help="write records, units and machine as JSON")
     bench.add_argument("--plot", metavar="FILE.png", help="plot cost against size (matplotlib)")
-    bench.add_argument("--seed", type=int, default=0, help="seed of bitstring and planners")
+    bench.add_argument(
+        "--seed", type=int, default=0, help="seed of bitstring, planners (family: --param seed=N)"
+    )
     bench.add_argument("--quiet", action="store_true", help="no progress bar")
     bench.set_defaults(func=_cmd_bench)
 
