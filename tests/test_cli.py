@@ -40,15 +40,18 @@ def test_amp_table_and_bits_file(circuit_file, tmp_path, capsys):
     assert lines[2].startswith("10101010")
 
 
+H2 = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\n'
+
+
 @pytest.mark.parametrize(
     "text, args, match",
     [
         ("OPENQASM 2.0;\nqreg q[2];\nfoo q[0];\n", ["--bits", "00"], "c.qasm:3:1"),
-        ('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[5];\n', ["--bits", "00"], "4:"),
+        (H2 + "h q[5];\n", ["--bits", "00"], "4:"),
         ("OPENQASM 2.0;\nqreg q[2]\n", ["--bits", "00"], "c.qasm:"),
-        ('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[0];\n', ["--bits", "000"], "2 qubit"),
-        ('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[0];\n', ["--bits", "0x"], "'x'"),
-        ('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\n', [], "at least one bitstring"),
+        (H2 + "h q[0];\n", ["--bits", "000"], "2 qubit"),
+        (H2 + "h q[0];\n", ["--bits", "0x"], "'x'"),
+        (H2, [], "at least one bitstring"),
     ],
 )
 def test_bad_input_exits_2_with_one_line(tmp_path, capsys, text, args, match):
