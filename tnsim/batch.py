@@ -17,7 +17,7 @@ import numpy as np
 
 from .execute import Scaled, apply_step, compile_tree, count_flops, execute, normalize
 from .network import TensorNetwork
-from .plan import ContractionTree, make_plan
+from .plan import ContractionTree, Plan, make_plan
 from .simplify import absorb_small
 
 __all__ = ["BatchContraction"]
@@ -38,6 +38,9 @@ class BatchContraction:
         Batch members per run (shorter runs are padded).
     memory_limit : int, optional
         Bytes for live intermediates (passed to the planner).
+    plan : Plan, optional
+        The plan of one batch member, from an engine built on the same network
+        (its ``plan`` attribute), to change ``chunk`` without planning again.
 
     Examples
     --------
@@ -57,6 +60,7 @@ class BatchContraction:
         open_labels: Sequence[int],
         chunk: int,
         memory_limit: int | None = None,
+        plan: Plan | None = None,
     ):
         self.batch_labels = tuple(batch_labels)
         self.chunk = int(chunk)
@@ -90,7 +94,9 @@ class BatchContraction:
             base.exponent,
             self.dtype,
         )
-        plan = make_plan(single, memory_limit=memory_limit)
+        if plan is None:
+            plan = make_plan(single, memory_limit=memory_limit)
+        self.plan = plan
         self.tree = ContractionTree(tuple(inputs), self.network.output, size, plan.tree.path)
         self.sliced = tuple(plan.sliced)
         self.cached: dict[int, tuple[np.ndarray, int]] | None = None
@@ -102,6 +108,8 @@ class BatchContraction:
 
     def flops(self) -> tuple[int, int]:
         """Real FLOPs of the part done once and of the part redone per run (per slice)."""
+        if self.sliced:  # sliced plans redo every step for every slice of every run
+            return 0, count_flops(self.steps) << len(self.sliced)
         n = self.tree.num_leaves
         fixed = [s for s, v in zip(self.steps, self.varying[n:]) if not v]
         per_run = [s for s, v in zip(self.steps, self.varying[n:]) if v]

@@ -67,13 +67,15 @@ def _planned(network: TensorNetwork, limit: int):
 
 def _batched(network: TensorNetwork, a: int, prefixes: int, chunk: int, limit: int, itemsize):
     """A batch engine over the first ``a`` output legs, its chunk shrunk to fit ``limit``."""
-    size = min(chunk, prefixes)
+    size, plan = min(chunk, prefixes), None
     while True:
-        engine = BatchContraction(network, network.output[:a], network.output[a:], size)
+        engine = BatchContraction(
+            network, network.output[:a], network.output[a:], size, limit, plan=plan
+        )
         cost, peak = _engine_cost(engine, prefixes)
         if peak * itemsize * 3 <= limit or size == 1:
             return cost, peak, engine
-        size = max(1, size // 4)
+        size, plan = max(1, size // 4), engine.plan
 
 
 def _candidates(local, a: int, b: int, dtype):
