@@ -5,9 +5,10 @@ The qubits are split into blocks ``B_1, B_2, ...`` in index order.  For block
 distribution ``p(x_B | x_A)`` comes from the backward light cone of ``A ∪ B``
 (:mod:`tnsim.lightcone`): with ``D`` the other qubits of that cone,
 ``p(x_A, x_B) = sum over x_D of |<x_A x_B x_D| C_cone |0>|²``.  It is computed
-either from amplitudes with the legs of ``B ∪ D`` open (when ``B ∪ D`` is
-small) or from the doubled network with ``B`` open and ``D`` summed, whichever
-has fewer estimated FLOPs within the memory limit.  Shots
+from every amplitude of the cone at once (small cones), from amplitudes with
+the legs of ``B ∪ D`` open per prefix (when ``B ∪ D`` is small), or from the
+doubled network with ``B`` open and ``D`` summed, whichever has the fewest
+estimated FLOPs within the memory limit.  Shots
 that share ``x_A`` share the conditional distribution: the distinct
 prefixes are one batch (:class:`tnsim.batch.BatchContraction`), so the part of
 the network that does not depend on ``x_A`` is contracted once per block.
