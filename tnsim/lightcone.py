@@ -10,9 +10,9 @@ A gate ``g`` commutes with what is kept after it when, on every qubit it shares
 with the cone, both ``g`` and everything after it never flip that qubit's bit
 (``g`` is diagonal there — a control, a ``cz``, an ``rzz`` — and so is
 everything kept after it).  Writing such operators as sums over the shared
-qubits' basis states shows they commute (common practice in light-cone
-computations of QAOA energies; Farhi, Goldstone, Gutmann, arXiv:1411.4028,
-2014, use the plain, commutation-free cone).
+qubits' basis states shows they commute (common practice).  For QAOA this
+leaves the familiar p = 1 cone of an edge: its two nodes and their neighbours
+(Farhi, Goldstone, Gutmann, arXiv:1411.4028, 2014).
 
 Each kept gate gets a *layer*: 1 + the largest layer of the kept gates after it
 that it does not commute with.  Gates of one layer commute, so the cone's
