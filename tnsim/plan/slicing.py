@@ -89,7 +89,9 @@ def choose_slices(
             gain = math.log(cost.peak_bytes / max(trial.peak_bytes, 1))
             growth = math.log(max(trial.flops * k, 1) / max(base, 1))
             # FLOP growth per unit of peak reduction; labels that do not shrink the peak last.
-            key = (gain <= 0, growth / gain if gain > 0 else growth, trial.peak_bytes, i)
+            # (growth is clipped at ~0: a label that saves FLOPs is ranked by its peak gain.)
+            ratio = max(growth, 1e-9) / gain if gain > 0 else growth
+            key = (gain <= 0, ratio, trial.peak_bytes, i)
             if best is None or key < best[0]:
                 best = (key, i, trial)
         _, i, cost = best
