@@ -159,6 +159,7 @@ def plan_path(
         time_budget=budget,
         max_trials=max_trials,
         seed=seed,
+        memory_limit=memory_limit,
         itemsize=itemsize,
         progress=progress,
     )
@@ -217,13 +218,13 @@ def make_plan(
     itemsize = int(network.dtype.itemsize)
     inputs = tuple(tuple(ix) for ix in network.indices)
     size = dict(network.size)
+    # Plan for FLOPs; the memory limit is met by slicing (and re-planning) below.
     path, method = plan_path(
         inputs,
         network.output,
         size,
         time_budget=time_budget,
         seed=seed,
-        memory_limit=limit,
         itemsize=itemsize,
         max_trials=max_trials,
         progress=progress,
