@@ -311,3 +311,16 @@ def test_search_beats_opt_einsum_greedy_on_a_grid_circuit():
     greedy = greedy_tree(net.indices, net.output, net.size).cost().flops
     plan = make_plan(net, time_budget=20, seed=0)
     assert plan.flops * 10 < greedy
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_slicing_uses_few_labels_for_the_memory_it_saves(seed):
+    # Labels of size 2 should each shrink the peak substantially: a 4x smaller peak must not
+    # need more than 16x the slices (common practice for the greedy slicing heuristic).
+    inputs, output, size = random_network(60, max_size=2, num_open=0, hyper=0.3, seed=seed)
+    path = random_greedy_path(inputs, output, size, temperature=0.3, seed=seed)
+    full = tree_cost(inputs, output, size, path)
+    limit = full.peak_bytes // 4
+    sliced, cost, num = choose_slices(inputs, output, size, path, limit)
+    assert cost.peak_bytes <= limit
+    assert num <= 16 * full.peak_bytes / limit
