@@ -92,7 +92,15 @@ def main() -> None:
     ap.add_argument("--budget-scale", type=float, default=1.0, help="multiply tnsim budgets")
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--no-random-greedy", action="store_true")
+    ap.add_argument(
+        "--slicing",
+        action="store_true",
+        help="instead: slicing overhead at 1/16 of the unsliced peak (grids)",
+    )
     args = ap.parse_args()
+    if args.slicing:
+        slicing_table(args)
+        return
     print(
         f"# machine: {platform.processor() or platform.machine()}, python "
         f"{platform.python_version()}, opt_einsum {opt_einsum.__version__}"
@@ -129,6 +137,30 @@ def main() -> None:
                 f"{math.log10(max(flops, 1)):6.2f} {width:5.0f} {sec:8.1f} {ratio:17.3g}",
                 flush=True,
             )
+
+
+def slicing_table(args) -> None:
+    """Plan each grid unsliced, then under 1/16 of that plan's peak; print the overhead."""
+    print("# overhead = sliced plan's total real FLOPs / the unsliced plan's FLOPs")
+    print(
+        f"{'instance':<22} {'unsliced flops':>14} {'peak':>10} {'limit':>10} "
+        f"{'slices':>7} {'sliced flops':>12} {'overhead':>8}"
+    )
+    for family, name, circuit, budget in instances(args.quick):
+        if family != "grid":
+            continue
+        net = network_of(circuit)
+        full = make_plan(net, time_budget=budget * args.budget_scale / 2, seed=args.seed)
+        limit = full.peak_bytes // 16
+        cut = make_plan(
+            net, time_budget=budget * args.budget_scale / 2, seed=args.seed, memory_limit=limit
+        )
+        print(
+            f"{name:<22} {math.log10(full.flops):14.2f} {full.peak_bytes:10.3g} "
+            f"{limit:10.3g} {cut.num_slices:7d} {math.log10(cut.flops):12.2f} "
+            f"{cut.flops / full.flops:8.2f}",
+            flush=True,
+        )
 
 
 if __name__ == "__main__":
