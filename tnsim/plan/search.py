@@ -313,4 +313,14 @@ def search_path(
             new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
             if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
                 path, cost, method = new, new_cost, name
+        # Time left over: re-plan larger sub-trees (10 leaves) of the winner.
+        if time_budget is not None and len(path) > 10:
+            left = time_budget - (time.perf_counter() - start)
+            if left > 0.1 * time_budget:
+                new = reoptimize_path(
+                    inputs, output, size, path, max_leaves=10, passes=4, time_budget=left
+                )
+                new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
+                if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
+                    path, cost = new, new_cost
     return SearchResult(tuple(path), cost, method, trials, time.perf_counter() - start)
