@@ -2,7 +2,6 @@
 
 import os
 import signal
-import time
 
 import numpy as np
 import pytest
@@ -28,18 +27,31 @@ def client():
     cluster.close()
 
 
-def _slow_slices(delay):
-    """Run on each worker: make every slice take ``delay`` seconds longer."""
-    import tnsim.execute as ex
+def _slow_slices_function():
+    """Return the function run on each worker to make every slice ``delay`` seconds longer.
 
-    real = getattr(ex, "_real_contract_tree", ex.contract_tree)
-    ex._real_contract_tree = real
+    It is made inside a function so that Dask ships it by value: the workers
+    cannot import this test module.
+    """
 
-    def slow(*args, **kwargs):
-        time.sleep(delay)
-        return real(*args, **kwargs)
+    def slow_slices(delay):
+        import time
 
-    ex.contract_tree = slow if delay else real
+        import tnsim.execute as ex
+
+        real = getattr(ex, "_real_contract_tree", ex.contract_tree)
+        ex._real_contract_tree = real
+
+        def slow(*args, **kwargs):
+            time.sleep(delay)
+            return real(*args, **kwargs)
+
+        ex.contract_tree = slow if delay else real
+
+    return slow_slices
+
+
+_slow_slices = _slow_slices_function()
 
 
 def test_dask_executor_matches_serial_bit_for_bit(client, sliced_case):

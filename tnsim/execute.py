@@ -23,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .backends import ArrayBackend, get_backend
+from .blas import SMALL_PRODUCT, blas_threads, set_blas_threads
 from .checkpoint import Checkpoint, OrderedSum, run_fingerprint
 from .errors import InputError, ResourceLimitError
 from .executors import SliceError, chunk_bounds, local_workers, run_chunks
@@ -421,13 +422,24 @@ def _normalize_owned(array: np.ndarray, slack: int = 0) -> tuple[np.ndarray, int
 def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
     nodes: list[np.ndarray | None] = list(arrays)
     exponent = 0
-    for (x, y), step in zip(tree.path, steps):
-        pair = [nodes[x], nodes[y]]
-        nodes[x] = nodes[y] = None
-        c = _apply_owned(step, pair)
-        c, e = _normalize_owned(c, SLACK)
-        exponent += e
-        nodes.append(c)
+    full = blas_threads()
+    current = full
+    try:
+        for (x, y), step in zip(tree.path, steps):
+            (nb, nl, nk), nr = step.mat_a, step.mat_b[2]
+            want = 1 if nb * nl * nk * nr < SMALL_PRODUCT else full
+            if want != current:
+                set_blas_threads(want)
+                current = want
+            pair = [nodes[x], nodes[y]]
+            nodes[x] = nodes[y] = None
+            c = _apply_owned(step, pair)
+            c, e = _normalize_owned(c, SLACK)
+            exponent += e
+            nodes.append(c)
+    finally:
+        if current != full:
+            set_blas_threads(full)
     return nodes[-1], exponent
 
 

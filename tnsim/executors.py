@@ -22,7 +22,6 @@ Where the work runs:
 from __future__ import annotations
 
 import contextlib
-import ctypes
 import math
 import multiprocessing
 import os
@@ -32,6 +31,7 @@ from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any
 
+from .blas import set_blas_threads
 from .errors import TnsimError
 
 __all__ = ["SliceError", "chunk_bounds", "run_chunks", "local_workers"]
@@ -93,34 +93,7 @@ def _install(job: Any) -> None:
     """Process-pool initializer: keep the job for every task of this worker."""
     global _WORKER_JOB
     _WORKER_JOB = job
-    _one_blas_thread()
-
-
-def _one_blas_thread() -> None:
-    """Limit an already loaded OpenBLAS to one thread (a forked worker keeps the parent's)."""
-    try:
-        with open("/proc/self/maps", encoding="ascii", errors="replace") as fh:
-            paths = {line.split()[-1] for line in fh if "openblas" in line.lower()}
-    except OSError:
-        return
-    for path in sorted(paths):
-        try:
-            lib = ctypes.CDLL(path)
-        except OSError:
-            continue
-        for name in _BLAS_SETTERS:
-            setter = getattr(lib, name, None)
-            if setter is not None:
-                setter(ctypes.c_int(1))
-                break
-
-
-_BLAS_SETTERS = (
-    "scipy_openblas_set_num_threads64_",
-    "scipy_openblas_set_num_threads",
-    "openblas_set_num_threads64_",
-    "openblas_set_num_threads",
-)
+    set_blas_threads(1)
 
 
 def _call(fn: Callable, job: Any, start: int, stop: int) -> Any:
