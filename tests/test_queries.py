@@ -144,3 +144,22 @@ def test_expectation_errors():
         expectation(c, "Z0 ** Z1")
     with pytest.raises(InputError, match="circuit has 2"):
         expectation(c, "Z5")
+
+
+def test_large_batch_of_wide_random_bitstrings_uses_one_open_contraction(monkeypatch):
+    # 600 random bitstrings differing on all 18 qubits: one contraction with every leg open
+    # (2**18 <= 600 * 4096); checked against the dense state vector (tnsim.testing).
+    import tnsim.queries as q
+    from tnsim.testing import dense_state, random_circuit
+
+    c = random_circuit(18, 60, seed=9, gates=["h", "cz", "rx", "cx", "t"])
+    rows = np.random.default_rng(3).integers(0, 2, size=(600, 18), dtype=np.uint8)
+    calls = []
+    real = q._open_block
+    monkeypatch.setattr(q, "_open_block", lambda *a: calls.append(1) or real(*a))
+    got = q.amplitudes(c, rows)
+    psi = dense_state(c)
+    np.testing.assert_allclose(
+        got, psi[rows.astype(np.int64) @ (1 << np.arange(17, -1, -1))], atol=1e-10
+    )
+    assert calls == [1]

@@ -33,11 +33,14 @@ def _only(kind, original):
 
 
 @pytest.mark.parametrize(
-    "block, kind, width", [(3, "all", 20), (4, "dbl", 20), (3, "amp", 7), (12, None, 20)]
+    "block, kind, width, direct",
+    [(3, "all", 20, 0), (4, "dbl", 20, 0), (3, "amp", 7, 0), (12, None, 20, 0), (3, None, 20, 20)],
 )
-def test_samples_follow_the_born_rule(block, kind, width, monkeypatch):
-    # Force each way of computing the conditionals, or (None) let the cost estimate choose.
+def test_samples_follow_the_born_rule(block, kind, width, direct, monkeypatch):
+    # Force each way of computing the conditionals, or (None) let the cost estimate choose;
+    # direct=20: the circuit is narrow enough to draw from all amplitudes at once.
     monkeypatch.setattr(sampling, "AMPLITUDE_WIDTH", width)
+    monkeypatch.setattr(sampling, "DIRECT_WIDTH", direct)
     if kind is not None:
         monkeypatch.setattr(sampling, "_candidates", _only(kind, sampling._candidates))
     c = random_circuit(10, 60, seed=5)

@@ -41,6 +41,9 @@ _DTYPES = {np.dtype(np.complex64), np.dtype(np.complex128)}
 OPEN_LIMIT = 16
 """Batches whose bitstrings differ on at most this many qubits are one contraction with those
 legs open; wider batches carry the bitstrings as a batch axis."""
+WIDE_OPEN_LIMIT = 22
+"""Up to this many differing qubits, a batch of at least ``2**k / 4096`` bitstrings is also
+one contraction with those legs open (``2**22`` complex128 outputs are 64 MiB)."""
 CHUNK = 512
 """Bitstrings per batched contraction."""
 
@@ -184,7 +187,8 @@ def iter_amplitudes(
     if len(rows) == 0:
         return
     vary = _varying(rows)
-    if len(vary) <= OPEN_LIMIT:
+    k = len(vary)
+    if k <= OPEN_LIMIT or (k <= WIDE_OPEN_LIMIT and len(rows) << 12 >= 1 << k):
         yield (0, *_open_block(circuit, rows, vary, dt, memory_limit))
         return
     first = absorb_small(amplitude_network(circuit, rows[0], dtype=dt))

@@ -12,6 +12,8 @@ estimated FLOPs within the memory limit.  Shots
 that share ``x_A`` share the conditional distribution: the distinct
 prefixes are one batch (:class:`tnsim.batch.BatchContraction`), so the part of
 the network that does not depend on ``x_A`` is contracted once per block.
+Circuits of at most :data:`DIRECT_WIDTH` qubits skip the chain rule: every
+amplitude is contracted once, with all output legs open.
 """
 
 from __future__ import annotations
@@ -35,6 +37,10 @@ __all__ = ["sample", "sample_blocks"]
 
 AMPLITUDE_WIDTH = 20
 """Largest ``|B ∪ D|`` for which amplitudes with open legs are considered (``2**20`` outputs)."""
+
+
+DIRECT_WIDTH = 20
+"""Circuits of at most this many qubits are sampled from all ``2**n`` amplitudes at once."""
 
 
 def sample_blocks(num_qubits: int, block: int) -> list[list[int]]:
@@ -149,6 +155,20 @@ def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> n
     return table / totals
 
 
+def _sample_from_all(circuit, shots, rng, dtype, memory_limit) -> np.ndarray:
+    """Narrow circuits: contract every amplitude once (all output legs open) and draw from them."""
+    n = circuit.num_qubits
+    network = amplitude_network(circuit, None, open_qubits=range(n), dtype=dtype)
+    small = absorb_small(network)
+    plan = make_plan(small, memory_limit=memory_limit)
+    probs = np.abs(execute(small, plan.tree, plan.sliced).mantissa.reshape(-1)) ** 2
+    cum = np.cumsum(probs / probs.sum())
+    cum[-1] = 1.0
+    index = np.searchsorted(cum, rng.random(shots), side="right")
+    shifts = np.arange(n - 1, -1, -1)
+    return ((index[:, None] >> shifts) & 1).astype(np.uint8)
+
+
 def sample(
     circuit: Circuit,
     shots: int,
@@ -201,6 +221,8 @@ def sample(
     out = np.zeros((shots, n), dtype=np.uint8)
     if shots == 0:
         return out
+    if n <= DIRECT_WIDTH:
+        return _sample_from_all(circuit, shots, rng, dtype, memory_limit)
     index = index_circuit(circuit)
     prior: list[int] = []
     for qs in sample_blocks(n, int(block)):
