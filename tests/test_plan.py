@@ -324,3 +324,16 @@ def test_slicing_uses_few_labels_for_the_memory_it_saves(seed):
     sliced, cost, num = choose_slices(inputs, output, size, path, limit)
     assert cost.peak_bytes <= limit
     assert num <= 16 * full.peak_bytes / limit
+
+
+def test_plans_are_reused_for_the_same_network_and_options():
+    import numpy as np
+
+    from tnsim.network import TensorNetwork
+    from tnsim.plan import make_plan
+
+    arrays = [np.ones((2, 2))] * 3
+    tn = TensorNetwork(arrays, [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
+    same = TensorNetwork(list(arrays), [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
+    assert make_plan(tn) is make_plan(same)
+    assert make_plan(tn, memory_limit=10**6) is not make_plan(tn)

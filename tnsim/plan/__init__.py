@@ -112,7 +112,11 @@ def _exact_path(inputs, output, size) -> tuple[tuple[int, int], ...]:
 
 
 def _default_budget(flops: int) -> float:
-    """Seconds of search worth spending on a tree whose greedy cost is ``flops``."""
+    """Seconds of search worth spending on a tree whose greedy cost is ``flops``.
+
+    Grows with the cost (between 0.3 and 30 s): greedy's trees of costly
+    networks are often far from the best, and searching is cheap next to them.
+    """
     return float(min(30.0, max(0.3, flops / 1e11)))
 
 
@@ -218,6 +222,18 @@ def make_plan(
     itemsize = int(network.dtype.itemsize)
     inputs = tuple(tuple(ix) for ix in network.indices)
     size = dict(network.size)
+    key = (
+        inputs,
+        tuple(network.output),
+        tuple(sorted(size.items())),
+        limit,
+        itemsize,
+        time_budget,
+        seed,
+        max_trials,
+    )
+    if key in _PLAN_CACHE:
+        return _PLAN_CACHE[key]
     # Plan for FLOPs; the memory limit is met by slicing (and re-planning) below.
     path, method = plan_path(
         inputs,
@@ -230,7 +246,16 @@ def make_plan(
         progress=progress,
     )
     tree = ContractionTree(inputs, tuple(network.output), size, tuple(path))
-    return _finish(tree, limit, itemsize, method, start, time_budget, seed, max_trials)
+    plan = _finish(tree, limit, itemsize, method, start, time_budget, seed, max_trials)
+    if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
+        _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))
+    _PLAN_CACHE[key] = plan
+    return plan
+
+
+PLAN_CACHE_SIZE = 64
+"""Plans kept for reuse: a network with the same labels, sizes and options gets the same plan."""
+_PLAN_CACHE: dict[tuple, Plan] = {}
 
 
 def _limit(memory_limit: int | str | None) -> int | None:
