@@ -53,6 +53,14 @@ def write_atomic(path: str, text: str) -> None:
         raise
 
 
+def write_output(text: str, path: str | None) -> None:
+    """Write ``text`` to ``path`` atomically, or to standard output when ``path`` is empty."""
+    if path:
+        write_atomic(path, text)
+    else:
+        sys.stdout.write(text)
+
+
 def load_circuit(path: str) -> Circuit:
     """Read an OpenQASM 2.0 file for a subcommand (errors name file:line:column)."""
     from .qasm import read_qasm
@@ -133,11 +141,7 @@ def _cmd_gen(args: argparse.Namespace) -> int:
         return 0
     if not args.family:
         raise InputError("give a family name (list them with 'tnsim gen --list')")
-    text = make_family(args.family, **parse_params(args.param)).to_qasm()
-    if args.output:
-        write_atomic(args.output, text)
-    else:
-        sys.stdout.write(text)
+    write_output(make_family(args.family, **parse_params(args.param)).to_qasm(), args.output)
     return 0
 
 

@@ -8,7 +8,6 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import sys
 
 from .bits import format_bits, read_bits_file
 from .errors import InputError
@@ -101,7 +100,7 @@ def _cmd_expect(args: argparse.Namespace) -> int:
 
 
 def _cmd_sample(args: argparse.Namespace) -> int:
-    from .cli import load_circuit, write_atomic
+    from .cli import load_circuit, write_output
     from .sampling import sample
 
     if args.shots < 0:
@@ -114,10 +113,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
         text += "\n"
     else:
         text = "".join(line + "\n" for line in lines)
-    if args.output:
-        write_atomic(args.output, text)
-    else:
-        sys.stdout.write(text)
+    write_output(text, args.output)
     return 0
 
 
