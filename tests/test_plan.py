@@ -337,3 +337,14 @@ def test_plans_are_reused_for_the_same_network_and_options():
     same = TensorNetwork(list(arrays), [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
     assert make_plan(tn) is make_plan(same)
     assert make_plan(tn, memory_limit=10**6) is not make_plan(tn)
+
+
+def test_search_stops_once_it_has_spent_the_best_trees_contraction_time():
+    from tnsim.plan.random_networks import random_network
+    from tnsim.plan.search import METHODS, search_path
+
+    inputs, output, size = random_network(30, seed=4)
+    # At 1e15 FLOP/s every tree here contracts in far under a microsecond: the search
+    # must stop right after each planner has had its trial, long before the 30 s budget.
+    r = search_path(inputs, output, size, time_budget=30.0, seed=1, stop_rate=1e15)
+    assert r.trials == len(METHODS) and r.seconds < 30.0

@@ -111,6 +111,11 @@ def _exact_path(inputs, output, size) -> tuple[tuple[int, int], ...]:
     return linear_to_ssa(linear, len(ins))
 
 
+STOP_RATE = 1e10
+"""FLOP/s: with the default budget, the search stops once it has spent as long as its best
+tree would take to contract at this (deliberately low) rate; see :func:`search_path`."""
+
+
 def _default_budget(flops: int) -> float:
     """Seconds of search worth spending on a tree whose greedy cost is ``flops``.
 
@@ -166,6 +171,7 @@ def plan_path(
         memory_limit=memory_limit,
         itemsize=itemsize,
         progress=progress,
+        stop_rate=STOP_RATE if time_budget is None else None,
     )
     return result.path, result.method
 

@@ -221,6 +221,7 @@ def search_path(
     methods: Sequence[str] = METHODS,
     reoptimize: bool = True,
     progress: bool = False,
+    stop_rate: float | None = None,
 ) -> SearchResult:
     """Search for a good contraction tree with seeded random trials.
 
@@ -248,6 +249,11 @@ def search_path(
         Re-plan sub-trees of the best tree exactly afterwards.
     progress : bool
         Show a tqdm progress bar of the trials.
+    stop_rate : float, optional
+        FLOP/s.  Once every planner has had a trial, stop searching when the
+        time spent exceeds what the best tree so far would take to contract at
+        this rate (searching longer than the contraction itself cannot pay off);
+        the sub-tree re-planning then gets about as long again.
 
     Returns
     -------
@@ -294,12 +300,18 @@ def search_path(
                 bar.set_postfix(log10_flops=f"{math.log10(max(best[2].flops, 1)):.2f}")
             if max_trials is not None and trials >= max_trials:
                 break
-            if time.perf_counter() - start > trial_time:
+            elapsed = time.perf_counter() - start
+            if elapsed > trial_time:
+                break
+            if stop_rate and trials >= len(methods) and elapsed > best[2].flops / stop_rate:
                 break
     finally:
         if bar is not None:
             bar.close()
     _, path, cost, method = best
+    if stop_rate and time_budget is not None:
+        spent = time.perf_counter() - start
+        time_budget = min(time_budget, 2 * max(spent, cost.flops / stop_rate))
     if reoptimize and len(path) > 2:
         # Re-plan the best tree of each of the (up to) three best planners: sub-tree
         # re-planning helps some planners' trees (sweeps) far more than others.
