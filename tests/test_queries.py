@@ -163,3 +163,21 @@ def test_large_batch_of_wide_random_bitstrings_uses_one_open_contraction(monkeyp
         got, psi[rows.astype(np.int64) @ (1 << np.arange(17, -1, -1))], atol=1e-10
     )
     assert calls == [1]
+
+
+def test_marginal_of_a_deep_narrow_circuit_uses_all_amplitudes(monkeypatch):
+    # Deep 12-qubit circuit: the light cone is every qubit, so one contraction of all
+    # amplitudes is cheaper than the doubled network; checked against the dense state
+    # vector (tnsim.testing.dense_state), summed over the other qubits with numpy.
+    import tnsim.queries as q
+    from tnsim.testing import dense_state, random_circuit
+
+    c = random_circuit(12, 300, seed=21)
+    calls = []
+    real = q.all_probabilities
+    monkeypatch.setattr(q, "all_probabilities", lambda *a, **k: calls.append(1) or real(*a, **k))
+    got = q.marginal(c, [7, 2, 10])
+    p = np.abs(dense_state(c).reshape((2,) * 12)) ** 2
+    ref = p.sum(axis=tuple(k for k in range(12) if k not in (2, 7, 10))).transpose(1, 0, 2)
+    np.testing.assert_allclose(got, ref.reshape(-1), atol=1e-12)
+    assert calls == [1]

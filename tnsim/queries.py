@@ -23,7 +23,7 @@ from .execute import Scaled, compile_tree, count_flops, execute
 from .lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from .network import TensorNetwork, amplitude_network, doubled_network
 from .observables import Observable, parse_observable
-from .plan import make_plan
+from .plan import greedy_tree, make_plan
 from .simplify import absorb_small
 
 __all__ = [
@@ -337,9 +337,45 @@ def marginal(
     _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qs])
     local = cone_circuit(index, gates, len(local_qubits))
     network = doubled_network(local, open_qubits=range(len(qs)), dtype=dt)
+    m = local.num_qubits
+    if m <= NARROW and _greedy_flops(network) > len(local.ops) * (64 << m):
+        # A deep, narrow cone: one contraction of all 2**m amplitudes (at most about
+        # 64 FLOPs per gate and amplitude in circuit order) beats the doubled network.
+        every = all_probabilities(local, dtype=dt, memory_limit=memory_limit)
+        return every.reshape(1 << len(qs), -1).sum(axis=1)
     result = contract_network(network, memory_limit=memory_limit)
     probs = result.value().real.reshape(-1)
     return np.clip(probs, 0.0, None)
+
+
+NARROW = 20
+"""Light cones of at most this many qubits may be answered from all ``2**m`` amplitudes."""
+
+
+def _greedy_flops(network: TensorNetwork) -> int:
+    """FLOPs of opt_einsum's greedy tree for the simplified network (a quick upper estimate)."""
+    small = absorb_small(network)
+    return greedy_tree(small.indices, small.output, small.size).cost().flops
+
+
+def all_probabilities(
+    circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
+) -> np.ndarray:
+    """Return ``|<x|C|0...0>|²`` for all ``2**n`` bitstrings (narrow circuits only).
+
+    One contraction with every output leg open; index ``k`` is the bitstring
+    whose qubit 0 is the most significant bit of ``k``.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> all_probabilities(Circuit(2).h(0).cx(0, 1)).round(6).tolist()
+    [0.5, 0.0, 0.0, 0.5]
+    """
+    n = circuit.num_qubits
+    network = amplitude_network(circuit, None, open_qubits=range(n), dtype=_check_dtype(dtype))
+    result = contract_network(network, memory_limit=memory_limit)
+    return np.abs(result.value().reshape(-1)) ** 2
 
 
 class TermCache:

@@ -157,11 +157,10 @@ def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> n
 
 def _sample_from_all(circuit, shots, rng, dtype, memory_limit) -> np.ndarray:
     """Narrow circuits: contract every amplitude once (all output legs open) and draw from them."""
+    from .queries import all_probabilities
+
     n = circuit.num_qubits
-    network = amplitude_network(circuit, None, open_qubits=range(n), dtype=dtype)
-    small = absorb_small(network)
-    plan = make_plan(small, memory_limit=memory_limit)
-    probs = np.abs(execute(small, plan.tree, plan.sliced).mantissa.reshape(-1)) ** 2
+    probs = all_probabilities(circuit, dtype=dtype, memory_limit=memory_limit)
     cum = np.cumsum(probs / probs.sum())
     cum[-1] = 1.0
     index = np.searchsorted(cum, rng.random(shots), side="right")
