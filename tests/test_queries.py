@@ -181,3 +181,22 @@ def test_marginal_of_a_deep_narrow_circuit_uses_all_amplitudes(monkeypatch):
     ref = p.sum(axis=tuple(k for k in range(12) if k not in (2, 7, 10))).transpose(1, 0, 2)
     np.testing.assert_allclose(got, ref.reshape(-1), atol=1e-12)
     assert calls == [1]
+
+
+def test_expectation_of_a_deep_narrow_circuit_uses_one_state():
+    # Deep 12-qubit circuit: every term's cone is the whole circuit; the terms are read
+    # from one contraction of all amplitudes. Reference: <psi|P|psi> with numpy on the
+    # dense state vector (tnsim.testing.dense_state).
+    from tnsim.queries import TermCache
+    from tnsim.testing import dense_state, random_circuit
+
+    c = random_circuit(12, 300, seed=22)
+    psi = dense_state(c).reshape((2,) * 12)
+    paulis = {"X": [[0, 1], [1, 0]], "Y": [[0, -1j], [1j, 0]], "Z": [[1, 0], [0, -1]]}
+    cache = TermCache(c)
+    for term in [((0, "Z"), (1, "Z")), ((3, "X"),), ((7, "Y"), (11, "Z"), (2, "X"))]:
+        out = psi
+        for q, letter in term:
+            out = np.moveaxis(np.tensordot(np.array(paulis[letter]), out, axes=(1, q)), 0, q)
+        assert cache.value(term) == pytest.approx(np.vdot(psi, out).real, abs=1e-12)
+    assert cache._psi is not None

@@ -20,6 +20,7 @@ from .budget import fit_plan
 from .circuit import Circuit
 from .errors import InputError
 from .execute import Scaled, compile_tree, count_flops, execute
+from .gates import gate_matrix
 from .lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from .network import TensorNetwork, amplitude_network, doubled_network
 from .observables import Observable, parse_observable
@@ -337,10 +338,7 @@ def marginal(
     _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qs])
     local = cone_circuit(index, gates, len(local_qubits))
     network = doubled_network(local, open_qubits=range(len(qs)), dtype=dt)
-    m = local.num_qubits
-    if m <= NARROW and _greedy_flops(network) > len(local.ops) * (64 << m):
-        # A deep, narrow cone: one contraction of all 2**m amplitudes (at most about
-        # 64 FLOPs per gate and amplitude in circuit order) beats the doubled network.
+    if _deep_and_narrow(local, network):
         every = all_probabilities(local, dtype=dt, memory_limit=memory_limit)
         return every.reshape(1 << len(qs), -1).sum(axis=1)
     result = contract_network(network, memory_limit=memory_limit)
@@ -358,10 +356,10 @@ def _greedy_flops(network: TensorNetwork) -> int:
     return greedy_tree(small.indices, small.output, small.size).cost().flops
 
 
-def all_probabilities(
+def all_amplitudes(
     circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
 ) -> np.ndarray:
-    """Return ``|<x|C|0...0>|²`` for all ``2**n`` bitstrings (narrow circuits only).
+    """Return ``<x|C|0...0>`` for all ``2**n`` bitstrings (narrow circuits only).
 
     One contraction with every output leg open; index ``k`` is the bitstring
     whose qubit 0 is the most significant bit of ``k``.
@@ -369,13 +367,38 @@ def all_probabilities(
     Examples
     --------
     >>> from tnsim import Circuit
-    >>> all_probabilities(Circuit(2).h(0).cx(0, 1)).round(6).tolist()
+    >>> (abs(all_amplitudes(Circuit(2).h(0).cx(0, 1))) ** 2).round(6).tolist()
     [0.5, 0.0, 0.0, 0.5]
     """
     n = circuit.num_qubits
     network = amplitude_network(circuit, None, open_qubits=range(n), dtype=_check_dtype(dtype))
-    result = contract_network(network, memory_limit=memory_limit)
-    return np.abs(result.value().reshape(-1)) ** 2
+    return contract_network(network, memory_limit=memory_limit).value().reshape(-1)
+
+
+def all_probabilities(
+    circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
+) -> np.ndarray:
+    """Return ``|<x|C|0...0>|²`` for all ``2**n`` bitstrings (see :func:`all_amplitudes`)."""
+    return np.abs(all_amplitudes(circuit, dtype=dtype, memory_limit=memory_limit)) ** 2
+
+
+def _deep_and_narrow(local: Circuit, network: TensorNetwork) -> bool:
+    """Whether all ``2**m`` amplitudes of the cone cost less than greedy's doubled network.
+
+    Amplitudes in circuit order cost at most about 64 FLOPs per gate and amplitude.
+    """
+    m = local.num_qubits
+    return m <= NARROW and _greedy_flops(network) > len(local.ops) * (64 << m)
+
+
+def _pauli_expectation(psi: np.ndarray, letters: Mapping[int, str]) -> float:
+    """``<psi|P|psi>`` of a state vector (qubit 0 most significant) and a Pauli string."""
+    m = int(psi.size).bit_length() - 1
+    state = psi.reshape((2,) * m)
+    out = state
+    for q, letter in letters.items():
+        out = np.moveaxis(np.tensordot(gate_matrix(letter.lower()), out, axes=(1, q)), 0, q)
+    return float(np.vdot(state, out).real)
 
 
 class TermCache:
@@ -402,11 +425,25 @@ class TermCache:
 
     def __init__(self, circuit: Circuit, dtype=np.complex128, memory_limit: int | None = None):
         self.index: CircuitIndex = index_circuit(circuit)
+        self.circuit = circuit
+        self._psi: np.ndarray | None = None
         self.dtype = _check_dtype(dtype)
         self.memory_limit = memory_limit
         self.values: dict[tuple, float] = {}
         self.hits = 0
         self.misses = 0
+
+    def _from_amplitudes(self, local: Circuit, letters: dict, paulis) -> float:
+        """A deep, narrow cone's value from all amplitudes of the whole circuit (computed
+        once, when it is itself narrow) or of the cone."""
+        if self.circuit.num_qubits <= NARROW:
+            if self._psi is None:
+                self._psi = all_amplitudes(
+                    self.circuit, dtype=self.dtype, memory_limit=self.memory_limit
+                )
+            return _pauli_expectation(self._psi, dict(paulis))
+        psi = all_amplitudes(local, dtype=self.dtype, memory_limit=self.memory_limit)
+        return _pauli_expectation(psi, letters)
 
     def value(self, paulis: Sequence[tuple[int, str]]) -> float:
         """Return ``<0|C† P C|0>`` for ``paulis`` = ``((qubit, letter), ...)``."""
@@ -421,7 +458,10 @@ class TermCache:
         local = cone_circuit(self.index, gates, len(qubits))
         letters = {k: letter for k, (_, letter) in enumerate(paulis)}
         network = doubled_network(local, paulis=letters, dtype=self.dtype)
-        v = float(complex(contract_network(network, memory_limit=self.memory_limit)).real)
+        if _deep_and_narrow(local, network):
+            v = self._from_amplitudes(local, letters, paulis)
+        else:
+            v = float(complex(contract_network(network, memory_limit=self.memory_limit)).real)
         self.values[key] = v
         return v
 
