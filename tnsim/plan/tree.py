@@ -134,19 +134,13 @@ def tree_cost(
     """
     gone = set(sliced)
     out = set(output) - gone
-    labels = [frozenset(i for i in ix if i not in gone) for ix in inputs]
-    n = len(labels)
-    input_bytes = itemsize * sum(_numel(ix, size) for ix in labels)
-    count = Counter(i for ix in labels for i in ix)
+    labels = step_labels(inputs, out, path, gone)
+    n = len(labels) - len(path)
+    input_bytes = itemsize * sum(_numel(ix, size) for ix in labels[:n])
     sizes = [0] * n
     flops = live = peak = largest = written = 0
-    for x, y in path:
-        a, b = labels[x], labels[y]
-        for i in a:
-            count[i] -= 1
-        for i in b:
-            count[i] -= 1
-        keep = frozenset(i for i in a | b if count[i] > 0 or i in out)
+    for s, (x, y) in enumerate(path):
+        a, b, keep = labels[x], labels[y], labels[n + s]
         a2 = frozenset(i for i in a if i in b or i in keep)
         b2 = frozenset(i for i in b if i in a or i in keep)
         if a2 != a:
@@ -154,16 +148,13 @@ def tree_cost(
         if b2 != b:
             flops += 2 * (_numel(b, size) - _numel(b2, size))
         flops += 8 * _numel(a2 | b2, size)
-        s = _numel(keep, size)
-        for i in keep:
-            count[i] += 1
-        labels.append(keep)
-        sizes.append(s)
-        live += s
+        numel = _numel(keep, size)
+        sizes.append(numel)
+        live += numel
         peak = max(peak, live)
         live -= sizes[x] + sizes[y]
-        largest = max(largest, s)
-        written += s
+        largest = max(largest, numel)
+        written += numel
     root = labels[-1] if labels else frozenset()
     extra = root - out
     if extra:
