@@ -200,3 +200,32 @@ def test_expectation_of_a_deep_narrow_circuit_uses_one_state():
             out = np.moveaxis(np.tensordot(np.array(paulis[letter]), out, axes=(1, q)), 0, q)
         assert cache.value(term) == pytest.approx(np.vdot(psi, out).real, abs=1e-12)
     assert cache._psi is not None
+
+
+def test_amplitudes_under_a_tight_limit_fit_the_executors_count(monkeypatch):
+    # Regression: the row-by-row path planned with the planner's memory count, which leaves
+    # out reordering copies, so the executor refused the plan under the same limit.
+    import tnsim
+    import tnsim.queries as q
+    from tnsim.network import amplitude_network
+    from tnsim.plan import make_plan
+    from tnsim.simplify import absorb_small
+    from tnsim.testing import dense_state, random_circuit
+
+    c = random_circuit(14, 120, seed=3, gates=["h", "cx", "rz", "cz", "ry"])
+    limit = make_plan(absorb_small(amplitude_network(c, "0" * 14))).peak_bytes
+    monkeypatch.setattr(q, "OPEN_LIMIT", 0)
+    monkeypatch.setattr(q, "WIDE_OPEN_LIMIT", 0)
+
+    class Costly(q.BatchContraction):  # make the batch engine look dear: row by row runs
+        def flops(self):
+            return 10**30, 10**30
+
+    monkeypatch.setattr(q, "BatchContraction", Costly)
+    rows = np.random.default_rng(5).integers(0, 2, size=(3, 14), dtype=np.uint8)
+    with tnsim.run_options(memory_limit=limit):
+        got = q.amplitudes(c, rows)
+    psi = dense_state(c)
+    np.testing.assert_allclose(
+        got, psi[rows.astype(np.int64) @ (1 << np.arange(13, -1, -1))], atol=1e-10
+    )

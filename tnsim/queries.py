@@ -24,7 +24,7 @@ from .gates import gate_matrix
 from .lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from .network import TensorNetwork, amplitude_network, doubled_network
 from .observables import Observable, parse_observable
-from .plan import greedy_tree, make_plan
+from .plan import greedy_tree
 from .simplify import absorb_small
 
 __all__ = [
@@ -193,7 +193,7 @@ def iter_amplitudes(
         yield (0, *_open_block(circuit, rows, vary, dt, memory_limit))
         return
     first = absorb_small(amplitude_network(circuit, rows[0], dtype=dt))
-    plan = make_plan(first, memory_limit=memory_limit)
+    plan = fit_plan(first, memory_limit)
     single = count_flops(compile_tree(plan.tree, plan.sliced)) << len(plan.sliced)
     chunk = min(chunk, len(rows))
     base = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt)
@@ -219,7 +219,7 @@ def _row_by_row(
     for k, row in enumerate(rows):
         small = first if k == 0 else absorb_small(amplitude_network(circuit, row, dtype=dt))
         if tuple(small.indices) != tuple(plan.tree.inputs):
-            plan = make_plan(small, memory_limit=memory_limit)
+            plan = fit_plan(small, memory_limit)
         result = execute(small, plan.tree, plan.sliced)
         mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(1)
         yield k, mantissa, np.array([result.exponent], dtype=np.int64)

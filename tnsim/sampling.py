@@ -24,13 +24,13 @@ import numbers
 import numpy as np
 
 from .batch import BatchContraction
+from .budget import fit_plan
 from .circuit import Circuit
 from .errors import InputError, ResourceLimitError
 from .execute import compile_tree, count_flops, execute
 from .lightcone import canonical_cone, cone_circuit, index_circuit
 from .memory import default_memory_limit
 from .network import TensorNetwork, amplitude_network, doubled_network
-from .plan import make_plan
 from .simplify import absorb_small
 
 __all__ = ["sample", "sample_blocks"]
@@ -65,7 +65,7 @@ def _engine_cost(engine: BatchContraction, prefixes: int) -> tuple[int, int]:
 def _planned(network: TensorNetwork, limit: int):
     """Simplify and plan a network; return (cost, peak elements, runner)."""
     small = absorb_small(network)
-    plan = make_plan(small, memory_limit=limit)
+    plan = fit_plan(small, limit)
     steps = compile_tree(plan.tree, plan.sliced)
     cost = count_flops(steps) << len(plan.sliced)
     peak = max((math.prod(st.out_shape) for st in steps), default=1)
