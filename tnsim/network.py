@@ -17,6 +17,7 @@ import opt_einsum
 
 from .bits import parse_bits
 from .circuit import Circuit, Operation
+from .gates import gate_matrix
 
 __all__ = [
     "TensorNetwork",
@@ -227,13 +228,6 @@ def amplitude_network(
     return TensorNetwork(arrays, indices, size, tuple(end[q] for q in open_qubits), 0, dt)
 
 
-_PAULI = {
-    "X": np.array([[0, 1], [1, 0]], dtype=np.complex128),
-    "Y": np.array([[0, -1j], [1j, 0]], dtype=np.complex128),
-    "Z": np.array([[1, 0], [0, -1]], dtype=np.complex128),
-}
-
-
 def doubled_network(
     circuit: Circuit,
     *,
@@ -285,7 +279,7 @@ def doubled_network(
         arrays += [_BASIS[0], _BASIS[0]]
         indices += [(start[q],), (m_start[q],)]
     for q, letter in paulis.items():
-        arrays.append(_PAULI[letter])
+        arrays.append(gate_matrix(letter.lower()))
         indices.append((m_end[q], end[q]))
     dt = np.dtype(dtype)
     arrays = [np.asarray(a, dtype=dt) for a in arrays]

@@ -24,7 +24,7 @@ from .builder import plan_coarse
 from .elimination import elimination_path
 from .partition import bisection_path, sweep_path
 from .reoptimize import reoptimize_path
-from .tree import TreeCost, tree_cost
+from .tree import TreeCost, join_pairwise, tree_cost
 
 __all__ = ["SearchResult", "search_path", "random_greedy_path", "OBJECTIVES", "score"]
 
@@ -147,16 +147,7 @@ def _pairs(ssa, n: int) -> tuple[tuple[int, int], ...]:
     remap: dict[int, int] = {}
     nxt = n
     for k, step in enumerate(ssa):
-        ids = [remap.get(t, t) for t in step]
-        if len(ids) == 1:
-            remap[n + k] = ids[0]
-            continue
-        cur = ids[0]
-        for other in ids[1:]:
-            out.append((cur, other))
-            cur = nxt
-            nxt += 1
-        remap[n + k] = cur
+        remap[n + k], nxt = join_pairwise([remap.get(t, t) for t in step], out, nxt)
     return tuple(out)
 
 

@@ -269,16 +269,29 @@ def linear_to_ssa(linear: Sequence[Sequence[int]], n: int) -> tuple[tuple[int, i
         picked = [ids[p] for p in sorted(step)]
         for p in pos:
             del ids[p]
-        if len(picked) == 1:
-            ids.append(picked[0])
-            continue
-        cur = picked[0]
-        for other in picked[1:]:
-            out.append((cur, other))
-            cur = nxt
-            nxt += 1
+        cur, nxt = join_pairwise(picked, out, nxt)
         ids.append(cur)
     return tuple(out)
+
+
+def join_pairwise(ids: Sequence[int], out: list[tuple[int, int]], nxt: int) -> tuple[int, int]:
+    """Append steps joining ``ids`` left to right to ``out``; new nodes are numbered from ``nxt``.
+
+    Returns the id of the node holding the result (``ids[0]`` when there is one
+    id) and the next unused id.
+
+    Examples
+    --------
+    >>> steps = []
+    >>> join_pairwise([4, 1, 2], steps, 7), steps
+    ((8, 9), [(4, 1), (7, 2)])
+    """
+    cur = ids[0]
+    for other in ids[1:]:
+        out.append((cur, other))
+        cur = nxt
+        nxt += 1
+    return cur, nxt
 
 
 def relabel_compact(
