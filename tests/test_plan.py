@@ -15,7 +15,7 @@ from tnsim.network import TensorNetwork
 from tnsim.plan import ContractionTree, Plan, greedy_tree, make_plan, plan_path
 from tnsim.plan.elimination import elimination_path
 from tnsim.plan.optimizer import Planner
-from tnsim.plan.partition import bisection_path, sweep_path
+from tnsim.plan.partition import bisection_path, sweep_order, sweep_path
 from tnsim.plan.random_networks import random_arrays, random_network
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.search import random_greedy_path, search_path
@@ -147,7 +147,7 @@ PLANNERS = {
     "min-fill": lambda i, o, s: elimination_path(i, o, s, noise=0.5, seed=1),
     "min-degree": lambda i, o, s: elimination_path(i, o, s, heuristic="min-degree"),
     "bisection": lambda i, o, s: bisection_path(i, o, s, leaf_size=2, refine=2, noise=0.3),
-    "sweep": lambda i, o, s: sweep_path(i, o, s, mixes=2),
+    "sweep": lambda i, o, s: sweep_path(i, o, s, noise=0.1, mix=1.0),
     "search": lambda i, o, s: search_path(i, o, s, time_budget=None, max_trials=6).path,
     "plan": lambda i, o, s: plan_path(i, o, s)[0],
     "reoptimize": lambda i, o, s: reoptimize_path(i, o, s, greedy_tree(i, o, s).path),
@@ -348,3 +348,49 @@ def test_search_stops_once_it_has_spent_the_best_trees_contraction_time():
     # must stop right after each planner has had its trial, long before the 30 s budget.
     r = search_path(inputs, output, size, time_budget=30.0, seed=1, stop_rate=1e15)
     assert r.trials == len(METHODS) and r.seconds < 30.0
+
+
+def test_sweep_crosses_a_grid_along_its_long_side():
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.simplify import absorb_small
+
+    # A 4x6 grid circuit of 8 cycles: a column-by-column sweep keeps in its front one
+    # column cut (4 rows x 2 horizontal CZ layers crossing it = 8 labels), the 4 wires
+    # of the column being absorbed, and one label of the tensor being absorbed (13);
+    # greedy contraction orders on such networks are not bound by this.
+    net = absorb_small(amplitude_network(grid_circuit(4, 6, 8, seed=0), "0" * 24))
+    ins, out, size = net.indices, net.output, net.size
+    widths = [tree_cost(ins, out, size, sweep_path(ins, out, size, seed=s)).width for s in range(8)]
+    assert min(widths) <= 13
+
+
+def test_sweep_order_keeps_the_front_thin():
+    # A ring of 8 matrices swept from tensor 0: going round, each step closes one label
+    # and opens the next, so the front stays at two labels (label 0, where the ring was
+    # opened, and the newest); jumping ahead would open a third.
+    ring = [frozenset({k, (k + 1) % 8}) for k in range(8)]
+    order = sweep_order(ring, (), {k: 2 for k in range(8)}, [k / 8 for k in range(8)])
+    assert order == list(range(8))
+
+
+def test_memory_limit_slices_the_cheapest_candidate_tree():
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.plan import plan_candidates
+    from tnsim.plan.tree import memory_order
+    from tnsim.simplify import absorb_small
+
+    net = absorb_small(amplitude_network(grid_circuit(4, 5, 8, seed=0), "0" * 20))
+    ins, out, size = net.indices, net.output, net.size
+    full = make_plan(net, max_trials=10)
+    limit = full.peak_bytes // 16
+    cut = make_plan(net, max_trials=10, memory_limit=limit)
+    assert cut.peak_bytes <= limit and cut.num_slices > 1
+    # No worse than slicing any of the search's candidate trees on its own.
+    candidates = plan_candidates(ins, out, size, max_trials=10)
+    assert len(candidates) > 2
+    for path, _ in candidates:
+        ordered = memory_order(ins, out, size, path)
+        _, one, k = choose_slices(ins, out, size, ordered, limit)
+        assert cut.flops <= one.flops * k + 2 * (k - 1)

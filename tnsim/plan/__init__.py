@@ -26,7 +26,7 @@ from .search import search_path
 from .slicing import choose_slices
 from .tree import ContractionTree, linear_to_ssa, memory_order, tree_cost
 
-__all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_path"]
+__all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_candidates", "plan_path"]
 
 
 class _CallablePackage(types.ModuleType):
@@ -129,6 +129,24 @@ def plan_path(
     inputs: Sequence[Sequence[int]],
     output: Sequence[int],
     size: Mapping[int, int],
+    **options,
+) -> tuple[tuple[tuple[int, int], ...], str]:
+    """Choose an SSA path for a network given as label lists; return it and the planner's name.
+
+    The options are those of :func:`plan_candidates`, which this calls.
+
+    Examples
+    --------
+    >>> plan_path([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2})
+    (((1, 2), (0, 3)), 'exact')
+    """
+    return plan_candidates(inputs, output, size, **options)[0]
+
+
+def plan_candidates(
+    inputs: Sequence[Sequence[int]],
+    output: Sequence[int],
+    size: Mapping[int, int],
     *,
     time_budget: float | None = None,
     seed: int = 0,
@@ -136,30 +154,31 @@ def plan_path(
     itemsize: int = 16,
     max_trials: int | None = None,
     progress: bool = False,
-) -> tuple[tuple[tuple[int, int], ...], str]:
-    """Choose an SSA path for a network given as label lists; return it and the planner's name.
+) -> list[tuple[tuple[tuple[int, int], ...], str]]:
+    """Plan a network given as label lists: the best path and planner, then alternatives.
 
     Small networks (at most :data:`EXACT_MAX_TENSORS` tensors) are planned
     exactly; otherwise greedy is tried first and kept if it costs under
     :data:`SEARCH_THRESHOLD_FLOPS` (unless a ``time_budget`` is given), and the
     search driver runs for ``time_budget`` seconds (default: grows with the
-    greedy cost, 0.3 to 30 s).
+    greedy cost, 0.3 to 30 s).  The alternatives are the best trees of the
+    search's other planners: a tree of another shape may slice better.
 
     Examples
     --------
-    >>> plan_path([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2})
-    (((1, 2), (0, 3)), 'exact')
+    >>> plan_candidates([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2})
+    [(((1, 2), (0, 3)), 'exact')]
     """
     n = len(inputs)
     if n <= 1:
-        return (), "trivial"
+        return [((), "trivial")]
     if n <= EXACT_MAX_TENSORS and time_budget is None:
-        return _exact_path(inputs, output, size), "exact"
+        return [(_exact_path(inputs, output, size), "exact")]
     greedy = greedy_tree(inputs, output, size).path
     cost = tree_cost(inputs, output, size, greedy, itemsize=itemsize)
     fits = memory_limit is None or cost.peak_bytes <= memory_limit
     if time_budget is None and max_trials is None and cost.flops < SEARCH_THRESHOLD_FLOPS and fits:
-        return greedy, "greedy"
+        return [(greedy, "greedy")]
     budget = _default_budget(cost.flops) if time_budget is None else time_budget
     result = search_path(
         inputs,
@@ -173,7 +192,7 @@ def plan_path(
         progress=progress,
         stop_rate=STOP_RATE if time_budget is None else None,
     )
-    return result.path, result.method
+    return [(result.path, result.method), *result.alternatives]
 
 
 def make_plan(
@@ -241,7 +260,7 @@ def make_plan(
     if key in _PLAN_CACHE:
         return _PLAN_CACHE[key]
     # Plan for FLOPs; the memory limit is met by slicing (and re-planning) below.
-    path, method = plan_path(
+    candidates = plan_candidates(
         inputs,
         network.output,
         size,
@@ -251,8 +270,8 @@ def make_plan(
         max_trials=max_trials,
         progress=progress,
     )
-    tree = ContractionTree(inputs, tuple(network.output), size, tuple(path))
-    plan = _finish(tree, limit, itemsize, method, start, time_budget, seed, max_trials)
+    trees = [ContractionTree(inputs, tuple(network.output), size, tuple(p)) for p, _ in candidates]
+    plan = _finish(trees, limit, itemsize, candidates, start, time_budget, seed, max_trials)
     if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
         _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))
     _PLAN_CACHE[key] = plan
@@ -279,37 +298,47 @@ def _limit(memory_limit: int | str | None) -> int | None:
 
 
 def _finish(
-    tree: ContractionTree,
+    trees: list[ContractionTree],
     limit: int | None,
     itemsize: int,
-    method: str,
+    candidates: list[tuple[tuple, str]],
     start: float,
     time_budget: float | None = None,
     seed: int = 0,
     max_trials: int | None = None,
 ) -> Plan:
-    """Slice ``tree`` to fit ``limit`` and fill in the plan's cost fields."""
+    """Slice the best tree (or an alternative that slices cheaper) to fit ``limit``; fill in costs.
+
+    The overhead is counted against the best unsliced tree, ``trees[0]``.
+    """
+    tree, method = trees[0], candidates[0][1]
     full = tree.cost(itemsize=itemsize)
     sliced: tuple[int, ...] = ()
     cost, num = full, 1
     if limit is not None and full.peak_bytes > limit:
-        ordered = memory_order(tree.inputs, tree.output, tree.size, tree.path)
-        tree = ContractionTree(tree.inputs, tree.output, tree.size, ordered)
-        full = tree.cost(itemsize=itemsize)
-        cost = full
-    if limit is not None and full.peak_bytes > limit:
-        try:
-            sliced, cost, num = choose_slices(
-                tree.inputs, tree.output, tree.size, tree.path, limit, itemsize=itemsize
+        best, error = None, None
+        for k, (cand, (_, name)) in enumerate(zip(trees, candidates)):
+            ordered = memory_order(cand.inputs, cand.output, cand.size, cand.path)
+            cand = ContractionTree(cand.inputs, cand.output, cand.size, ordered)
+            if k == 0:
+                full = cand.cost(itemsize=itemsize)
+            try:
+                cut = choose_slices(
+                    cand.inputs, cand.output, cand.size, cand.path, limit, itemsize=itemsize
+                )
+            except ResourceLimitError as exc:
+                error = error or exc
+                continue
+            if best is None or cut[1].flops * cut[2] < best[0]:
+                best = (cut[1].flops * cut[2], cand, name, cut)
+        if best is None:
+            raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
+        _, tree, method, (sliced, cost, num) = best
+        if num > 1:
+            tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize)
+            tree, cost = _replan_sliced(
+                tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials
             )
-        except ResourceLimitError as exc:
-            raise ResourceLimitError(
-                f"no plan fits a memory limit of {limit} bytes: {exc}"
-            ) from None
-        tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize)
-        tree, cost = _replan_sliced(
-            tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials
-        )
     out_numel = math.prod(tree.size[i] for i in tree.output)
     flops = cost.flops * num + 2 * out_numel * (num - 1)
     return Plan(

@@ -8,10 +8,17 @@ weighted graph Laplacian; Fiedler, Czech. Math. J. 23, 298, 1973): among the
 prefixes whose size lies in the allowed balance window, the one cutting the
 fewest label weight (a hyperedge counts once) is taken, optionally refined by
 Kernighan-Lin (Kernighan and Lin, Bell Syst. Tech. J. 49, 291, 1970).
+
+The same spectral embedding also steers *sweeps* (:func:`sweep_path`): one
+front absorbs the tensors one at a time, always the neighbour that keeps the
+front thinnest, pulled along one spectral direction so that it crosses the
+network.  On grid circuits this finds the row- or column-wise sweeps whose
+front is a single cut of the grid.
 """
 
 from __future__ import annotations
 
+import heapq
 import math
 from collections.abc import Mapping, Sequence
 
@@ -21,9 +28,8 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from .builder import PathBuilder
-from .tree import tree_cost
 
-__all__ = ["bisection_path", "sweep_path"]
+__all__ = ["bisection_path", "sweep_order", "sweep_path"]
 
 
 def _spectral(n: int, rows, cols, vals, rng: np.random.Generator, k: int) -> np.ndarray:
@@ -46,13 +52,16 @@ def _sweep(order, labels, weight, lo: int, hi: int) -> tuple[float, int]:
     return min((prof[k - 1], k) for k in range(lo, hi + 1))
 
 
-def _split(group, labels, weight, rng, imbalance, noise, refine, num_vectors=3, mixes=4):
-    """Split ``group`` (list of tensor ids) in two."""
-    index = {t: k for k, t in enumerate(group)}
+def _edges(group, labels, weight, rng=None, noise=0.0):
+    """Weighted edge list of the tensor graph of ``group`` (positions in ``group``).
+
+    A label held by ``h`` tensors of the group joins each pair of them with
+    weight ``weight[label] / (h - 1)``, times log-normal noise of scale ``noise``.
+    """
     holders: dict[int, list[int]] = {}
-    for t in group:
+    for k, t in enumerate(group):
         for i in labels[t]:
-            holders.setdefault(i, []).append(index[t])
+            holders.setdefault(i, []).append(k)
     rows, cols, vals = [], [], []
     for i, hs in holders.items():
         if len(hs) < 2:
@@ -65,6 +74,13 @@ def _split(group, labels, weight, rng, imbalance, noise, refine, num_vectors=3, 
                 rows.append(hs[a])
                 cols.append(hs[b])
                 vals.append(w)
+    return rows, cols, vals
+
+
+def _split(group, labels, weight, rng, imbalance, noise, refine, num_vectors=3, mixes=4):
+    """Split ``group`` (list of tensor ids) in two."""
+    index = {t: k for k, t in enumerate(group)}
+    rows, cols, vals = _edges(group, labels, weight, rng, noise)
     n = len(group)
     graph = sp.coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(n, n))
     ncomp, comp = sp.csgraph.connected_components(graph, directed=False)
@@ -194,22 +210,139 @@ def _cut_profile(order, labels, weight) -> list[float]:
     return prof
 
 
+_EMBEDDINGS: dict[tuple, list[tuple[list[int], np.ndarray]]] = {}
+
+
+def _embedding(labels: Sequence[frozenset[int]], size, num_vectors: int):
+    """Connected components of the tensor graph and each one's spectral embedding (cached).
+
+    The embedding is the ``num_vectors`` lowest non-trivial eigenvectors of the
+    component's Laplacian (edge weights: log2 of the label size, shared out over
+    a hyperedge's holders), computed with a fixed seed so that it can be reused
+    by every sweep trial on the same network.
+    """
+    key = (tuple(tuple(sorted(ix)) for ix in labels), num_vectors)
+    if key in _EMBEDDINGS:
+        return _EMBEDDINGS[key]
+    n = len(labels)
+    weight = {i: math.log2(size[i]) + 1e-3 for ix in labels for i in ix}
+    rows, cols, vals = _edges(range(n), labels, weight)
+    graph = sp.coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(n, n))
+    _, comp = sp.csgraph.connected_components(graph, directed=False)
+    parts = []
+    rng = np.random.default_rng(0)
+    groups: dict[int, list[int]] = {}
+    for t, c in enumerate(comp.tolist()):
+        groups.setdefault(c, []).append(t)
+    for members in groups.values():
+        if len(members) <= 2:
+            parts.append((members, np.zeros((len(members), 1))))
+            continue
+        r, c, v = _edges(members, labels, weight)
+        vecs = _spectral(len(members), r, c, v, rng, min(len(members) - 2, num_vectors))
+        parts.append((members, vecs))
+    if len(_EMBEDDINGS) >= 8:
+        _EMBEDDINGS.pop(next(iter(_EMBEDDINGS)))
+    _EMBEDDINGS[key] = parts
+    return parts
+
+
+def sweep_order(
+    labels: Sequence[frozenset[int]],
+    output: Sequence[int],
+    size: Mapping[int, int],
+    position: Sequence[float],
+    *,
+    pull: float = 3.0,
+    noise: float = 0.0,
+    rng: np.random.Generator | None = None,
+) -> list[int]:
+    """Order tensors for a sweep: a front grows from the lowest ``position``, one tensor at a time.
+
+    The next tensor is the front's neighbour with the smallest key: the label
+    bits its absorption adds to the front (labels it closes count negative),
+    plus ``pull`` times its ``position`` (in [0, 1]), plus Gumbel noise of
+    scale ``noise``.  The pull keeps the front advancing across the network;
+    the first term keeps it thin.  A front with no neighbour left restarts at
+    the lowest remaining position.
+
+    Examples
+    --------
+    >>> chain = [frozenset({k, k + 1}) for k in range(4)]
+    >>> sweep_order(chain, (), {k: 2 for k in range(5)}, [0.9, 0.1, 0.5, 0.7])
+    [1, 2, 3, 0]
+    """
+    n = len(labels)
+    holders: dict[int, list[int]] = {}
+    for t, ix in enumerate(labels):
+        for i in ix:
+            holders.setdefault(i, []).append(t)
+    weight = {i: math.log2(size[i]) for i in holders}
+    out = set(output)
+    left = {i: len(h) for i, h in holders.items()}
+    front: set[int] = set()
+    inside = [False] * n
+    version = [0] * n
+    heap: list[tuple[float, int, int]] = []
+
+    def push(t: int) -> None:
+        version[t] += 1
+        grow = 0.0
+        for i in labels[t]:
+            if i in front:
+                if left[i] == 1 and i not in out:
+                    grow -= weight[i]
+            elif left[i] > 1 or i in out:
+                grow += weight[i]
+        key = grow + pull * position[t]
+        if noise and rng is not None:
+            key += noise * float(rng.gumbel())
+        heapq.heappush(heap, (key, t, version[t]))
+
+    by_position = sorted(range(n), key=lambda t: position[t])
+    next_start = 0
+    order: list[int] = []
+    while len(order) < n:
+        if not heap:
+            while inside[by_position[next_start]]:
+                next_start += 1
+            push(by_position[next_start])
+        _, t, v = heapq.heappop(heap)
+        if inside[t] or v != version[t]:
+            continue
+        inside[t] = True
+        order.append(t)
+        touched = set()
+        for i in labels[t]:
+            left[i] -= 1
+            if left[i] > 0 or i in out:
+                front.add(i)
+            else:
+                front.discard(i)
+            touched.update(u for u in holders[i] if not inside[u])
+        for u in touched:
+            push(u)
+    return order
+
+
 def sweep_path(
     inputs: Sequence[Sequence[int]],
     output: Sequence[int],
     size: Mapping[int, int],
     *,
-    num_vectors: int = 4,
-    mixes: int = 8,
+    pull: float = 3.0,
     noise: float = 0.0,
+    mix: float = 0.3,
+    num_vectors: int = 4,
     seed: int | np.random.Generator | None = 0,
 ) -> tuple[tuple[int, int], ...]:
-    """Plan a sweep: tensors absorbed one by one into a growing front, in spectral order.
+    """Plan a sweep: tensors absorbed one by one into a growing front (:func:`sweep_order`).
 
-    The order is the one, among projections of the network's spectral embedding
-    (a few low Laplacian eigenvectors and random mixtures), whose largest cut
-    along the sweep is smallest (a cutwidth heuristic).  Each connected
-    component is swept on its own.
+    The direction of the sweep is one of the network's spectral coordinates
+    (the ``num_vectors`` lowest Laplacian eigenvectors, the lower ones more
+    often; on a grid circuit the first two follow its rows and columns) plus
+    ``mix`` times a random mixture of all of them, with a random sign.  Each connected component is
+    swept on its own; the components are then joined greedily.
 
     Examples
     --------
@@ -219,58 +352,25 @@ def sweep_path(
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     b = PathBuilder(inputs, output, size)
-    weight = {i: math.log2(size[i]) + 1e-3 for ix in inputs for i in ix}
-    labels = b.labels
-    n = b.n
-    holders: dict[int, list[int]] = {}
-    for t in range(n):
-        for i in labels[t]:
-            holders.setdefault(i, []).append(t)
-    rows, cols, vals = [], [], []
-    for i, hs in holders.items():
-        w = weight[i] / max(1, len(hs) - 1)
-        if noise:
-            w *= math.exp(noise * rng.standard_normal())
-        for a in range(len(hs)):
-            for c in range(a + 1, len(hs)):
-                rows.append(hs[a])
-                cols.append(hs[c])
-                vals.append(w)
-    graph = sp.coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(n, n))
-    ncomp, comp = sp.csgraph.connected_components(graph, directed=False)
     roots = []
-    for c in range(ncomp):
-        members = [t for t in range(n) if comp[t] == c]
+    for members, vecs in _embedding(b.labels, size, num_vectors):
         if len(members) <= 2:
-            roots.append(b.join_greedy(members) if len(members) > 1 else members[0])
+            roots.append(b.join_greedy(members))
             continue
-        index = {t: k for k, t in enumerate(members)}
-        sel = [k for k, (r, _) in enumerate(zip(rows, cols)) if comp[r] == c]
-        vecs = _spectral(
-            len(members),
-            [index[rows[k]] for k in sel],
-            [index[cols[k]] for k in sel],
-            [vals[k] for k in sel],
-            rng,
-            min(len(members) - 2, num_vectors),
-        )
-        eye = np.eye(vecs.shape[1])
-        directions = (
-            list(eye) + list(-eye) + [rng.standard_normal(vecs.shape[1]) for _ in range(mixes)]
-        )
-        best = None
-        for d in directions:
-            order = [members[k] for k in np.argsort(vecs @ d, kind="stable")]
-            sub = [labels[t] for t in order]
-            ext = b.external(order)
-            chain = [(0, 1)] + [(len(order) + k - 2, k) for k in range(2, len(order))]
-            key = tree_cost(sub, ext, size, chain).flops
-            if best is None or key < best[0]:
-                best = (key, order)
-        order = best[1]
-        cur = order[0]
+        k = vecs.shape[1]
+        # Lower eigenvectors vary slowest across the network: draw them more often.
+        axis = int(rng.choice(k, p=np.arange(k, 0, -1) / (k * (k + 1) / 2)))
+        direction = np.eye(k)[axis] * rng.choice([-1.0, 1.0])
+        direction = direction + mix * rng.standard_normal(k)
+        z = vecs @ direction
+        position = np.empty(len(members))
+        position[np.argsort(z, kind="stable")] = np.arange(len(members)) / len(members)
+        sub = [b.labels[t] for t in members]
+        ext = b.external(members)
+        order = sweep_order(sub, ext, size, position, pull=pull, noise=noise, rng=rng)
+        cur = members[order[0]]
         for t in order[1:]:
-            cur = b.join(cur, t)
+            cur = b.join(cur, members[t])
         roots.append(cur)
     if len(roots) > 1:
         b.join_greedy(roots)

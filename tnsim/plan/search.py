@@ -1,7 +1,8 @@
 """The search driver: many seeded planner trials under a time and trial budget.
 
 Each trial draws a planner (greedy with Boltzmann-randomised choices, an
-elimination order, recursive bisection, a spectral sweep) and random
+elimination order, recursive bisection, a spectral sweep; after one trial of
+each, half the draws go to the planner of the best tree so far) and random
 parameters from one ``numpy`` generator seeded once, scores the tree by the
 objective, and keeps the best.  The best tree is then improved by exact
 re-planning of its sub-trees (:mod:`.reoptimize`).  With the same seed and a
@@ -47,6 +48,9 @@ class SearchResult:
         Trials run.
     seconds : float
         Wall time spent.
+    alternatives : tuple of (path, str)
+        The best tree of each other planner that had a trial, best first (a
+        tree of a different shape may slice better than the winner).
     """
 
     path: tuple[tuple[int, int], ...]
@@ -54,6 +58,7 @@ class SearchResult:
     method: str
     trials: int
     seconds: float
+    alternatives: tuple[tuple[tuple[tuple[int, int], ...], str], ...] = ()
 
 
 def score(cost: TreeCost, objective: str = "flops", memory_limit: int | None = None) -> float:
@@ -187,9 +192,9 @@ def _trial(method: str, inputs, output, size, rng: np.random.Generator):
             inputs,
             output,
             size,
-            num_vectors=int(rng.integers(2, 9)),
-            mixes=int(rng.integers(0, 17)),
-            noise=float(rng.choice([0.0, 0.2, 0.5])),
+            pull=float(rng.choice([1.0, 2.0, 3.0, 5.0, 8.0])),
+            noise=float(rng.choice([0.0, 0.0, 0.05, 0.1])),
+            mix=float(rng.choice([0.03, 0.1, 0.1, 0.3])),
             seed=rng,
         )
     raise ValueError(f"unknown planner {method!r}")
@@ -275,7 +280,12 @@ def search_path(
     try:
         while True:
             if trials >= len(methods):
-                method = str(rng.choice([m for m in methods if m != "greedy"] or methods))
+                # Half the trials go to the planner of the best tree so far, half to any.
+                pool = [m for m in methods if m != "greedy"] or methods
+                if best[3] in pool and rng.random() < 0.5:
+                    method = best[3]
+                else:
+                    method = str(rng.choice(pool))
             else:
                 method = methods[trials]
             path = _trial(method, inputs, output, size, rng)
@@ -314,7 +324,10 @@ def search_path(
                 left = max(0.05 * time_budget, (time_budget - spent) / (len(finalists) - k))
             new = reoptimize_path(inputs, output, size, cand, time_budget=left)
             new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
-            if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
+            new_key = score(new_cost, objective, memory_limit)
+            if new_key < per_method[name][0]:
+                per_method[name] = (new_key, new, new_cost, name)
+            if new_key < score(cost, objective, memory_limit):
                 path, cost, method = new, new_cost, name
         # Time left over: re-plan larger sub-trees (10 leaves) of the winner.
         if time_budget is not None and len(path) > 10:
@@ -326,4 +339,9 @@ def search_path(
                 new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
                 if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
                     path, cost = new, new_cost
-    return SearchResult(tuple(path), cost, method, trials, time.perf_counter() - start)
+    others = tuple(
+        (tuple(p), name)
+        for _, p, _, name in sorted(per_method.values(), key=lambda r: r[0])
+        if name != method
+    )
+    return SearchResult(tuple(path), cost, method, trials, time.perf_counter() - start, others)
