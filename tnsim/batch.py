@@ -15,7 +15,16 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .execute import Scaled, apply_step, compile_tree, count_flops, execute, normalize
+from .execute import (
+    SLACK,
+    Scaled,
+    apply_step,
+    compile_tree,
+    count_flops,
+    execute,
+    normalize,
+    normalize_owned,
+)
 from .network import TensorNetwork
 from .plan import ContractionTree, Plan, make_plan
 from .simplify import absorb_small
@@ -125,7 +134,7 @@ class BatchContraction:
         for k, ((x, y), step) in enumerate(zip(tree.path, self.steps)):
             if not self.varying[n + k]:
                 (a, ea), (b, eb) = nodes.pop(x), nodes.pop(y)
-                c, e = normalize(apply_step(step, a, b))
+                c, e = normalize_owned(apply_step(step, a, b), SLACK)
                 nodes[n + k] = (c, ea + eb + e)
         self.cached = nodes
 
@@ -181,7 +190,7 @@ class BatchContraction:
             if not self.varying[n + k]:
                 continue
             (a, ea), (b, eb) = nodes.pop(x), nodes.pop(y)
-            c, e = normalize(apply_step(step, a, b))
+            c, e = normalize_owned(apply_step(step, a, b), SLACK)
             nodes[n + k] = (c, ea + eb + e)
         root_id = n + len(tree.path) - 1 if tree.path else 0
         root, exponent = nodes[root_id]

@@ -395,7 +395,7 @@ def contract_tree(
 SLACK = 32
 
 
-def _normalize_owned(array: np.ndarray, slack: int = 0) -> tuple[np.ndarray, int]:
+def normalize_owned(array: np.ndarray, slack: int = 0) -> tuple[np.ndarray, int]:
     """:func:`normalize` in place, for a freshly computed intermediate.
 
     With ``slack``, an array whose peak exponent ``e`` has ``|e| <= slack`` is
@@ -434,7 +434,7 @@ def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
             pair = [nodes[x], nodes[y]]
             nodes[x] = nodes[y] = None
             c = _apply_owned(step, pair)
-            c, e = _normalize_owned(c, SLACK)
+            c, e = normalize_owned(c, SLACK)
             exponent += e
             nodes.append(c)
     finally:
