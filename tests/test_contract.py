@@ -60,3 +60,24 @@ def test_bad_equations_raise_input_error(eq, shapes, match):
 def test_non_string_equation():
     with pytest.raises(InputError, match="string"):
         contract(3, np.ones(2))
+
+
+def test_memory_limit_bounds_what_the_executor_allocates():
+    # Bug found: the planner counted live intermediates but not the executor's reordered
+    # operand copies, so contract(..., memory_limit=L) could allocate up to ~1.7x L.
+    from tnsim.execute import compile_tree, peak_memory
+    from tnsim.network import TensorNetwork
+    from tnsim.plan import make_plan
+
+    rng = np.random.default_rng(3)
+    shapes = {0: 8, 1: 8, 2: 8, 3: 8, 4: 8}
+    indices = [(0, 1, 2), (2, 3), (3, 4, 0), (1, 4)]
+    arrays = [rng.standard_normal(tuple(shapes[i] for i in ix)) + 0j for ix in indices]
+    network = TensorNetwork(arrays, indices, shapes, ())
+    limit = 16 * 256
+    plan = make_plan(network, memory_limit=limit)
+    assert peak_memory(plan.tree, compile_tree(plan.tree, plan.sliced), 16) <= limit
+    eq = "abc,cd,dea,be->"
+    np.testing.assert_allclose(
+        contract(eq, *arrays, memory_limit=limit), np.einsum(eq, *arrays), rtol=1e-10
+    )

@@ -1,28 +1,22 @@
-"""Plans that fit the executor's memory accounting.
+"""Plans that fit the memory limit of a run.
 
-The planner (:func:`tnsim.plan.make_plan`) slices a plan until its live
-intermediates fit a memory limit.  The executor also holds, within a step, the
-reordered copy of an operand next to the operand itself
-(:func:`tnsim.execute.peak_memory`), so its peak is somewhat above the
-planner's count.  :func:`fit_plan` asks the planner for a smaller limit until
-the executor's own count fits, so the plan it returns runs under the limit.
+The planner counts memory as the executor allocates it (operand copies
+included, :func:`tnsim.plan.tree.tree_cost`), so a plan sliced to a limit runs
+under it.  :func:`fit_plan` resolves the limit a query runs under (the
+argument, else the enclosing :func:`tnsim.runconfig.run_options` block's, else
+half of the available memory, divided among local workers) and plans for it.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from .errors import ResourceLimitError
 from .execute import compile_tree, peak_memory
-from .memory import format_bytes
 from .network import TensorNetwork
 from .plan import Plan, make_plan
 from .runconfig import slice_memory_limit
 
 __all__ = ["fit_plan", "plan_peak_memory"]
-
-#: Attempts at shrinking the planner's limit before giving up.
-ATTEMPTS = 6
 
 
 def plan_peak_memory(network: TensorNetwork, plan: Plan) -> int:
@@ -60,24 +54,4 @@ def fit_plan(
     >>> plan_peak_memory(tn, fit_plan(tn, "1MiB")) <= 2**20
     True
     """
-    limit = slice_memory_limit(memory_limit)
-    budget, best = limit, None
-    for _ in range(ATTEMPTS):
-        try:
-            plan = make_plan(network, memory_limit=budget, seed=seed)
-        except ResourceLimitError:
-            if best is None:
-                raise
-            break
-        need = plan_peak_memory(network, plan)
-        if need <= limit:
-            return plan
-        best = need if best is None else min(best, need)
-        budget = min(budget - 1, budget * limit // need)
-        if budget < 1:
-            break
-    raise ResourceLimitError(
-        f"no plan fits the memory limit of {format_bytes(limit)} ({limit} bytes) once the "
-        f"executor's reordering copies are counted; the best plan found needs "
-        f"{format_bytes(best)} ({best} bytes) per running slice: give at least that"
-    )
+    return make_plan(network, memory_limit=slice_memory_limit(memory_limit), seed=seed)

@@ -67,8 +67,8 @@ def choose_slices(
     Examples
     --------
     >>> ins, size = [(0, 1), (1, 2), (2, 0)], {0: 4, 1: 4, 2: 4}
-    >>> sliced, cost, k = choose_slices(ins, (), size, [(0, 1), (2, 3)], 16 * 5)
-    >>> len(sliced), cost.peak_bytes <= 80, k
+    >>> sliced, cost, k = choose_slices(ins, (), size, [(0, 1), (2, 3)], 16 * 24)
+    >>> len(sliced), cost.peak_bytes <= 16 * 24, k
     (1, True, 4)
     """
     sliced: list[int] = []

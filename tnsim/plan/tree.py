@@ -22,8 +22,13 @@ root still holds labels outside the output they are summed the same way.
 Index permutations (transposes) cost no FLOPs here.
 
 Memory: ``peak_bytes`` is the largest total size of the *intermediates* alive
-at once (each step's two operands and its result are alive together); the input
-tensors are not counted (:attr:`TreeCost.input_bytes` gives them).  ``width``
+at once, counted as the executor allocates them: within a step, each operand's
+reordered copy (``|A'|``, ``|B'|``) is made while the operand still exists and
+the operand goes right after, then the result is made next to both copies; the
+root's final reordered copy counts too.  Copies of inputs count; the input
+tensors themselves do not (:attr:`TreeCost.input_bytes` gives them).  The
+executor skips copies it does not need, so its own count
+(:func:`tnsim.execute.peak_memory`) is never above this one.  ``width``
 is ``log2`` of the largest intermediate in elements; ``written`` is the total
 number of elements of all intermediates.
 """
@@ -54,7 +59,8 @@ class TreeCost:
     flops : int
         Real floating-point operations (a complex multiply-add is 8).
     peak_bytes : int
-        Largest total bytes of intermediates alive at once (inputs excluded).
+        Largest total bytes of intermediates alive at once, operand copies
+        included (inputs excluded; see the module notes).
     width : float
         ``log2`` of the number of elements of the largest intermediate.
     largest : int
@@ -129,8 +135,8 @@ def tree_cost(
     Examples
     --------
     >>> c = tree_cost([(0, 1), (1, 2)], (0, 2), {0: 2, 1: 3, 2: 4}, [(0, 1)])
-    >>> c.flops, c.largest, c.peak_bytes
-    (192, 8, 128)
+    >>> c.flops, c.largest, c.peak_bytes  # peak: copies of both inputs (6 + 12) and the result (8)
+    (192, 8, 416)
     """
     gone = set(sliced)
     out = set(output) - gone
@@ -149,16 +155,26 @@ def tree_cost(
             flops += 2 * (_numel(b, size) - _numel(b2, size))
         flops += 8 * _numel(a2 | b2, size)
         numel = _numel(keep, size)
+        na, nb = _numel(a2, size), _numel(b2, size)
+        others = live - sizes[x] - sizes[y]
+        # Each operand's reordered copy is made while the operand exists, then the operand
+        # goes; the result is made next to both copies (as the executor does).
+        peak = max(
+            peak,
+            others + sizes[x] + sizes[y] + na,
+            others + na + sizes[y] + nb,
+            others + na + nb + numel,
+        )
         sizes.append(numel)
-        live += numel
-        peak = max(peak, live)
-        live -= sizes[x] + sizes[y]
+        live = others + numel
         largest = max(largest, numel)
         written += numel
     root = labels[-1] if labels else frozenset()
     extra = root - out
     if extra:
         flops += 2 * (_numel(root, size) - _numel(root & out, size))
+    if path:
+        peak = max(peak, live + sizes[-1])  # the result's final reordered copy
     width = math.log2(largest) if largest else 0.0
     return TreeCost(flops, peak * itemsize, width, largest, written, input_bytes, itemsize)
 
