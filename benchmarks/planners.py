@@ -15,6 +15,7 @@ Run::
     python benchmarks/planners.py              # the full table (long)
     python benchmarks/planners.py --quick      # small instances, short budgets
     python benchmarks/planners.py --only grid --budget-scale 1
+    python benchmarks/planners.py --slicing --objective time   # slicing of run-time plans
 """
 
 from __future__ import annotations
@@ -93,6 +94,12 @@ def main() -> None:
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--no-random-greedy", action="store_true")
     ap.add_argument(
+        "--objective",
+        choices=("flops", "time"),
+        default="flops",
+        help="what tnsim minimises (default flops: the targets are FLOP counts)",
+    )
+    ap.add_argument(
         "--slicing",
         action="store_true",
         help="instead: slicing overhead at 1/16 of the unsliced peak (grids)",
@@ -126,7 +133,9 @@ def main() -> None:
                 ("oe random-greedy128", *run_baseline(net, eq, RandomGreedy(max_repeats=128)))
             )
         t0 = time.perf_counter()
-        plan = make_plan(net, time_budget=budget * args.budget_scale, seed=args.seed)
+        plan = make_plan(
+            net, time_budget=budget * args.budget_scale, seed=args.seed, objective=args.objective
+        )
         seconds = time.perf_counter() - t0
         ours = oe_cost(net, eq, plan.tree.linear_path()) if len(net) > 1 else 0.0
         rows.append((f"tnsim ({plan.method})", ours, plan.flops, plan.width, seconds))
@@ -150,10 +159,11 @@ def slicing_table(args) -> None:
         if family != "grid":
             continue
         net = network_of(circuit)
-        full = make_plan(net, time_budget=budget * args.budget_scale / 2, seed=args.seed)
+        half = budget * args.budget_scale / 2
+        full = make_plan(net, time_budget=half, seed=args.seed, objective=args.objective)
         limit = full.peak_bytes // 16
         cut = make_plan(
-            net, time_budget=budget * args.budget_scale / 2, seed=args.seed, memory_limit=limit
+            net, time_budget=half, seed=args.seed, memory_limit=limit, objective=args.objective
         )
         print(
             f"{name:<22} {math.log10(full.flops):14.2f} {full.peak_bytes:10.3g} "

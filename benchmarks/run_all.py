@@ -13,8 +13,8 @@ Steps, each in its own process:
 3. ``benchmarks/crossover.py``: tnsim against the dense state vector.
 4. The other benchmark scripts, when present and committed (a script git does
    not track yet is work in progress and is skipped): ``planners.py``,
-   ``scaling.py``, ``queries.py`` (given ``--quick`` in quick mode) and
-   ``qasm_read.py``.
+   ``scaling.py``, ``queries.py``, ``time_model.py`` (given ``--quick`` in
+   quick mode) and ``qasm_read.py``.
 """
 
 from __future__ import annotations
@@ -32,6 +32,7 @@ OTHERS = {
     "planners.py": ["--quick"],
     "scaling.py": ["--quick"],
     "queries.py": ["--quick"],
+    "time_model.py": ["--quick"],
     "qasm_read.py": ["--gates", "5000", "--repeats", "1"],
 }
 

@@ -417,3 +417,35 @@ def test_planner_peak_is_never_below_the_executors_count(seed):
     for sliced in [(), tuple(labels[:2])]:
         planned = tree_cost(inputs, output, size, tree.path, sliced=sliced).peak_bytes
         assert planned >= peak_memory(tree, compile_tree(tree, sliced), 16)
+
+
+def test_time_objective_weighs_elements_written():
+    # The same two trials (a sweep, then a bisection) scored two ways: "flops" keeps the
+    # tree with fewer FLOPs, "time" the one with fewer FLOPs + WRITE_FLOPS * written.
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.plan.search import WRITE_FLOPS, score
+    from tnsim.simplify import absorb_small
+
+    net = absorb_small(amplitude_network(grid_circuit(7, 7, 8, seed=0), "0" * 49))
+    ins, out, size = net.indices, net.output, net.size
+    runs = {
+        objective: search_path(
+            ins,
+            out,
+            size,
+            time_budget=None,
+            max_trials=2,
+            methods=["sweep", "bisection"],
+            reoptimize=False,
+            objective=objective,
+        )
+        for objective in ("flops", "time")
+    }
+    by_flops, by_time = runs["flops"].cost, runs["time"].cost
+    assert by_flops.flops <= by_time.flops
+    assert score(by_time, "time") <= score(by_flops, "time")
+    assert score(by_time, "time") == by_time.flops + WRITE_FLOPS * by_time.written
+    # The two trees differ here: the sweep needs 3x fewer FLOPs but writes 25x more
+    # elements (it rewrites its whole front at every step).
+    assert {runs["flops"].method, runs["time"].method} == {"sweep", "bisection"}

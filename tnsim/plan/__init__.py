@@ -22,7 +22,7 @@ from ..errors import InputError, ResourceLimitError
 from ..network import TensorNetwork
 from .greedy import greedy_tree
 from .reoptimize import reoptimize_path
-from .search import search_path
+from .search import score, search_path
 from .slicing import choose_slices
 from .tree import ContractionTree, linear_to_ssa, memory_order, tree_cost
 
@@ -154,6 +154,7 @@ def plan_candidates(
     itemsize: int = 16,
     max_trials: int | None = None,
     progress: bool = False,
+    objective: str = "flops",
 ) -> list[tuple[tuple[tuple[int, int], ...], str]]:
     """Plan a network given as label lists: the best path and planner, then alternatives.
 
@@ -161,8 +162,9 @@ def plan_candidates(
     exactly; otherwise greedy is tried first and kept if it costs under
     :data:`SEARCH_THRESHOLD_FLOPS` (unless a ``time_budget`` is given), and the
     search driver runs for ``time_budget`` seconds (default: grows with the
-    greedy cost, 0.3 to 30 s).  The alternatives are the best trees of the
-    search's other planners: a tree of another shape may slice better.
+    greedy cost, 0.3 to 30 s) and keeps the best tree by ``objective`` (see
+    :func:`tnsim.plan.search.score`).  The alternatives are the best trees of
+    the search's other planners: a tree of another shape may slice better.
 
     Examples
     --------
@@ -191,6 +193,7 @@ def plan_candidates(
         itemsize=itemsize,
         progress=progress,
         stop_rate=STOP_RATE if time_budget is None else None,
+        objective=objective,
     )
     return [(result.path, result.method), *result.alternatives]
 
@@ -203,6 +206,7 @@ def make_plan(
     seed: int = 0,
     max_trials: int | None = None,
     progress: bool = False,
+    objective: str = "time",
 ) -> Plan:
     """Choose a contraction plan for ``network``, sliced to fit ``memory_limit``.
 
@@ -224,6 +228,10 @@ def make_plan(
         Limit on the search's trials.
     progress : bool
         Show a progress bar while searching.
+    objective : {"time", "flops", "size", "combo"}
+        What the search minimises (:func:`tnsim.plan.search.score`): by default
+        a model of run time, FLOPs plus a cost per element written; ``"flops"``
+        for the fewest operations.
 
     Returns
     -------
@@ -256,6 +264,7 @@ def make_plan(
         time_budget,
         seed,
         max_trials,
+        objective,
     )
     if key in _PLAN_CACHE:
         return _PLAN_CACHE[key]
@@ -269,9 +278,12 @@ def make_plan(
         itemsize=itemsize,
         max_trials=max_trials,
         progress=progress,
+        objective=objective,
     )
     trees = [ContractionTree(inputs, tuple(network.output), size, tuple(p)) for p, _ in candidates]
-    plan = _finish(trees, limit, itemsize, candidates, start, time_budget, seed, max_trials)
+    plan = _finish(
+        trees, limit, itemsize, candidates, start, (time_budget, seed, max_trials, objective)
+    )
     if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
         _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))
     _PLAN_CACHE[key] = plan
@@ -303,14 +315,14 @@ def _finish(
     itemsize: int,
     candidates: list[tuple[tuple, str]],
     start: float,
-    time_budget: float | None = None,
-    seed: int = 0,
-    max_trials: int | None = None,
+    search: tuple = (None, 0, None, "flops"),
 ) -> Plan:
     """Slice the best tree (or an alternative that slices cheaper) to fit ``limit``; fill in costs.
 
-    The overhead is counted against the best unsliced tree, ``trees[0]``.
+    The overhead is counted against the best unsliced tree, ``trees[0]``;
+    ``search`` is ``(time_budget, seed, max_trials, objective)`` of the search.
     """
+    objective = search[3]
     tree, method = trees[0], candidates[0][1]
     full = tree.cost(itemsize=itemsize)
     sliced: tuple[int, ...] = ()
@@ -329,16 +341,15 @@ def _finish(
             except ResourceLimitError as exc:
                 error = error or exc
                 continue
-            if best is None or cut[1].flops * cut[2] < best[0]:
-                best = (cut[1].flops * cut[2], cand, name, cut)
+            total = score(cut[1], objective) * cut[2]
+            if best is None or total < best[0]:
+                best = (total, cand, name, cut)
         if best is None:
             raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
         _, tree, method, (sliced, cost, num) = best
         if num > 1:
-            tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize)
-            tree, cost = _replan_sliced(
-                tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials
-            )
+            tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective)
+            tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, *search)
     out_numel = math.prod(tree.size[i] for i in tree.output)
     flops = cost.flops * num + 2 * out_numel * (num - 1)
     return Plan(
@@ -357,19 +368,19 @@ def _finish(
     )
 
 
-def _reoptimize_sliced(tree, sliced, cost, limit, itemsize):
+def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective):
     """Re-plan sub-trees of the sliced tree; keep the result if it still fits."""
     gone = set(sliced)
     ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
     out = tuple(i for i in tree.output if i not in gone)
     new = reoptimize_path(ins, out, tree.size, tree.path, max_leaves=8, passes=1, time_budget=2.0)
     new_cost = tree_cost(ins, out, tree.size, new, itemsize=itemsize)
-    if new_cost.flops < cost.flops and new_cost.peak_bytes <= limit:
+    if score(new_cost, objective) < score(cost, objective) and new_cost.peak_bytes <= limit:
         return ContractionTree(tree.inputs, tree.output, tree.size, new), new_cost
     return tree, cost
 
 
-def _replan_sliced(tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials):
+def _replan_sliced(tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials, objective):
     """Search again on the network with the sliced labels removed; keep a cheaper tree that fits."""
     if len(tree.path) < 3:
         return tree, cost
@@ -388,9 +399,10 @@ def _replan_sliced(tree, sliced, cost, limit, itemsize, time_budget, seed, max_t
         seed=seed,
         memory_limit=limit,
         itemsize=itemsize,
+        objective=objective,
     )
     path = memory_order(ins, out, tree.size, result.path)
     new_cost = tree_cost(ins, out, tree.size, path, itemsize=itemsize)
-    if new_cost.flops < cost.flops and new_cost.peak_bytes <= limit:
+    if score(new_cost, objective) < score(cost, objective) and new_cost.peak_bytes <= limit:
         return ContractionTree(tree.inputs, tree.output, tree.size, path), new_cost
     return tree, cost

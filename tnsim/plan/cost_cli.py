@@ -25,7 +25,14 @@ def _cmd_cost(args: argparse.Namespace) -> int:
         )
     bits = "0" * circuit.num_qubits if args.bits is None else args.bits
     bits = format_bits(parse_bits(bits, circuit.num_qubits))
-    report = plan(circuit, bits, memory_limit=limit, time_budget=args.time_budget, seed=args.seed)
+    report = plan(
+        circuit,
+        bits,
+        memory_limit=limit,
+        time_budget=args.time_budget,
+        seed=args.seed,
+        objective=args.objective,
+    )
     if args.json:
         data = report.to_dict()
         data["units"] = {
@@ -67,5 +74,12 @@ def add_cost_command(sub) -> None:
         help="seconds of planner search (default: automatic)",
     )
     cost.add_argument("--seed", type=int, default=0, help="seed of the planner (default 0)")
+    cost.add_argument(
+        "--objective",
+        choices=("time", "flops"),
+        default="time",
+        help="what the planner minimises: a run-time model (FLOPs plus a cost per element "
+        "written; default) or FLOPs alone",
+    )
     cost.add_argument("--json", action="store_true", help="machine-readable output")
     cost.set_defaults(func=_cmd_cost)

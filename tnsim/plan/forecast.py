@@ -1,8 +1,9 @@
 """Forecasts: what contracting a circuit's amplitude network will cost, before running it.
 
-The time forecast divides the plan's FLOPs by this machine's measured rate of
-a dense complex matrix product (the physical limit for dense contraction);
-the rate is measured once (a fraction of a second), kept in memory and in a
+The time forecast divides the plan's FLOPs, plus a fitted cost per element of
+intermediates written (:data:`tnsim.plan.search.WRITE_FLOPS`), by this
+machine's measured rate of a dense complex matrix product (the physical limit
+for dense contraction); the rate is measured once (a fraction of a second), kept in memory and in a
 small JSON file in the user's cache directory (``$XDG_CACHE_HOME/tnsim`` or
 ``~/.cache/tnsim``; an unwritable directory is tolerated).
 """
@@ -24,6 +25,7 @@ from ..errors import InputError
 from ..network import amplitude_network
 from ..simplify import absorb_small
 from . import Plan, make_plan
+from .search import WRITE_FLOPS
 
 __all__ = ["PlanReport", "plan", "matmul_rate", "format_report", "sparkline", "opt_einsum_cost"]
 
@@ -114,10 +116,14 @@ class PlanReport:
         Whether the unsliced tree fits ``memory_limit`` (True without a limit).
     itemsize : int
         Bytes per element (16: complex128).
+    written : int
+        Elements of intermediates written, all slices together.
     flop_rate : float
         Measured real FLOP/s of a dense complex matrix product here.
     seconds : float
-        Forecast run time ``flops / flop_rate`` (a lower bound in practice).
+        Forecast run time ``(flops + WRITE_FLOPS * written) / flop_rate``: the
+        FLOPs at the matmul rate plus a fitted cost per element written
+        (:data:`tnsim.plan.search.WRITE_FLOPS`).
     planning_seconds : float
         Time spent planning.
     method : str
@@ -142,6 +148,7 @@ class PlanReport:
     memory_limit: int | None
     fits_unsliced: bool
     itemsize: int
+    written: int
     flop_rate: float
     seconds: float
     planning_seconds: float
@@ -177,6 +184,7 @@ def plan(
     time_budget: float | None = None,
     seed: int = 0,
     dtype=np.complex128,
+    objective: str = "time",
 ) -> PlanReport:
     """Plan the amplitude ``<x|C|0...0>`` of ``circuit`` and forecast its cost (no big arrays).
 
@@ -194,6 +202,8 @@ def plan(
         Seed of the planner.
     dtype : numpy dtype
         complex128 (default) or complex64, for the byte figures and the rate.
+    objective : {"time", "flops"}
+        What the planner minimises (see :func:`tnsim.plan.make_plan`).
 
     Returns
     -------
@@ -218,8 +228,11 @@ def plan(
         bits = "0" * circuit.num_qubits
     network = amplitude_network(circuit, bits, dtype=dt)
     small = absorb_small(network)
-    p = make_plan(small, memory_limit=memory_limit, time_budget=time_budget, seed=seed)
+    p = make_plan(
+        small, memory_limit=memory_limit, time_budget=time_budget, seed=seed, objective=objective
+    )
     rate = matmul_rate(dt)
+    written = p.tree.cost(sliced=p.sliced, itemsize=p.itemsize).written * p.num_slices
     unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
     sizes = p.tree.intermediate_sizes(p.sliced)
     limit = None if memory_limit is None else _bytes(memory_limit)
@@ -240,8 +253,9 @@ def plan(
         memory_limit=limit,
         fits_unsliced=limit is None or p.unsliced_peak_bytes <= limit,
         itemsize=p.itemsize,
+        written=written,
         flop_rate=rate,
-        seconds=p.flops / rate,
+        seconds=(p.flops + WRITE_FLOPS * written) / rate,
         planning_seconds=p.seconds,
         method=p.method,
         profile=tuple(math.log2(s) for s in sizes),
@@ -316,7 +330,12 @@ def format_report(r: PlanReport) -> str:
         ),
         ("peak intermediates", f"{_fmt_bytes(r.peak_bytes)} per slice ({r.itemsize} B/element)"),
         ("slices", f"{r.num_slices} ({r.sliced_labels} labels), overhead x{r.overhead:.3f}"),
-        ("forecast", f"{_fmt_seconds(r.seconds)} at {r.flop_rate / 1e9:.3g} GFLOP/s (matmul rate)"),
+        ("elements written", f"{r.written:.4g}  (log10 {lg(r.written):.2f})"),
+        (
+            "forecast",
+            f"{_fmt_seconds(r.seconds)} at {r.flop_rate / 1e9:.3g} GFLOP/s (matmul rate), "
+            f"{WRITE_FLOPS} FLOPs' time per element written",
+        ),
     ]
     if r.memory_limit is not None:
         verdict = (

@@ -38,6 +38,10 @@ class Planner(oe_paths.PathOptimizer):
         Bytes per element for memory figures (16: complex128).
     progress : bool
         Show a progress bar while searching.
+    objective : {"flops", "time", "size", "combo"}
+        What the search minimises (default ``"flops"``, opt_einsum's own
+        measure; ``"time"`` adds a cost per element written, see
+        :func:`tnsim.plan.search.score`).
 
     Attributes
     ----------
@@ -61,6 +65,7 @@ class Planner(oe_paths.PathOptimizer):
         max_trials: int | None = None,
         itemsize: int = 16,
         progress: bool = False,
+        objective: str = "flops",
     ):
         self.time_budget = time_budget
         self.seed = seed
@@ -68,6 +73,7 @@ class Planner(oe_paths.PathOptimizer):
         self.max_trials = max_trials
         self.itemsize = itemsize
         self.progress = progress
+        self.objective = objective
         self.last_method = ""
 
     def __call__(
@@ -97,6 +103,7 @@ class Planner(oe_paths.PathOptimizer):
             itemsize=self.itemsize,
             max_trials=self.max_trials,
             progress=self.progress,
+            objective=self.objective,
         )
         return list(ssa_to_linear(path, len(ins)))
 

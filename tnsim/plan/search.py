@@ -27,9 +27,25 @@ from .partition import bisection_path, sweep_path
 from .reoptimize import reoptimize_path
 from .tree import TreeCost, join_pairwise, tree_cost
 
-__all__ = ["SearchResult", "search_path", "random_greedy_path", "OBJECTIVES", "score"]
+__all__ = [
+    "SearchResult",
+    "search_path",
+    "random_greedy_path",
+    "OBJECTIVES",
+    "WRITE_FLOPS",
+    "score",
+]
 
-OBJECTIVES = ("flops", "size", "combo")
+OBJECTIVES = ("flops", "time", "size", "combo")
+
+WRITE_FLOPS = 400
+"""FLOPs that writing one element of an intermediate costs in time, at the matmul rate.
+
+Fitted on the development machine (2-core x86-64, numpy's OpenBLAS, complex128):
+execution time = FLOPs / 7.2e10 + 5.4 ns per element written, over 17 plans of grid
+circuits with 10^6.8 to 10^10.4 FLOPs (``python benchmarks/time_model.py``).  Sweeps,
+whose every step rewrites the whole front to absorb one small tensor, need ~3x fewer
+FLOPs than bisection trees there but ran 3-4x slower."""
 
 
 @dataclass(frozen=True)
@@ -64,23 +80,26 @@ class SearchResult:
 def score(cost: TreeCost, objective: str = "flops", memory_limit: int | None = None) -> float:
     """Objective value of a tree's cost (lower is better).
 
-    ``flops``: the FLOPs; ``size``: the largest intermediate, then FLOPs;
-    ``combo``: ``log2 FLOPs + log2 written``.  With ``memory_limit`` (bytes) a
-    tree whose peak exceeds it is charged the slicing it would need: its FLOPs
-    times ``peak / limit`` (slicing by a factor ``k`` costs at least ``k``
-    slices of FLOPs each no smaller than ``1/k``; the factor estimates the
-    overhead from above for balanced trees).
+    ``flops``: the FLOPs; ``time``: FLOPs plus :data:`WRITE_FLOPS` per element
+    written (a model of run time in FLOPs at the matmul rate); ``size``: the
+    largest intermediate, then FLOPs; ``combo``: ``log2 FLOPs + log2 written``.
+    With ``memory_limit`` (bytes) a tree whose peak exceeds it is charged the
+    slicing it would need: its value times ``peak / limit`` (slicing by a
+    factor ``k`` costs at least ``k`` slices of FLOPs each no smaller than
+    ``1/k``; the factor estimates the overhead from above for balanced trees).
 
     Examples
     --------
     >>> c = TreeCost(800, 32, 1.0, 2, 2, 64, 16)
-    >>> score(c), score(c, memory_limit=16)
-    (800.0, 1600.0)
+    >>> score(c), score(c, memory_limit=16), score(c, "time")
+    (800.0, 1600.0, 1600.0)
     """
     flops = float(cost.flops)
+    if objective == "time":
+        flops += WRITE_FLOPS * cost.written
     if memory_limit is not None and cost.peak_bytes > memory_limit:
         flops *= cost.peak_bytes / memory_limit
-    if objective == "flops":
+    if objective in ("flops", "time"):
         return flops
     if objective == "size":
         return cost.largest * 1e30 + flops
@@ -233,7 +252,7 @@ def search_path(
         Stop after this many trials.
     seed : int
         Seeds the single numpy generator behind every random choice.
-    objective : {"flops", "size", "combo"}
+    objective : {"flops", "time", "size", "combo"}
         See :func:`score`.
     memory_limit : int, optional
         Bytes; trees whose peak exceeds it are charged their slicing overhead.
