@@ -22,8 +22,9 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     two results are bit-for-bit equal.
 ``grid``
     A 10 x 10 qubit, 12-cycle grid amplitude under ``memory_limit=2GiB``: its
-    plan (``tnsim.budget.fit_plan``) and forecast seconds (FLOPs over the
-    measured matmul rate); run only if it is short.  Then a 7 x 7, 12-cycle
+    plan (``tnsim.budget.fit_plan``) and forecast seconds (FLOPs, plus
+    ``WRITE_FLOPS`` per element written, over the measured matmul rate, as
+    ``tnsim.plan`` forecasts); run only if it is short.  Then a 7 x 7, 12-cycle
     amplitude sliced to fit 64 MiB, run: forecast against measured time.
 
 The machine's load average is printed before and after: other processes on the
@@ -180,7 +181,11 @@ def _grid_run(rows, cols, cycles, limit, run: bool) -> None:
     plan = fit_plan(network, limit)
     planning = time.perf_counter() - start
     rate, source = _forecast_rate(np.complex64)
-    forecast = plan.flops / rate
+    # tnsim's forecast (tnsim.plan.forecast.plan): FLOPs plus the fitted cost per element written.
+    from tnsim.plan.search import WRITE_FLOPS
+
+    written = plan.tree.cost(sliced=plan.sliced, itemsize=8).written * plan.num_slices
+    forecast = (plan.flops + WRITE_FLOPS * written) / rate
     head = (
         f"grid: {rows}x{cols} {cycles} cycles, memory_limit {format_bytes(limit)}: "
         f"{plan.flops:.3g} FLOPs, {plan.num_slices} slices, planned in {planning:.1f} s; "

@@ -41,10 +41,11 @@ OBJECTIVES = ("flops", "time", "size", "combo")
 WRITE_FLOPS = 400
 """FLOPs that writing one element of an intermediate costs in time, at the matmul rate.
 
-Fitted on the development machine (2-core x86-64, numpy's OpenBLAS, complex128):
-execution time = FLOPs / 7.2e10 + 5.4 ns per element written, over 17 plans of grid
-circuits with 10^6.8 to 10^10.4 FLOPs (``python benchmarks/time_model.py``).  Sweeps,
-whose every step rewrites the whole front to absorb one small tensor, need ~3x fewer
+Fitted on the development machine (2-core x86-64, numpy's OpenBLAS, complex128) by
+``python benchmarks/time_model.py``: execution time = FLOPs / (6.1-7.2e10 FLOP/s) +
+5.0-5.4 ns per element written (+ a per-step term), over 17 plans of grid circuits with
+10^6.8 to 10^10.4 FLOPs; 300 and 390 FLOPs per element in two runs.  Sweeps, whose
+every step rewrites the whole front to absorb one small tensor, need up to 3x fewer
 FLOPs than bisection trees there but ran 3-4x slower."""
 
 
