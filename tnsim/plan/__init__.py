@@ -281,9 +281,8 @@ def make_plan(
         objective=objective,
     )
     trees = [ContractionTree(inputs, tuple(network.output), size, tuple(p)) for p, _ in candidates]
-    plan = _finish(
-        trees, limit, itemsize, candidates, start, (time_budget, seed, max_trials, objective)
-    )
+    search = dict(time_budget=time_budget, seed=seed, max_trials=max_trials, objective=objective)
+    plan = _finish(trees, [name for _, name in candidates], limit, itemsize, start, search)
     if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
         _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))
     _PLAN_CACHE[key] = plan
@@ -311,25 +310,26 @@ def _limit(memory_limit: int | str | None) -> int | None:
 
 def _finish(
     trees: list[ContractionTree],
+    methods: list[str],
     limit: int | None,
     itemsize: int,
-    candidates: list[tuple[tuple, str]],
     start: float,
-    search: tuple = (None, 0, None, "flops"),
+    search: dict,
 ) -> Plan:
     """Slice the best tree (or an alternative that slices cheaper) to fit ``limit``; fill in costs.
 
-    The overhead is counted against the best unsliced tree, ``trees[0]``;
-    ``search`` is ``(time_budget, seed, max_trials, objective)`` of the search.
+    ``methods`` names each tree's planner; the overhead is counted against the
+    best unsliced tree, ``trees[0]``; ``search`` holds the search's options
+    (``time_budget``, ``seed``, ``max_trials``, ``objective``) for re-planning.
     """
-    objective = search[3]
-    tree, method = trees[0], candidates[0][1]
+    objective = search["objective"]
+    tree, method = trees[0], methods[0]
     full = tree.cost(itemsize=itemsize)
     sliced: tuple[int, ...] = ()
     cost, num = full, 1
     if limit is not None and full.peak_bytes > limit:
         best, error = None, None
-        for k, (cand, (_, name)) in enumerate(zip(trees, candidates)):
+        for k, (cand, name) in enumerate(zip(trees, methods)):
             ordered = memory_order(cand.inputs, cand.output, cand.size, cand.path)
             cand = ContractionTree(cand.inputs, cand.output, cand.size, ordered)
             if k == 0:
@@ -349,7 +349,7 @@ def _finish(
         _, tree, method, (sliced, cost, num) = best
         if num > 1:
             tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective)
-            tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, *search)
+            tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, **search)
     out_numel = math.prod(tree.size[i] for i in tree.output)
     flops = cost.flops * num + 2 * out_numel * (num - 1)
     return Plan(
@@ -380,7 +380,9 @@ def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective):
     return tree, cost
 
 
-def _replan_sliced(tree, sliced, cost, limit, itemsize, time_budget, seed, max_trials, objective):
+def _replan_sliced(
+    tree, sliced, cost, limit, itemsize, *, time_budget, seed, max_trials, objective
+):
     """Search again on the network with the sliced labels removed; keep a cheaper tree that fits."""
     if len(tree.path) < 3:
         return tree, cost
