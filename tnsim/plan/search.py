@@ -349,16 +349,17 @@ def search_path(
                 per_method[name] = (new_key, new, new_cost, name)
             if new_key < score(cost, objective, memory_limit):
                 path, cost, method = new, new_cost, name
-        # Time left over: re-plan larger sub-trees (10 leaves) of the winner.
-        if time_budget is not None and len(path) > 10:
-            left = time_budget - (time.perf_counter() - start)
-            if left > 0.1 * time_budget:
-                new = reoptimize_path(
-                    inputs, output, size, path, max_leaves=10, passes=4, time_budget=left
-                )
-                new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
-                if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
-                    path, cost = new, new_cost
+        # Time left over: re-plan larger sub-trees of the winner (10 leaves, then 12).
+        for leaves in (10, 12):
+            left = None if time_budget is None else time_budget - (time.perf_counter() - start)
+            if left is None or left <= 0.1 * time_budget or len(path) <= leaves:
+                break
+            new = reoptimize_path(
+                inputs, output, size, path, max_leaves=leaves, passes=4, time_budget=left
+            )
+            new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
+            if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
+                path, cost = new, new_cost
     others = tuple(
         (tuple(p), name)
         for _, p, _, name in sorted(per_method.values(), key=lambda r: r[0])
