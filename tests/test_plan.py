@@ -390,9 +390,9 @@ def test_memory_limit_slices_the_cheapest_candidate_tree():
 
     net = absorb_small(amplitude_network(grid_circuit(4, 5, 8, seed=0), "0" * 20))
     ins, out, size = net.indices, net.output, net.size
-    full = make_plan(net, max_trials=10)
+    full = make_plan(net, max_trials=10, objective="flops")
     limit = full.peak_bytes // 16
-    cut = make_plan(net, max_trials=10, memory_limit=limit)
+    cut = make_plan(net, max_trials=10, memory_limit=limit, objective="flops")
     assert cut.peak_bytes <= limit and cut.num_slices > 1
     # No worse than slicing any of the search's candidate trees on its own.
     candidates = plan_candidates(ins, out, size, max_trials=10)
@@ -449,3 +449,29 @@ def test_time_objective_weighs_elements_written():
     # The two trees differ here: the sweep needs 3x fewer FLOPs but writes 25x more
     # elements (it rewrites its whole front at every step).
     assert {runs["flops"].method, runs["time"].method} == {"sweep", "bisection"}
+
+
+def test_same_seed_and_trial_budget_give_the_same_sliced_plan():
+    # Bug found: with max_trials but no time_budget, make_plan still gave the search a default
+    # time budget and timed sub-tree re-planning, so a loaded machine could change the plan.
+    import time as _time
+
+    import tnsim.plan as plan_module
+    from tnsim.families import grid_circuit
+    from tnsim.network import amplitude_network
+    from tnsim.plan import reoptimize as reopt_module
+    from tnsim.simplify import absorb_small
+
+    net = absorb_small(amplitude_network(grid_circuit(6, 6, 8, seed=0), "0" * 36))
+    limit = make_plan(net, max_trials=6).peak_bytes // 8
+    plans = []
+    real = _time.perf_counter
+    for slow in (False, True):
+        plan_module._PLAN_CACHE.clear()
+        if slow:  # every clock reading 10 s later than the last: any time limit would bind
+            reopt_module.time.perf_counter = itertools.count(0.0, 10.0).__next__
+        try:
+            plans.append(make_plan(net, max_trials=6, memory_limit=limit, seed=3))
+        finally:
+            reopt_module.time.perf_counter = real
+    assert plans[0].tree.path == plans[1].tree.path and plans[0].sliced == plans[1].sliced

@@ -181,7 +181,11 @@ def plan_candidates(
     fits = memory_limit is None or cost.peak_bytes <= memory_limit
     if time_budget is None and max_trials is None and cost.flops < SEARCH_THRESHOLD_FLOPS and fits:
         return [(greedy, "greedy")]
+    # A trial budget without a time budget makes the search reproducible: no time limits.
+    reproducible = time_budget is None and max_trials is not None
     budget = _default_budget(cost.flops) if time_budget is None else time_budget
+    if reproducible:
+        budget = None
     result = search_path(
         inputs,
         output,
@@ -192,7 +196,7 @@ def plan_candidates(
         memory_limit=memory_limit,
         itemsize=itemsize,
         progress=progress,
-        stop_rate=STOP_RATE if time_budget is None else None,
+        stop_rate=STOP_RATE if time_budget is None and not reproducible else None,
         objective=objective,
     )
     return [(result.path, result.method), *result.alternatives]
@@ -222,10 +226,11 @@ def make_plan(
         exactly and at once; larger ones get a budget growing with their
         greedy cost, see :func:`plan_path`).
     seed : int
-        Seed of every random choice (same seed and a binding ``max_trials``:
-        same plan).
+        Seed of every random choice.
     max_trials : int, optional
-        Limit on the search's trials.
+        Limit on the search's trials.  Given without ``time_budget``, nothing
+        in planning is limited by time, so the same seed gives the same plan
+        on any machine and under any load.
     progress : bool
         Show a progress bar while searching.
     objective : {"time", "flops", "size", "combo"}
@@ -348,7 +353,8 @@ def _finish(
             raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
         _, tree, method, (sliced, cost, num) = best
         if num > 1:
-            tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective)
+            seconds = None if search["max_trials"] is not None else 2.0
+            tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds)
             tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, **search)
     out_numel = math.prod(tree.size[i] for i in tree.output)
     flops = cost.flops * num + 2 * out_numel * (num - 1)
@@ -368,12 +374,14 @@ def _finish(
     )
 
 
-def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective):
+def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds):
     """Re-plan sub-trees of the sliced tree; keep the result if it still fits."""
     gone = set(sliced)
     ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
     out = tuple(i for i in tree.output if i not in gone)
-    new = reoptimize_path(ins, out, tree.size, tree.path, max_leaves=8, passes=1, time_budget=2.0)
+    new = reoptimize_path(
+        ins, out, tree.size, tree.path, max_leaves=8, passes=1, time_budget=seconds
+    )
     new_cost = tree_cost(ins, out, tree.size, new, itemsize=itemsize)
     if score(new_cost, objective) < score(cost, objective) and new_cost.peak_bytes <= limit:
         return ContractionTree(tree.inputs, tree.output, tree.size, new), new_cost
