@@ -181,11 +181,10 @@ def _grid_run(rows, cols, cycles, limit, run: bool) -> None:
     plan = fit_plan(network, limit)
     planning = time.perf_counter() - start
     rate, source = _forecast_rate(np.complex64)
-    # tnsim's forecast (tnsim.plan.forecast.plan): FLOPs plus the fitted cost per element written.
-    from tnsim.plan.search import WRITE_FLOPS
+    # tnsim's forecast (as tnsim.plan gives it): FLOPs plus the fitted cost per element written.
+    from tnsim.plan.forecast import elements_written, forecast_seconds
 
-    written = plan.tree.cost(sliced=plan.sliced, itemsize=8).written * plan.num_slices
-    forecast = (plan.flops + WRITE_FLOPS * written) / rate
+    forecast = forecast_seconds(plan.flops, elements_written(plan), rate)
     head = (
         f"grid: {rows}x{cols} {cycles} cycles, memory_limit {format_bytes(limit)}: "
         f"{plan.flops:.3g} FLOPs, {plan.num_slices} slices, planned in {planning:.1f} s; "

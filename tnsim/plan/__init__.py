@@ -116,6 +116,14 @@ STOP_RATE = 1e10
 tree would take to contract at this (deliberately low) rate; see :func:`search_path`."""
 
 
+def _untimed(time_budget: float | None, max_trials: int | None) -> bool:
+    """Whether planning runs with no time limit anywhere: a trial budget and no time budget.
+
+    Then the same seed gives the same plan on any machine and under any load.
+    """
+    return time_budget is None and max_trials is not None
+
+
 def _default_budget(flops: int) -> float:
     """Seconds of search worth spending on a tree whose greedy cost is ``flops``.
 
@@ -181,10 +189,9 @@ def plan_candidates(
     fits = memory_limit is None or cost.peak_bytes <= memory_limit
     if time_budget is None and max_trials is None and cost.flops < SEARCH_THRESHOLD_FLOPS and fits:
         return [(greedy, "greedy")]
-    # A trial budget without a time budget makes the search reproducible: no time limits.
-    reproducible = time_budget is None and max_trials is not None
+    untimed = _untimed(time_budget, max_trials)
     budget = _default_budget(cost.flops) if time_budget is None else time_budget
-    if reproducible:
+    if untimed:
         budget = None
     result = search_path(
         inputs,
@@ -196,7 +203,7 @@ def plan_candidates(
         memory_limit=memory_limit,
         itemsize=itemsize,
         progress=progress,
-        stop_rate=STOP_RATE if time_budget is None and not reproducible else None,
+        stop_rate=STOP_RATE if time_budget is None and not untimed else None,
         objective=objective,
     )
     return [(result.path, result.method), *result.alternatives]
@@ -353,7 +360,7 @@ def _finish(
             raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
         _, tree, method, (sliced, cost, num) = best
         if num > 1:
-            seconds = None if search["max_trials"] is not None else 2.0
+            seconds = None if _untimed(search["time_budget"], search["max_trials"]) else 2.0
             tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds)
             tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, **search)
     out_numel = math.prod(tree.size[i] for i in tree.output)
@@ -398,7 +405,7 @@ def _replan_sliced(
     ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
     out = tuple(i for i in tree.output if i not in gone)
     budget = 0.5 * time_budget if time_budget is not None else _default_budget(cost.flops)
-    if max_trials is not None and time_budget is None:
+    if _untimed(time_budget, max_trials):
         budget = None
     result = search_path(
         ins,

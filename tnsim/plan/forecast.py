@@ -27,7 +27,16 @@ from ..simplify import absorb_small
 from . import Plan, make_plan
 from .search import WRITE_FLOPS
 
-__all__ = ["PlanReport", "plan", "matmul_rate", "format_report", "sparkline", "opt_einsum_cost"]
+__all__ = [
+    "PlanReport",
+    "plan",
+    "matmul_rate",
+    "elements_written",
+    "forecast_seconds",
+    "format_report",
+    "sparkline",
+    "opt_einsum_cost",
+]
 
 _RATES: dict[str, float] = {}
 
@@ -160,6 +169,23 @@ class PlanReport:
         return asdict(self)
 
 
+def elements_written(p: Plan) -> int:
+    """Elements of intermediates a plan writes, all slices together."""
+    return sum(p.tree.intermediate_sizes(p.sliced)) * p.num_slices
+
+
+def forecast_seconds(flops: int, written: int, rate: float) -> float:
+    """Forecast run time: ``flops`` plus :data:`~tnsim.plan.search.WRITE_FLOPS` per element
+    ``written``, at ``rate`` FLOP/s (the measured matmul rate, :func:`matmul_rate`).
+
+    Examples
+    --------
+    >>> forecast_seconds(10**9, 10**6, 1e9) == 1 + WRITE_FLOPS / 1000
+    True
+    """
+    return (flops + WRITE_FLOPS * written) / rate
+
+
 def opt_einsum_cost(p: Plan) -> float:
     """opt_einsum's cost count (``opt_cost``) of a plan's tree exported as a linear path."""
     tree = p.tree
@@ -232,9 +258,9 @@ def plan(
         small, memory_limit=memory_limit, time_budget=time_budget, seed=seed, objective=objective
     )
     rate = matmul_rate(dt)
-    written = p.tree.cost(sliced=p.sliced, itemsize=p.itemsize).written * p.num_slices
     unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
     sizes = p.tree.intermediate_sizes(p.sliced)
+    written = sum(sizes) * p.num_slices
     limit = None if memory_limit is None else _bytes(memory_limit)
     return PlanReport(
         num_qubits=circuit.num_qubits,
@@ -255,7 +281,7 @@ def plan(
         itemsize=p.itemsize,
         written=written,
         flop_rate=rate,
-        seconds=(p.flops + WRITE_FLOPS * written) / rate,
+        seconds=forecast_seconds(p.flops, written, rate),
         planning_seconds=p.seconds,
         method=p.method,
         profile=tuple(math.log2(s) for s in sizes),

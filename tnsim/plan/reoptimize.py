@@ -16,27 +16,9 @@ from collections.abc import Mapping, Sequence
 
 import opt_einsum.paths as oe_paths
 
-from .tree import linear_to_ssa, step_labels, tree_cost
+from .tree import linear_to_ssa, step_flops, step_labels, tree_cost
 
-__all__ = ["reoptimize_path", "step_flops"]
-
-
-def step_flops(a: frozenset, b: frozenset, keep: frozenset, size: Mapping[int, int]) -> int:
-    """FLOPs of joining label sets ``a`` and ``b`` into ``keep`` (the model of :mod:`.tree`).
-
-    Examples
-    --------
-    >>> step_flops(frozenset({0, 1}), frozenset({1, 2}), frozenset({0, 2}), {0: 2, 1: 3, 2: 4})
-    192
-    """
-    a2 = frozenset(i for i in a if i in b or i in keep)
-    b2 = frozenset(i for i in b if i in a or i in keep)
-    f = 8 * math.prod(size[i] for i in a2 | b2)
-    if a2 != a:
-        f += 2 * (math.prod(size[i] for i in a) - math.prod(size[i] for i in a2))
-    if b2 != b:
-        f += 2 * (math.prod(size[i] for i in b) - math.prod(size[i] for i in b2))
-    return f
+__all__ = ["reoptimize_path"]
 
 
 class _Tree:

@@ -45,6 +45,7 @@ __all__ = [
     "TreeCost",
     "relabel_compact",
     "tree_cost",
+    "step_flops",
     "step_labels",
     "memory_order",
 ]
@@ -84,6 +85,31 @@ class TreeCost:
 
 def _numel(labels: Iterable[int], size: Mapping[int, int]) -> int:
     return math.prod(size[i] for i in labels)
+
+
+def _step(a: frozenset, b: frozenset, keep: frozenset, size: Mapping[int, int]):
+    """FLOPs of joining label sets ``a`` and ``b`` into ``keep``, and the elements of the
+    operands after their pre-summation (``|A'|``, ``|B'|``; see the module notes)."""
+    a2 = frozenset(i for i in a if i in b or i in keep)
+    b2 = frozenset(i for i in b if i in a or i in keep)
+    na, nb = _numel(a2, size), _numel(b2, size)
+    flops = 8 * _numel(a2 | b2, size)
+    if a2 != a:
+        flops += 2 * (_numel(a, size) - na)
+    if b2 != b:
+        flops += 2 * (_numel(b, size) - nb)
+    return flops, na, nb
+
+
+def step_flops(a: frozenset, b: frozenset, keep: frozenset, size: Mapping[int, int]) -> int:
+    """FLOPs of joining label sets ``a`` and ``b`` into ``keep`` (the model above).
+
+    Examples
+    --------
+    >>> step_flops(frozenset({0, 1}), frozenset({1, 2}), frozenset({0, 2}), {0: 2, 1: 3, 2: 4})
+    192
+    """
+    return _step(a, b, keep, size)[0]
 
 
 def step_labels(
@@ -146,16 +172,10 @@ def tree_cost(
     sizes = [0] * n
     flops = live = peak = largest = written = 0
     for s, (x, y) in enumerate(path):
-        a, b, keep = labels[x], labels[y], labels[n + s]
-        a2 = frozenset(i for i in a if i in b or i in keep)
-        b2 = frozenset(i for i in b if i in a or i in keep)
-        if a2 != a:
-            flops += 2 * (_numel(a, size) - _numel(a2, size))
-        if b2 != b:
-            flops += 2 * (_numel(b, size) - _numel(b2, size))
-        flops += 8 * _numel(a2 | b2, size)
+        keep = labels[n + s]
+        step, na, nb = _step(labels[x], labels[y], keep, size)
+        flops += step
         numel = _numel(keep, size)
-        na, nb = _numel(a2, size), _numel(b2, size)
         others = live - sizes[x] - sizes[y]
         # Each operand's reordered copy is made while the operand exists, then the operand
         # goes; the result is made next to both copies (as the executor does).
