@@ -108,20 +108,20 @@ def default_memory_limit() -> int:
     return max(1, available_memory() // 2)
 
 
-def format_bytes(num: float) -> str:
-    """Return a byte count as short text with a binary prefix.
+def format_bytes(num: float, digits: int = 2) -> str:
+    """Return a byte count as short text with a binary prefix (``digits`` decimals).
 
     Examples
     --------
     >>> format_bytes(3 * 1024**3)
     '3.00 GiB'
-    >>> format_bytes(512)
-    '512 B'
+    >>> format_bytes(512), format_bytes(25000, 1)
+    ('512 B', '24.4 KiB')
     """
     if num < 1024:
         return f"{int(num)} B"
     for unit in ("KiB", "MiB", "GiB", "TiB", "PiB"):
         num /= 1024
         if num < 1024 or unit == "PiB":
-            return f"{num:.2f} {unit}"
+            return f"{num:.{digits}f} {unit}"
     raise AssertionError("unreachable")

@@ -22,9 +22,10 @@ import opt_einsum
 
 from ..circuit import Circuit
 from ..errors import InputError
+from ..memory import format_bytes
 from ..network import amplitude_network
 from ..simplify import absorb_small
-from . import Plan, make_plan
+from . import Plan, _limit, make_plan
 from .search import WRITE_FLOPS
 
 __all__ = [
@@ -261,7 +262,7 @@ def plan(
     unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
     sizes = p.tree.intermediate_sizes(p.sliced)
     written = sum(sizes) * p.num_slices
-    limit = None if memory_limit is None else _bytes(memory_limit)
+    limit = _limit(memory_limit)
     return PlanReport(
         num_qubits=circuit.num_qubits,
         num_tensors=len(network),
@@ -288,14 +289,6 @@ def plan(
     )
 
 
-def _bytes(limit: int | str) -> int:
-    if isinstance(limit, str):
-        from ..memory import parse_memory
-
-        return parse_memory(limit)
-    return int(limit)
-
-
 _BARS = " ▁▂▃▄▅▆▇█"
 
 
@@ -316,14 +309,6 @@ def sparkline(values: Sequence[float], width: int = 60) -> str:
     lo, hi = min(vals), max(vals)
     span = hi - lo or 1.0
     return "".join(_BARS[int(round((v - lo) / span * (len(_BARS) - 1)))] for v in vals)
-
-
-def _fmt_bytes(n: float) -> str:
-    for unit in ("B", "KiB", "MiB", "GiB", "TiB", "PiB", "EiB"):
-        if n < 1024 or unit == "EiB":
-            return f"{n:.1f} {unit}" if unit != "B" else f"{int(n)} B"
-        n /= 1024
-    return f"{n:.1f} EiB"
 
 
 def _fmt_seconds(s: float) -> str:
@@ -354,7 +339,10 @@ def format_report(r: PlanReport) -> str:
             "width (log2 elements)",
             f"{r.width:.1f}" + (f"  (unsliced {r.unsliced_width:.1f})" if r.num_slices > 1 else ""),
         ),
-        ("peak intermediates", f"{_fmt_bytes(r.peak_bytes)} per slice ({r.itemsize} B/element)"),
+        (
+            "peak intermediates",
+            f"{format_bytes(r.peak_bytes, 1)} per slice ({r.itemsize} B/element)",
+        ),
         ("slices", f"{r.num_slices} ({r.sliced_labels} labels), overhead x{r.overhead:.3f}"),
         ("elements written", f"{r.written:.4g}  (log10 {lg(r.written):.2f})"),
         (
@@ -368,11 +356,11 @@ def format_report(r: PlanReport) -> str:
             "fits"
             if r.fits_unsliced
             else (
-                f"unsliced tree needs {_fmt_bytes(r.unsliced_peak_bytes)}: does NOT fit; "
+                f"unsliced tree needs {format_bytes(r.unsliced_peak_bytes, 1)}: does NOT fit; "
                 f"sliced into {r.num_slices} slices it does"
             )
         )
-        rows.insert(7, ("memory limit", f"{_fmt_bytes(r.memory_limit)}: {verdict}"))
+        rows.insert(7, ("memory limit", f"{format_bytes(r.memory_limit, 1)}: {verdict}"))
     key_w = max(len(k) for k, _ in rows)
     lines = [f"{k:<{key_w}}  {v}" for k, v in rows]
     if r.profile:
