@@ -79,7 +79,11 @@ def contract_network(network: TensorNetwork, *, memory_limit: int | None = None)
     Scaled
         ``mantissa * 2**exponent``, axes in the order of ``network.output``.
     """
-    small = absorb_small(network)
+    return _contract_simplified(absorb_small(network), memory_limit)
+
+
+def _contract_simplified(small: TensorNetwork, memory_limit: int | None) -> Scaled:
+    """Plan and contract a network that :func:`absorb_small` has already simplified."""
     plan = fit_plan(small, memory_limit)
     return execute(small, plan.tree, plan.sliced, memory_limit=memory_limit)
 
@@ -337,11 +341,11 @@ def marginal(
     index = index_circuit(circuit)
     _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qs])
     local = cone_circuit(index, gates, len(local_qubits))
-    network = doubled_network(local, open_qubits=range(len(qs)), dtype=dt)
-    if _deep_and_narrow(local, network):
+    small = absorb_small(doubled_network(local, open_qubits=range(len(qs)), dtype=dt))
+    if _deep_and_narrow(local, small):
         every = all_probabilities(local, dtype=dt, memory_limit=memory_limit)
         return every.reshape(1 << len(qs), -1).sum(axis=1)
-    result = contract_network(network, memory_limit=memory_limit)
+    result = _contract_simplified(small, memory_limit)
     probs = result.value().real.reshape(-1)
     return np.clip(probs, 0.0, None)
 
@@ -350,9 +354,8 @@ NARROW = 20
 """Light cones of at most this many qubits may be answered from all ``2**m`` amplitudes."""
 
 
-def _greedy_flops(network: TensorNetwork) -> int:
-    """FLOPs of opt_einsum's greedy tree for the simplified network (a quick upper estimate)."""
-    small = absorb_small(network)
+def _greedy_flops(small: TensorNetwork) -> int:
+    """FLOPs of opt_einsum's greedy tree for a simplified network (a quick upper estimate)."""
     return greedy_tree(small.indices, small.output, small.size).cost().flops
 
 
@@ -382,13 +385,15 @@ def all_probabilities(
     return np.abs(all_amplitudes(circuit, dtype=dtype, memory_limit=memory_limit)) ** 2
 
 
-def _deep_and_narrow(local: Circuit, network: TensorNetwork) -> bool:
-    """Whether all ``2**m`` amplitudes of the cone cost less than greedy's doubled network.
+def _deep_and_narrow(local: Circuit, small: TensorNetwork) -> bool:
+    """Whether all ``2**m`` amplitudes of the cone cost less than greedy's plan of ``small``.
+
+    ``small`` is the cone's doubled network, simplified (:func:`absorb_small`).
 
     Amplitudes in circuit order cost at most about 64 FLOPs per gate and amplitude.
     """
     m = local.num_qubits
-    return m <= NARROW and _greedy_flops(network) > len(local.ops) * (64 << m)
+    return m <= NARROW and _greedy_flops(small) > len(local.ops) * (64 << m)
 
 
 def _pauli_expectation(psi: np.ndarray, letters: Mapping[int, str]) -> float:
@@ -457,11 +462,11 @@ class TermCache:
         self.misses += 1
         local = cone_circuit(self.index, gates, len(qubits))
         letters = {k: letter for k, (_, letter) in enumerate(paulis)}
-        network = doubled_network(local, paulis=letters, dtype=self.dtype)
-        if _deep_and_narrow(local, network):
+        small = absorb_small(doubled_network(local, paulis=letters, dtype=self.dtype))
+        if _deep_and_narrow(local, small):
             v = self._from_amplitudes(local, letters, paulis)
         else:
-            v = float(complex(contract_network(network, memory_limit=self.memory_limit)).real)
+            v = float(complex(_contract_simplified(small, self.memory_limit)).real)
         self.values[key] = v
         return v
 
