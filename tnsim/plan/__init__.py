@@ -23,7 +23,7 @@ from ..network import TensorNetwork
 from .greedy import greedy_tree
 from .reoptimize import reoptimize_path
 from .search import score, search_path
-from .slicing import choose_slices
+from .slicing import choose_slices, slice_and_replan
 from .tree import ContractionTree, linear_to_ssa, memory_order, tree_cost
 
 __all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_candidates", "plan_path"]
@@ -301,6 +301,10 @@ def make_plan(
     return plan
 
 
+SLICING_SHARE = 0.25
+"""Under a time budget, candidate trees after the first are re-sliced with re-planning
+only while the slicing has taken less than this share of the budget."""
+
 PLAN_CACHE_SIZE = 64
 """Plans kept for reuse: a network with the same labels, sizes and options gets the same plan."""
 _PLAN_CACHE: dict[tuple, Plan] = {}
@@ -340,27 +344,14 @@ def _finish(
     sliced: tuple[int, ...] = ()
     cost, num = full, 1
     if limit is not None and full.peak_bytes > limit:
-        best, error = None, None
-        for k, (cand, name) in enumerate(zip(trees, methods)):
-            ordered = memory_order(cand.inputs, cand.output, cand.size, cand.path)
-            cand = ContractionTree(cand.inputs, cand.output, cand.size, ordered)
-            if k == 0:
-                full = cand.cost(itemsize=itemsize)
-            try:
-                cut = choose_slices(
-                    cand.inputs, cand.output, cand.size, cand.path, limit, itemsize=itemsize
-                )
-            except ResourceLimitError as exc:
-                error = error or exc
-                continue
-            total = score(cut[1], objective) * cut[2]
-            if best is None or total < best[0]:
-                best = (total, cand, name, cut)
-        if best is None:
-            raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
+        untimed = _untimed(search["time_budget"], search["max_trials"])
+        ordered = memory_order(tree.inputs, tree.output, tree.size, tree.path)
+        full = tree_cost(tree.inputs, tree.output, tree.size, ordered, itemsize=itemsize)
+        budget = None if untimed else search["time_budget"] or _default_budget(full.flops)
+        best = _slice_candidates(trees, methods, limit, itemsize, objective, budget)
         _, tree, method, (sliced, cost, num) = best
         if num > 1:
-            seconds = None if _untimed(search["time_budget"], search["max_trials"]) else 2.0
+            seconds = None if untimed else 2.0
             tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds)
             tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, **search)
     out_numel = math.prod(tree.size[i] for i in tree.output)
@@ -379,6 +370,48 @@ def _finish(
         method=method,
         seconds=time.perf_counter() - start,
     )
+
+
+def _slice_candidates(trees, methods, limit, itemsize, objective, budget):
+    """The cheapest way found to slice one of ``trees`` to fit ``limit``.
+
+    Every tree is first sliced as it is (:func:`choose_slices`); then, from
+    the cheapest of those on, trees are sliced again with re-planning along the
+    way (:func:`slice_and_replan`; neither way wins everywhere) -- all of them
+    without a time ``budget``, else while the slicing has taken less than
+    :data:`SLICING_SHARE` of it (at least one).  Returns ``(score, tree,
+    method, (sliced, cost, num_slices))``.
+    """
+    began = time.perf_counter()
+    fixed, error = [], None
+    for cand, name in zip(trees, methods):
+        ordered = memory_order(cand.inputs, cand.output, cand.size, cand.path)
+        cand = ContractionTree(cand.inputs, cand.output, cand.size, ordered)
+        try:
+            sliced, cost, num = choose_slices(*_args(cand), ordered, limit, itemsize=itemsize)
+        except ResourceLimitError as exc:
+            error = error or exc
+            continue
+        fixed.append((score(cost, objective) * num, cand, name, (sliced, cost, num)))
+    if not fixed:
+        raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
+    fixed.sort(key=lambda row: row[0])
+    best = fixed[0]
+    for rank, (_, cand, name, _) in enumerate(fixed):
+        if rank and budget is not None and time.perf_counter() - began > SLICING_SHARE * budget:
+            break
+        seconds = None if budget is None else 1.0
+        sliced, path, cost, num = slice_and_replan(
+            *_args(cand), cand.path, limit, itemsize=itemsize, time_budget=seconds
+        )
+        total = score(cost, objective) * num
+        if total < best[0]:
+            best = (total, ContractionTree(*_args(cand), path), name, (sliced, cost, num))
+    return best
+
+
+def _args(tree: ContractionTree):
+    return tree.inputs, tree.output, tree.size
 
 
 def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds):

@@ -5,7 +5,9 @@ For an internal node, its sub-tree is cut at a frontier of at most
 small self-contained network whose output is the node's labels.  opt_einsum's
 exact planners (``optimal`` for a few leaves, ``dp`` for more) re-order it and
 the new sub-tree replaces the old one when it costs fewer FLOPs under
-:mod:`tnsim.plan.tree`'s model.
+:mod:`tnsim.plan.tree`'s model.  With a size cap, re-planned sub-trees keep
+every intermediate within ``max(cap, the sub-tree's largest before)``, so
+re-planning never makes a sliced tree need more memory than the cap allows.
 """
 
 from __future__ import annotations
@@ -121,12 +123,15 @@ def reoptimize_path(
     passes: int = 2,
     time_budget: float | None = None,
     min_fraction: float = 1e-6,
+    max_numel: int | None = None,
 ) -> tuple[tuple[int, int], ...]:
     """Improve an SSA path by re-planning sub-trees of up to ``max_leaves`` leaves exactly.
 
     Nodes are visited from the most expensive down, skipping steps cheaper
     than ``min_fraction`` of the total; a pass stops early once
     ``time_budget`` seconds are spent.  The result never costs more FLOPs.
+    With ``max_numel``, a re-planned sub-tree may not hold an intermediate of
+    more elements than ``max_numel`` or than the largest it replaces.
 
     Examples
     --------
@@ -160,14 +165,17 @@ def reoptimize_path(
             sub_in = [t.labels[u] for u in front]
             sub_out = t.labels[v]
             sizes = {i: size[i] for ix in sub_in for i in ix}
+            cap = None
+            if max_numel is not None:
+                cap = max(max_numel, max(t.numel(u) for u in inner))
             opt = oe_paths.optimal if len(front) <= 5 else oe_paths.dynamic_programming
             try:
-                linear = opt(list(sub_in), sub_out, sizes)
+                linear = opt(list(sub_in), sub_out, sizes, memory_limit=cap)
             except (ValueError, RuntimeError):
                 continue
             ssa = linear_to_ssa(linear, len(front))
-            new = tree_cost(sub_in, sub_out, size, ssa).flops
-            if new < old:
+            new = tree_cost(sub_in, sub_out, size, ssa)
+            if new.flops < old and (cap is None or new.largest <= cap):
                 t.replace(v, front, inner, ssa)
                 improved = True
         if not improved:
