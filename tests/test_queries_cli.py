@@ -59,6 +59,12 @@ def test_sample_to_file_then_xeb(circuit_file, tmp_path, capsys):
     p = np.abs(dense_state(c)) ** 2
     assert r["num_samples"] == 300
     assert abs(r["fidelity"] - (64 * (p**2).sum() - 1)) < 5 * r["standard_error"]
+    gates = tmp_path / "g.txt"
+    args = ["sample", str(path), "--shots", "300", "--method", "gates", "-o", str(gates)]
+    assert main(args) == 0
+    assert main(["xeb", str(path), str(gates), "--json"]) == 0
+    r = json.loads(capsys.readouterr().out)
+    assert abs(r["fidelity"] - (64 * (p**2).sum() - 1)) < 5 * r["standard_error"]
 
 
 def test_amp_streams_a_bits_file(circuit_file, tmp_path, capsys):

@@ -50,6 +50,8 @@ class BatchContraction:
     plan : Plan, optional
         The plan of one batch member, from an engine built on the same network
         (its ``plan`` attribute), to change ``chunk`` without planning again.
+    time_budget : float, optional
+        Seconds the planner may search (default: :func:`tnsim.plan.make_plan`'s).
 
     Examples
     --------
@@ -70,6 +72,7 @@ class BatchContraction:
         chunk: int,
         memory_limit: int | None = None,
         plan: Plan | None = None,
+        time_budget: float | None = None,
     ):
         self.batch_labels = tuple(batch_labels)
         self.chunk = int(chunk)
@@ -104,7 +107,7 @@ class BatchContraction:
             self.dtype,
         )
         if plan is None:
-            plan = make_plan(single, memory_limit=memory_limit)
+            plan = make_plan(single, memory_limit=memory_limit, time_budget=time_budget)
         self.plan = plan
         self.tree = ContractionTree(tuple(inputs), self.network.output, size, plan.tree.path)
         self.sliced = tuple(plan.sliced)

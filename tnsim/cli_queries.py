@@ -106,7 +106,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     if args.shots < 0:
         raise InputError(f"--shots must be non-negative, got {args.shots}")
     circuit = load_circuit(args.circuit)
-    out = sample(circuit, args.shots, seed=args.seed, block=args.block)
+    out = sample(circuit, args.shots, seed=args.seed, block=args.block, method=args.method)
     lines = [format_bits(row) for row in out]
     if args.json:
         text = json.dumps({"num_qubits": circuit.num_qubits, "seed": args.seed, "samples": lines})
@@ -175,13 +175,21 @@ def add_query_commands(sub) -> None:
     s = sub.add_parser(
         "sample",
         help="exact samples of the output distribution",
-        description="Draw exact samples x from |<x|C|0...0>|^2 (chain rule of marginals) "
-        f"and write one bitstring per line; {_BITS}.",
+        description="Draw exact samples x from |<x|C|0...0>|^2 (chain rule of marginals, "
+        f"or gate by gate from amplitudes) and write one bitstring per line; {_BITS}.",
     )
     s.add_argument("circuit", help="OpenQASM 2.0 file")
     s.add_argument("--shots", type=int, required=True, metavar="N", help="number of samples")
     s.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
     s.add_argument("--block", type=int, default=5, help="qubits per chain-rule step (default 5)")
+    s.add_argument(
+        "--method",
+        choices=("marginals", "gates"),
+        default="marginals",
+        help="marginals: chain rule over light cones (default; best for wide shallow "
+        "circuits); gates: gate by gate from amplitudes (for circuits whose doubled "
+        "networks are too wide)",
+    )
     s.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
     s.add_argument("--json", action="store_true", help="write JSON instead of lines")
     s.set_defaults(func=_cmd_sample)

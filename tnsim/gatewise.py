@@ -1,0 +1,215 @@
+"""Exact samples by growing the circuit one gate at a time, from amplitudes only.
+
+Gate-by-gate sampling (Bravyi, Gosset and Liu, "How to simulate quantum
+measurement without computing marginals", Phys. Rev. Lett. 128, 220503, 2022;
+cited from memory).  Group the circuit's gates into steps ``U_1 .. U_T``, step
+``t`` acting on the qubits ``S_t``.  If ``x`` is an exact sample of
+``|<x|U_{t-1} .. U_1|0>|²``, redrawing its bits on ``S_t`` from
+``p(y) ∝ |<x with y on S_t| U_t .. U_1|0>|²`` gives an exact sample of the
+circuit one step longer: ``U_t`` leaves the distribution of the other bits
+unchanged.  After the last step ``x`` is an exact sample of the circuit.  Each
+step needs ``2**|S_t|`` amplitudes per distinct current bitstring -- single
+(not doubled) networks, no marginals.
+
+Steps: each multi-qubit gate, with the single-qubit gates on its qubits since
+their previous step (and, after a qubit's last multi-qubit gate, the rest of
+that qubit's gates); a qubit without multi-qubit gates is one step.  Steps are
+taken layer by layer (the as-soon-as-possible layer of their multi-qubit
+gate).  The steps of one layer act on different qubits, so they share one
+network shape: all layers up to that one, with the layer's steps not yet taken
+as identities of the same shape (:func:`tnsim.network.identity_tensor`).  Each
+layer is planned once; every step runs its distinct bitstrings (and their
+``2**|S_t|`` variants) through :class:`tnsim.batch.BatchContraction`.  Qubits
+that no step has reached yet are in ``|0>`` and are left out.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from .batch import BatchContraction
+from .circuit import Circuit, Operation
+from .memory import default_memory_limit
+from .network import TensorNetwork, circuit_network, identity_tensor
+from .plan.forecast import matmul_rate
+
+__all__ = ["GateStep", "gate_steps", "sample_by_gates"]
+
+_ZERO = np.array([1.0, 0.0])
+
+
+@dataclass(frozen=True)
+class GateStep:
+    """Gates taken together: their qubits, the gates in order, and their layer."""
+
+    qubits: tuple[int, ...]
+    ops: tuple[Operation, ...]
+    layer: int
+
+
+def gate_steps(circuit: Circuit) -> list[GateStep]:
+    """Group ``circuit``'s gates into steps, in the order they are taken.
+
+    Examples
+    --------
+    >>> c = Circuit(3).h(0).cx(0, 1).x(2).cx(1, 2).h(1)
+    >>> [(s.qubits, [op.name for op in s.ops], s.layer) for s in gate_steps(c)]
+    [((0, 1), ['h', 'cx'], 0), ((1, 2), ['x', 'cx', 'h'], 1)]
+    """
+    n = circuit.num_qubits
+    pending: list[list[Operation]] = [[] for _ in range(n)]
+    depth = [0] * n
+    last: list[int | None] = [None] * n
+    groups: list[tuple[tuple[int, ...], list[Operation], int]] = []
+    for op in circuit.ops:
+        if len(op.qubits) == 1:
+            pending[op.qubits[0]].append(op)
+            continue
+        before = [o for q in op.qubits for o in pending[q]]
+        layer = max(depth[q] for q in op.qubits)
+        for q in op.qubits:
+            pending[q], depth[q], last[q] = [], layer + 1, len(groups)
+        groups.append((tuple(op.qubits), [*before, op], layer))
+    for q in range(n):
+        if pending[q] and last[q] is None:
+            groups.append(((q,), pending[q], 0))
+        elif pending[q]:
+            groups[last[q]][1].extend(pending[q])
+    order = sorted(range(len(groups)), key=lambda k: (groups[k][2], k))
+    return [GateStep(groups[k][0], tuple(groups[k][1]), groups[k][2]) for k in order]
+
+
+def _layer_network(steps: Sequence[GateStep], taken: int, end: int, dtype) -> tuple:
+    """Network of ``steps[:end]`` with ``steps[taken:end]`` as identities.
+
+    Returns the network (output: every reached qubit's final wire, in the order
+    of ``qubits``) and ``qubits``, the circuit qubits it holds.
+    """
+    qubits = sorted({q for s in steps[:end] for q in s.qubits})
+    local = {q: k for k, q in enumerate(qubits)}
+    ops, idle = [], []
+    for k, s in enumerate(steps[:end]):
+        for op in s.ops:
+            ops.append(Operation(op.name, tuple(local[q] for q in op.qubits), op.params, op.custom))
+            idle.append(k >= taken)
+    m = len(qubits)
+    arrays, indices, start, wire, nxt = circuit_network(Circuit(m), ops)
+    arrays = [identity_tensor(op) if off else a for a, op, off in zip(arrays, ops, idle)]
+    dt = np.dtype(dtype)
+    arrays = [np.asarray(a, dtype=dt) for a in [_ZERO] * m + arrays]
+    indices = [(label,) for label in start] + indices
+    size = dict.fromkeys(range(nxt), 2)
+    return TensorNetwork(arrays, indices, size, tuple(wire), 0, dt), qubits
+
+
+def _variants(rows: np.ndarray, cols: Sequence[int]) -> np.ndarray:
+    """Each row repeated ``2**len(cols)`` times with ``cols`` set to 0..2**len(cols)-1."""
+    s = len(cols)
+    out = np.repeat(rows, 1 << s, axis=0)
+    v = np.arange(len(out)) % (1 << s)
+    for j, c in enumerate(cols):
+        out[:, c] = (v >> (s - 1 - j)) & 1
+    return out
+
+
+def _step_probabilities(engine: BatchContraction, members: np.ndarray, s: int) -> np.ndarray:
+    """``|amplitude|²`` of every member, normalised within each group of ``2**s``."""
+    per = max(engine.chunk >> s, 1) << s
+    probs = []
+    for start in range(0, len(members), per):
+        part = engine.run(members[start : start + per])
+        amp = np.asarray(part.mantissa, dtype=np.complex128).reshape(-1, 1 << s)
+        probs.append(amp.real**2 + amp.imag**2)
+    table = np.concatenate(probs)
+    totals = table.sum(axis=1, keepdims=True)
+    if np.any(totals <= 0):
+        raise ArithmeticError("a sampled bitstring has zero probability (numerical underflow)")
+    return table / totals
+
+
+def sample_by_gates(
+    circuit: Circuit,
+    shots: int,
+    rng: np.random.Generator,
+    *,
+    dtype=np.complex128,
+    chunk: int = 256,
+    memory_limit: int | None = None,
+) -> np.ndarray:
+    """Draw ``shots`` exact samples of ``circuit`` gate step by gate step.
+
+    The arguments are those of :func:`tnsim.sampling.sample` (which calls this
+    with ``method="gates"``), with ``rng`` the generator; ``chunk`` is the
+    number of amplitudes contracted together (whole groups of ``2**|S_t|``),
+    shrunk to fit ``memory_limit``.  Returns ``(shots, num_qubits)`` ``uint8``.
+
+    Examples
+    --------
+    >>> c = Circuit(3).h(0).cx(0, 1).cx(1, 2)
+    >>> s = sample_by_gates(c, 100, np.random.default_rng(2))
+    >>> sorted({"".join(map(str, row)) for row in s})
+    ['000', '111']
+    """
+    out = np.zeros((shots, circuit.num_qubits), dtype=np.uint8)
+    steps = gate_steps(circuit)
+    limit = memory_limit or default_memory_limit()
+    itemsize = np.dtype(dtype).itemsize
+    t = 0
+    while t < len(steps):
+        end = t
+        while end < len(steps) and steps[end].layer == steps[t].layer:
+            end += 1
+        widest = 1 << max(len(steps[k].qubits) for k in range(t, end))
+        plan, size = None, min(chunk, shots * widest)
+        for taken in range(t + 1, end + 1):
+            network, qubits = _layer_network(steps, taken, end, dtype)
+            uses = shots * (end - taken + 1) * widest
+            engine, plan, size = _engine(network, plan, size, limit, itemsize, uses)
+            step = steps[taken - 1]
+            local = [qubits.index(q) for q in step.qubits]
+            rows, group = np.unique(out[:, qubits], axis=0, return_inverse=True)
+            table = _step_probabilities(engine, _variants(rows, local), len(local))
+            cum = np.cumsum(table, axis=1)
+            cum[:, -1] = 1.0
+            y = (rng.random(shots)[:, None] >= cum[group.reshape(-1)]).sum(axis=1)
+            for j, q in enumerate(step.qubits):
+                out[:, q] = (y >> (len(local) - 1 - j)) & 1
+        t = end
+    return out
+
+
+def _engine(network: TensorNetwork, plan, size: int, limit: int, itemsize: int, uses: int):
+    """A batch engine over every output leg; the first of a layer plans and fits the chunk.
+
+    The layer's plan serves about ``uses`` amplitudes: when the default plan's
+    forecast for them is long, the planner searches again for up to
+    :data:`PLAN_SHARE` of that forecast (at most :data:`MAX_PLAN_SECONDS`).
+    """
+    budget = None
+    while True:
+        engine = BatchContraction(
+            network, network.output, (), size, limit, plan=plan, time_budget=budget
+        )
+        if plan is None and budget is None:
+            fixed, per_run = engine.flops()
+            seconds = PLAN_SHARE * (fixed + per_run * uses / size) / matmul_rate(np.complex128)
+            if seconds > MIN_PLAN_SECONDS:
+                budget = min(seconds, MAX_PLAN_SECONDS)
+                continue
+        peak = max((int(np.prod(st.out_shape)) for st in engine.steps), default=1)
+        if plan is not None or peak * itemsize * 3 <= limit or size == 1:
+            return engine, engine.plan, size
+        size, plan = max(1, size // 4), engine.plan
+
+
+PLAN_SHARE = 0.05
+"""Share of a layer's forecast contraction time spent searching for a better plan."""
+
+MIN_PLAN_SECONDS = 0.5
+"""A layer whose forecast share is below this keeps the planner's default plan."""
+
+MAX_PLAN_SECONDS = 10.0
+"""Longest search for one layer's plan."""
