@@ -121,6 +121,7 @@ def bench_sampling(quick: bool, block: int = 5) -> None:
             (5, 5, 8, 1000, "gates"),
             (7, 7, 8, 3, "marginals"),
             (7, 7, 8, 100, "gates"),
+            (7, 7, 8, 100, "gates complex64"),
             (7, 7, 8, 1000, "gates"),
         ]
     print(f"## Exact samples of grid circuits (seed 1; chain rule: block {block}), then XEB")
@@ -128,7 +129,8 @@ def bench_sampling(quick: bool, block: int = 5) -> None:
         c = grid_circuit(r, cc, cycles, seed=1)
         t0 = time.perf_counter()
         try:
-            s = sample(c, shots, seed=2, block=block, method=method)
+            dtype = np.complex64 if method.endswith("complex64") else np.complex128
+            s = sample(c, shots, seed=2, block=block, method=method.split()[0], dtype=dtype)
         except (ResourceLimitError, MemoryError) as exc:
             print(
                 f"{r}x{cc}x{cycles}: {shots} samples ({method}) failed after "

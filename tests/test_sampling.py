@@ -149,6 +149,16 @@ def test_steps_not_taken_are_identities_in_the_layer_network():
         np.testing.assert_allclose(net.dense().reshape(-1), dense_state(part), atol=1e-12)
 
 
+def test_gate_by_gate_fits_a_small_memory_limit_or_says_why():
+    c = random_circuit(9, 60, seed=1)
+    probs = np.abs(dense_state(c)) ** 2
+    # 16 KiB holds one group of 4 variants but not a 256-amplitude chunk: the chunk shrinks.
+    s = sample(c, 3000, seed=3, method="gates", memory_limit=16 * 1024)
+    assert _chi_square_pvalue(s, probs) > 1e-3
+    with pytest.raises(ResourceLimitError, match="memory limit"):
+        sample(c, 10, seed=0, method="gates", memory_limit=64)
+
+
 def test_gate_by_gate_is_reproducible_and_seed_dependent():
     c = random_circuit(6, 30, seed=3)
     a, b = sample(c, 50, seed=7, method="gates"), sample(c, 50, seed=7, method="gates")

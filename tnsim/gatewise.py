@@ -167,7 +167,7 @@ def sample_by_gates(
         for taken in range(t + 1, end + 1):
             network, qubits = _layer_network(steps, taken, end, dtype)
             uses = shots * (end - taken + 1) * widest
-            engine, plan, size = _engine(network, plan, size, limit, itemsize, uses)
+            engine, plan, size = _engine(network, plan, size, widest, limit, itemsize, uses)
             step = steps[taken - 1]
             local = [qubits.index(q) for q in step.qubits]
             rows, group = np.unique(out[:, qubits], axis=0, return_inverse=True)
@@ -181,8 +181,11 @@ def sample_by_gates(
     return out
 
 
-def _engine(network: TensorNetwork, plan, size: int, limit: int, itemsize: int, uses: int):
+def _engine(network: TensorNetwork, plan, size, least, limit, itemsize, uses):
     """A batch engine over every output leg; the first of a layer plans and fits the chunk.
+
+    The chunk ``size`` shrinks (not below ``least``, one group of variants)
+    until the largest intermediate fits ``limit``.
 
     The layer's plan serves about ``uses`` amplitudes: when the default plan's
     forecast for them is long, the planner searches again for up to
@@ -200,9 +203,9 @@ def _engine(network: TensorNetwork, plan, size: int, limit: int, itemsize: int, 
                 budget = min(seconds, MAX_PLAN_SECONDS)
                 continue
         peak = max((int(np.prod(st.out_shape)) for st in engine.steps), default=1)
-        if plan is not None or peak * itemsize * 3 <= limit or size == 1:
+        if plan is not None or peak * itemsize * 3 <= limit or size <= least:
             return engine, engine.plan, size
-        size, plan = max(1, size // 4), engine.plan
+        size, plan = max(least, size // 4), engine.plan
 
 
 PLAN_SHARE = 0.05
