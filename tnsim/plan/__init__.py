@@ -411,6 +411,7 @@ def _slice_candidates(trees, methods, limit, itemsize, objective, budget):
 
 
 def _args(tree: ContractionTree):
+    """``(inputs, output, size)`` of a tree, the first arguments of the slicers."""
     return tree.inputs, tree.output, tree.size
 
 

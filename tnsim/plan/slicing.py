@@ -2,8 +2,9 @@
 
 Fixing (slicing) a label removes it from every tensor; the network's value is
 the sum over the label's values of the smaller networks, so the FLOPs grow by
-the *overhead factor* ``num_slices * sliced_flops / unsliced_flops >= 1``
-while the peak memory shrinks.  Labels are chosen greedily: each time, among
+the *overhead factor* ``num_slices * sliced_flops / unsliced_flops`` (at
+least 1 for a fixed tree; re-planning can find a cheaper tree) while the peak
+memory shrinks.  Labels are chosen greedily: each time, among
 the labels of the largest intermediates, the one with the smallest growth of
 total FLOPs per unit of peak reduction (both in log) is added, until the peak
 fits.  :func:`choose_slices` slices a fixed tree; :func:`slice_and_replan`
