@@ -20,7 +20,9 @@ network shape: all layers up to that one, with the layer's steps not yet taken
 as identities of the same shape (:func:`tnsim.network.identity_tensor`).  Each
 layer is planned once; every step runs its distinct bitstrings (and their
 ``2**|S_t|`` variants) through :class:`tnsim.batch.BatchContraction`.  Qubits
-that no step has reached yet are in ``|0>`` and are left out.
+that no step has reached yet are in ``|0>`` and are left out; a step of diagonal
+gates only (no single-qubit gates attached) changes no outcome probability and
+is taken without a redraw.
 """
 
 from __future__ import annotations
@@ -33,7 +35,7 @@ import numpy as np
 from .batch import BatchContraction
 from .circuit import Circuit, Operation
 from .memory import default_memory_limit
-from .network import TensorNetwork, circuit_network, identity_tensor
+from .network import TensorNetwork, circuit_network, gate_tensor, identity_tensor
 from .plan.forecast import matmul_rate
 
 __all__ = ["GateStep", "gate_steps", "sample_by_gates"]
@@ -165,10 +167,12 @@ def sample_by_gates(
         widest = 1 << max(len(steps[k].qubits) for k in range(t, end))
         plan, size = None, min(chunk, shots * widest)
         for taken in range(t + 1, end + 1):
+            step = steps[taken - 1]
+            if all(all(gate_tensor(op)[1]) for op in step.ops):
+                continue  # diagonal gates do not change the distribution: nothing to redraw
             network, qubits = _layer_network(steps, taken, end, dtype)
             uses = shots * (end - taken + 1) * widest
             engine, plan, size = _engine(network, plan, size, widest, limit, itemsize, uses)
-            step = steps[taken - 1]
             local = [qubits.index(q) for q in step.qubits]
             rows, group = np.unique(out[:, qubits], axis=0, return_inverse=True)
             table = _step_probabilities(engine, _variants(rows, local), len(local))
