@@ -22,6 +22,7 @@ from .execute import (
     compile_tree,
     count_flops,
     execute,
+    largest_intermediate,
     normalize,
     normalize_owned,
 )
@@ -29,7 +30,7 @@ from .network import TensorNetwork
 from .plan import ContractionTree, Plan, make_plan
 from .simplify import absorb_small
 
-__all__ = ["BatchContraction"]
+__all__ = ["BatchContraction", "fitted_engine"]
 
 
 class BatchContraction:
@@ -205,3 +206,38 @@ class BatchContraction:
         root = root.transpose([final.index(i) for i in tree.output])
         root, e = normalize(np.ascontiguousarray(root[:count]))
         return Scaled(root, exponent + e + self.network.exponent)
+
+
+def fitted_engine(
+    network: TensorNetwork,
+    batch_labels: Sequence[int],
+    open_labels: Sequence[int],
+    chunk: int,
+    memory_limit: int,
+    *,
+    least: int = 1,
+    plan: Plan | None = None,
+    time_budget: float | None = None,
+) -> BatchContraction:
+    """A :class:`BatchContraction` whose chunk is cut (by 4, not below ``least``) to fit.
+
+    The chunk shrinks until three copies of the largest intermediate of a run
+    (operands' copies and the result) fit ``memory_limit`` bytes; the plan of
+    one batch member is made once and reused.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> from tnsim.network import amplitude_network
+    >>> tn = amplitude_network(Circuit(3).h(0).cx(0, 1).cx(1, 2), None, open_qubits=[0, 1, 2])
+    >>> fitted_engine(tn, tn.output, (), 64, 16 * 3 * 64).chunk
+    16
+    """
+    while True:
+        engine = BatchContraction(
+            network, batch_labels, open_labels, chunk, memory_limit, plan, time_budget
+        )
+        need = largest_intermediate(engine.steps) * engine.dtype.itemsize * 3
+        if need <= memory_limit or chunk <= least:
+            return engine
+        chunk, plan = max(least, chunk // 4), engine.plan

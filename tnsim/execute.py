@@ -42,6 +42,7 @@ __all__ = [
     "compile_tree",
     "contract_tree",
     "count_flops",
+    "largest_intermediate",
     "peak_memory",
     "SliceJob",
     "contract_slices",
@@ -290,6 +291,19 @@ def count_flops(steps: Sequence[PairStep]) -> int:
     960
     """
     return sum(8 * s.mat_a[0] * s.mat_a[1] * s.mat_a[2] * s.mat_b[2] for s in steps)
+
+
+def largest_intermediate(steps: Sequence[PairStep]) -> int:
+    """Elements of the largest result among compiled steps (1 without steps).
+
+    Examples
+    --------
+    >>> from tnsim.plan import greedy_tree
+    >>> tree = greedy_tree([(0, 1), (1, 2)], (0, 2), {0: 4, 1: 5, 2: 6})
+    >>> largest_intermediate(compile_tree(tree))
+    24
+    """
+    return max((math.prod(s.out_shape) for s in steps), default=1)
 
 
 def peak_memory(tree: ContractionTree, steps: Sequence[PairStep], itemsize: int) -> int:

@@ -32,15 +32,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .batch import BatchContraction
+from .batch import BatchContraction, fitted_engine
 from .circuit import Circuit, Operation
 from .memory import default_memory_limit
-from .network import TensorNetwork, circuit_network, gate_tensor, identity_tensor
+from .network import TensorNetwork, amplitude_network, gate_tensor, identity_tensor
 from .plan.forecast import matmul_rate
 
 __all__ = ["GateStep", "gate_steps", "sample_by_gates"]
-
-_ZERO = np.array([1.0, 0.0])
 
 
 @dataclass(frozen=True)
@@ -98,13 +96,15 @@ def _layer_network(steps: Sequence[GateStep], taken: int, end: int, dtype) -> tu
             ops.append(Operation(op.name, tuple(local[q] for q in op.qubits), op.params, op.custom))
             idle.append(k >= taken)
     m = len(qubits)
-    arrays, indices, start, wire, nxt = circuit_network(Circuit(m), ops)
-    arrays = [identity_tensor(op) if off else a for a, op, off in zip(arrays, ops, idle)]
-    dt = np.dtype(dtype)
-    arrays = [np.asarray(a, dtype=dt) for a in [_ZERO] * m + arrays]
-    indices = [(label,) for label in start] + indices
-    size = dict.fromkeys(range(nxt), 2)
-    return TensorNetwork(arrays, indices, size, tuple(wire), 0, dt), qubits
+    grown = Circuit(m)
+    grown.ops = ops
+    net = amplitude_network(grown, None, open_qubits=range(m), dtype=dtype)
+    # amplitude_network lays out the m input vectors, then one tensor per gate, in order.
+    arrays = list(net.arrays)
+    for k, (op, off) in enumerate(zip(ops, idle)):
+        if off:
+            arrays[m + k] = identity_tensor(op).astype(net.dtype)
+    return TensorNetwork(arrays, net.indices, net.size, net.output, net.exponent, net.dtype), qubits
 
 
 def _variants(rows: np.ndarray, cols: Sequence[int]) -> np.ndarray:
@@ -158,7 +158,6 @@ def sample_by_gates(
     out = np.zeros((shots, circuit.num_qubits), dtype=np.uint8)
     steps = gate_steps(circuit)
     limit = memory_limit or default_memory_limit()
-    itemsize = np.dtype(dtype).itemsize
     t = 0
     while t < len(steps):
         end = t
@@ -171,8 +170,12 @@ def sample_by_gates(
             if all(all(gate_tensor(op)[1]) for op in step.ops):
                 continue  # diagonal gates do not change the distribution: nothing to redraw
             network, qubits = _layer_network(steps, taken, end, dtype)
-            uses = shots * (end - taken + 1) * widest
-            engine, plan, size = _engine(network, plan, size, widest, limit, itemsize, uses)
+            if plan is None:
+                uses = shots * (end - taken + 1) * widest
+                engine = _first_engine(network, size, widest, limit, uses)
+            else:
+                engine = BatchContraction(network, network.output, (), size, limit, plan=plan)
+            plan, size = engine.plan, engine.chunk
             local = [qubits.index(q) for q in step.qubits]
             rows, group = np.unique(out[:, qubits], axis=0, return_inverse=True)
             table = _step_probabilities(engine, _variants(rows, local), len(local))
@@ -185,31 +188,22 @@ def sample_by_gates(
     return out
 
 
-def _engine(network: TensorNetwork, plan, size, least, limit, itemsize, uses):
-    """A batch engine over every output leg; the first of a layer plans and fits the chunk.
-
-    The chunk ``size`` shrinks (not below ``least``, one group of variants)
-    until the largest intermediate fits ``limit``.
+def _first_engine(network: TensorNetwork, size: int, least: int, limit: int, uses: int):
+    """The batch engine of a layer's first step: it plans the layer and fits the chunk.
 
     The layer's plan serves about ``uses`` amplitudes: when the default plan's
     forecast for them is long, the planner searches again for up to
     :data:`PLAN_SHARE` of that forecast (at most :data:`MAX_PLAN_SECONDS`).
+    The chunk shrinks (not below ``least``, one group of variants) to fit ``limit``.
     """
-    budget = None
-    while True:
-        engine = BatchContraction(
-            network, network.output, (), size, limit, plan=plan, time_budget=budget
-        )
-        if plan is None and budget is None:
-            fixed, per_run = engine.flops()
-            seconds = PLAN_SHARE * (fixed + per_run * uses / size) / matmul_rate(np.complex128)
-            if seconds > MIN_PLAN_SECONDS:
-                budget = min(seconds, MAX_PLAN_SECONDS)
-                continue
-        peak = max((int(np.prod(st.out_shape)) for st in engine.steps), default=1)
-        if plan is not None or peak * itemsize * 3 <= limit or size <= least:
-            return engine, engine.plan, size
-        size, plan = max(least, size // 4), engine.plan
+    first = BatchContraction(network, network.output, (), size, limit)
+    fixed, per_run = first.flops()
+    seconds = PLAN_SHARE * (fixed + per_run * uses / size) / matmul_rate(np.complex128)
+    budget = min(seconds, MAX_PLAN_SECONDS) if seconds > MIN_PLAN_SECONDS else None
+    plan = first.plan if budget is None else None
+    return fitted_engine(
+        network, network.output, (), size, limit, least=least, plan=plan, time_budget=budget
+    )
 
 
 PLAN_SHARE = 0.05

@@ -20,16 +20,15 @@ doubled networks, but amplitudes for every gate and shot.
 
 from __future__ import annotations
 
-import math
 import numbers
 
 import numpy as np
 
-from .batch import BatchContraction
+from .batch import BatchContraction, fitted_engine
 from .budget import fit_plan
 from .circuit import Circuit
 from .errors import InputError, ResourceLimitError
-from .execute import compile_tree, count_flops, execute
+from .execute import compile_tree, count_flops, execute, largest_intermediate
 from .gatewise import sample_by_gates
 from .lightcone import canonical_cone, cone_circuit, index_circuit
 from .memory import default_memory_limit
@@ -61,8 +60,7 @@ def _engine_cost(engine: BatchContraction, prefixes: int) -> tuple[int, int]:
     """(real FLOPs for all prefixes, largest intermediate in elements) of a batched engine."""
     fixed, per_run = engine.flops()
     runs = -(-prefixes // engine.chunk)
-    peak = max((math.prod(step.out_shape) for step in engine.steps), default=1)
-    return fixed + per_run * runs, peak
+    return fixed + per_run * runs, largest_intermediate(engine.steps)
 
 
 def _planned(network: TensorNetwork, limit: int):
@@ -71,21 +69,14 @@ def _planned(network: TensorNetwork, limit: int):
     plan = fit_plan(small, limit)
     steps = compile_tree(plan.tree, plan.sliced)
     cost = count_flops(steps) << len(plan.sliced)
-    peak = max((math.prod(st.out_shape) for st in steps), default=1)
-    return cost, peak, (small, plan)
+    return cost, largest_intermediate(steps), (small, plan)
 
 
-def _batched(network: TensorNetwork, a: int, prefixes: int, chunk: int, limit: int, itemsize):
+def _batched(network: TensorNetwork, a: int, prefixes: int, chunk: int, limit: int):
     """A batch engine over the first ``a`` output legs, its chunk shrunk to fit ``limit``."""
-    size, plan = min(chunk, prefixes), None
-    while True:
-        engine = BatchContraction(
-            network, network.output[:a], network.output[a:], size, limit, plan=plan
-        )
-        cost, peak = _engine_cost(engine, prefixes)
-        if peak * itemsize * 3 <= limit or size == 1:
-            return cost, peak, engine
-        size, plan = max(1, size // 4), engine.plan
+    out = network.output
+    engine = fitted_engine(network, out[:a], out[a:], min(chunk, prefixes), limit)
+    return (*_engine_cost(engine, prefixes), engine)
 
 
 def _candidates(local, a: int, b: int, dtype):
@@ -123,7 +114,7 @@ def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> n
         if kind == "all" or a == 0:
             cost, peak, runner = _planned(network, limit)
         else:
-            cost, peak, runner = _batched(network, a, len(prefixes), chunk, limit, itemsize)
+            cost, peak, runner = _batched(network, a, len(prefixes), chunk, limit)
         if peak * itemsize * 3 <= limit and (best is None or cost < best[0]):
             best = (cost, kind, runner)
     if best is None:

@@ -24,7 +24,7 @@ from .greedy import greedy_tree
 from .reoptimize import reoptimize_path
 from .search import score, search_path
 from .slicing import choose_slices, slice_and_replan
-from .tree import ContractionTree, linear_to_ssa, memory_order, tree_cost
+from .tree import ContractionTree, linear_to_ssa, memory_order, tree_cost, without_labels
 
 __all__ = ["ContractionTree", "Plan", "greedy_tree", "make_plan", "plan_candidates", "plan_path"]
 
@@ -345,10 +345,10 @@ def _finish(
     cost, num = full, 1
     if limit is not None and full.peak_bytes > limit:
         untimed = _untimed(search["time_budget"], search["max_trials"])
-        ordered = memory_order(tree.inputs, tree.output, tree.size, tree.path)
-        full = tree_cost(tree.inputs, tree.output, tree.size, ordered, itemsize=itemsize)
+        ordered = [ContractionTree(*_args(t), memory_order(*_args(t), t.path)) for t in trees]
+        full = ordered[0].cost(itemsize=itemsize)
         budget = None if untimed else search["time_budget"] or _default_budget(full.flops)
-        best = _slice_candidates(trees, methods, limit, itemsize, objective, budget)
+        best = _slice_candidates(ordered, methods, limit, itemsize, objective, budget)
         _, tree, method, (sliced, cost, num) = best
         if num > 1:
             seconds = None if untimed else 2.0
@@ -373,7 +373,7 @@ def _finish(
 
 
 def _slice_candidates(trees, methods, limit, itemsize, objective, budget):
-    """The cheapest way found to slice one of ``trees`` to fit ``limit``.
+    """The cheapest way found to slice one of ``trees`` (memory-ordered) to fit ``limit``.
 
     Every tree is first sliced as it is (:func:`choose_slices`); then, from
     the cheapest of those on, trees are sliced again with re-planning along the
@@ -385,10 +385,8 @@ def _slice_candidates(trees, methods, limit, itemsize, objective, budget):
     began = time.perf_counter()
     fixed, error = [], None
     for cand, name in zip(trees, methods):
-        ordered = memory_order(cand.inputs, cand.output, cand.size, cand.path)
-        cand = ContractionTree(cand.inputs, cand.output, cand.size, ordered)
         try:
-            sliced, cost, num = choose_slices(*_args(cand), ordered, limit, itemsize=itemsize)
+            sliced, cost, num = choose_slices(*_args(cand), cand.path, limit, itemsize=itemsize)
         except ResourceLimitError as exc:
             error = error or exc
             continue
@@ -417,9 +415,7 @@ def _args(tree: ContractionTree):
 
 def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds):
     """Re-plan sub-trees of the sliced tree; keep the result if it still fits."""
-    gone = set(sliced)
-    ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
-    out = tuple(i for i in tree.output if i not in gone)
+    ins, out = without_labels(tree.inputs, tree.output, sliced)
     new = reoptimize_path(
         ins, out, tree.size, tree.path, max_leaves=8, passes=1, time_budget=seconds
     )
@@ -435,9 +431,7 @@ def _replan_sliced(
     """Search again on the network with the sliced labels removed; keep a cheaper tree that fits."""
     if len(tree.path) < 3:
         return tree, cost
-    gone = set(sliced)
-    ins = [tuple(i for i in ix if i not in gone) for ix in tree.inputs]
-    out = tuple(i for i in tree.output if i not in gone)
+    ins, out = without_labels(tree.inputs, tree.output, sliced)
     budget = 0.5 * time_budget if time_budget is not None else _default_budget(cost.flops)
     if _untimed(time_budget, max_trials):
         budget = None

@@ -21,7 +21,7 @@ from collections.abc import Mapping, Sequence
 
 from ..errors import ResourceLimitError
 from .reoptimize import reoptimize_path
-from .tree import TreeCost, memory_order, step_labels, tree_cost
+from .tree import TreeCost, memory_order, step_labels, tree_cost, without_labels
 
 __all__ = ["choose_slices", "slice_and_replan"]
 
@@ -173,9 +173,7 @@ def slice_and_replan(
             inputs, output, size, path, sliced, cost, itemsize, candidates, memory_limit
         )
         sliced.append(i)
-        gone = set(sliced)
-        ins = [tuple(j for j in ix if j not in gone) for ix in inputs]
-        out = tuple(j for j in output if j not in gone)
+        ins, out = without_labels(inputs, output, sliced)
         new = reoptimize_path(
             ins,
             out,

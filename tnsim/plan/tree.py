@@ -48,6 +48,7 @@ __all__ = [
     "step_flops",
     "step_labels",
     "memory_order",
+    "without_labels",
 ]
 
 
@@ -110,6 +111,21 @@ def step_flops(a: frozenset, b: frozenset, keep: frozenset, size: Mapping[int, i
     192
     """
     return _step(a, b, keep, size)[0]
+
+
+def without_labels(
+    inputs: Sequence[Iterable[int]], output: Iterable[int], removed: Iterable[int]
+) -> tuple[list[tuple[int, ...]], tuple[int, ...]]:
+    """The inputs' and output's labels with ``removed`` (sliced) labels dropped.
+
+    Examples
+    --------
+    >>> without_labels([(0, 1), (1, 2)], (0, 2), [1, 2])
+    ([(0,), ()], (0,))
+    """
+    gone = set(removed)
+    ins = [tuple(i for i in ix if i not in gone) for ix in inputs]
+    return ins, tuple(i for i in output if i not in gone)
 
 
 def step_labels(
