@@ -186,3 +186,32 @@ def test_gate_by_gate_is_reproducible_and_seed_dependent():
     a, b = sample(c, 50, seed=7, method="gates"), sample(c, 50, seed=7, method="gates")
     np.testing.assert_array_equal(a, b)
     assert not np.array_equal(a, sample(c, 50, seed=8, method="gates"))
+
+
+def test_layer_plan_search_counts_elements_written(monkeypatch):
+    # Bug found in review: the decision to search for a better layer plan used FLOPs only;
+    # batched runs of write-heavy trees are far slower than their FLOPs at the matmul rate,
+    # so plans ~10x too costly were kept and 7x7x8 sampling time varied 6x between runs.
+    import tnsim.gatewise as gatewise
+    from tnsim.batch import BatchContraction
+    from tnsim.plan.search import WRITE_FLOPS
+
+    c = random_circuit(8, 60, seed=2)
+    steps = gatewise.gate_steps(c)
+    net, _ = gatewise._layer_network(steps, len(steps), len(steps), np.complex128)
+    probe = BatchContraction(net, net.output, (), 16)
+    flops, written = sum(probe.flops()), probe.written_per_run()
+    assert WRITE_FLOPS * written > 4 * flops  # a write-heavy plan, as on grid circuits
+    # A rate at which the FLOPs alone forecast a search of 0.2 s (below the 0.5 s floor).
+    rate = gatewise.PLAN_SHARE * flops / 0.2
+    monkeypatch.setattr(gatewise, "matmul_rate", lambda dtype: rate)
+    budgets = []
+    original = gatewise.fitted_engine
+
+    def spy(*args, **kwargs):
+        budgets.append(kwargs["time_budget"])
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(gatewise, "fitted_engine", spy)
+    gatewise._first_engine(net, 16, 4, 2**30, 16)
+    assert budgets[0] is not None and budgets[0] > gatewise.MIN_PLAN_SECONDS

@@ -11,6 +11,7 @@ steps above the ``E`` leaves are redone for each chunk of the batch.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -127,6 +128,14 @@ class BatchContraction:
         fixed = [s for s, v in zip(self.steps, self.varying[n:]) if not v]
         per_run = [s for s, v in zip(self.steps, self.varying[n:]) if v]
         return count_flops(fixed), count_flops(per_run)
+
+    def written_per_run(self) -> int:
+        """Elements of intermediates written per run (every slice), for the time model."""
+        n = self.tree.num_leaves
+        if self.sliced:
+            return sum(math.prod(s.out_shape) for s in self.steps) << len(self.sliced)
+        varying = zip(self.steps, self.varying[n:])
+        return sum(math.prod(s.out_shape) for s, v in varying if v)
 
     def _contract_fixed(self) -> None:
         """Contract every step that no batch leaf feeds; keep what later steps need."""

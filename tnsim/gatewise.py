@@ -36,7 +36,7 @@ from .batch import BatchContraction, fitted_engine
 from .circuit import Circuit, Operation
 from .memory import default_memory_limit
 from .network import TensorNetwork, amplitude_network, gate_tensor, identity_tensor
-from .plan.forecast import matmul_rate
+from .plan.forecast import forecast_seconds, matmul_rate
 
 __all__ = ["GateStep", "gate_steps", "sample_by_gates"]
 
@@ -192,13 +192,18 @@ def _first_engine(network: TensorNetwork, size: int, least: int, limit: int, use
     """The batch engine of a layer's first step: it plans the layer and fits the chunk.
 
     The layer's plan serves about ``uses`` amplitudes: when the default plan's
-    forecast for them is long, the planner searches again for up to
-    :data:`PLAN_SHARE` of that forecast (at most :data:`MAX_PLAN_SECONDS`).
+    forecast for them (FLOPs and elements written, :func:`forecast_seconds`)
+    is long, the planner searches again for up to :data:`PLAN_SHARE` of that
+    forecast (at most :data:`MAX_PLAN_SECONDS`).
     The chunk shrinks (not below ``least``, one group of variants) to fit ``limit``.
     """
     first = BatchContraction(network, network.output, (), size, limit)
     fixed, per_run = first.flops()
-    seconds = PLAN_SHARE * (fixed + per_run * uses / size) / matmul_rate(np.complex128)
+    runs = uses / size
+    rate = matmul_rate(np.complex128)
+    seconds = PLAN_SHARE * forecast_seconds(
+        fixed + per_run * runs, first.written_per_run() * runs, rate
+    )
     budget = min(seconds, MAX_PLAN_SECONDS) if seconds > MIN_PLAN_SECONDS else None
     plan = first.plan if budget is None else None
     return fitted_engine(
