@@ -7,6 +7,7 @@ from scipy.stats import chisquare
 import tnsim.sampling as sampling
 from tnsim import Circuit
 from tnsim.errors import InputError, ResourceLimitError
+from tnsim.network import TensorNetwork
 from tnsim.sampling import sample
 from tnsim.testing import dense_state, random_circuit
 
@@ -132,30 +133,71 @@ def test_gate_steps_keep_the_circuit():
     np.testing.assert_allclose(dense_state(reordered), dense_state(c), atol=1e-12)
 
 
-def test_steps_not_taken_are_identities_in_the_layer_network():
+def test_layer_network_with_steps_taken_is_the_partial_circuit():
     from tnsim.circuit import Operation
-    from tnsim.gatewise import _layer_network, gate_steps
+    from tnsim.gatewise import _layer_network, gate_steps, step_tensor
 
     c = random_circuit(7, 50, seed=4)
     steps = gate_steps(c)
-    end = max(k for k, st in enumerate(steps) if st.layer == steps[len(steps) // 2].layer) + 1
-    for taken in range(end - 2, end + 1):
-        net, qubits = _layer_network(steps, taken, end, np.complex128)
-        local = {q: k for k, q in enumerate(qubits)}
-        part = Circuit(len(qubits))
+    layer = steps[len(steps) // 2].layer
+    t = min(k for k, st in enumerate(steps) if st.layer == layer)
+    end = max(k for k, st in enumerate(steps) if st.layer == layer) + 1
+    lay = _layer_network(steps, t, end, np.complex128)
+    net = lay.network
+    local = {q: k for k, q in enumerate(lay.qubits)}
+    for taken in range(t, end + 1):
+        # Steps before ``taken`` put in, the bit vectors taken out: the state of the gates so far.
+        arrays = list(net.arrays)
+        for j in range(t, taken):
+            arrays[lay.step_leaf[j]] = step_tensor(steps[j])
+        keep = [k for k in range(len(arrays)) if k not in lay.bit_leaf]
+        wires = tuple(net.indices[k][0] for k in lay.bit_leaf)
+        state = TensorNetwork(
+            [arrays[k] for k in keep],
+            [net.indices[k] for k in keep],
+            net.size,
+            wires,
+            net.exponent,
+            net.dtype,
+        )
+        part = Circuit(len(lay.qubits))
         part.ops = [
             Operation(op.name, tuple(local[q] for q in op.qubits), op.params, op.custom)
             for st in steps[:taken]
             for op in st.ops
         ]
-        np.testing.assert_allclose(net.dense().reshape(-1), dense_state(part), atol=1e-12)
+        np.testing.assert_allclose(state.dense().reshape(-1), dense_state(part), atol=1e-12)
+
+
+def test_step_tensor_is_the_product_of_the_step_gates():
+    from tnsim.gatewise import gate_steps, step_tensor
+
+    # Against the step's gates multiplied as 4x4 Kronecker products with numpy (qubit 0 is the
+    # more significant bit; a gate on qubits (1, 0) is conjugated by the swap).
+    c = Circuit(2).rx(0.3, 0).h(1).cx(1, 0).rz(0.2, 0).ry(0.7, 1)
+    (step,) = gate_steps(c)
+    assert step.qubits == (1, 0)  # the step tensor's axes follow the step's qubits
+    swap = np.eye(4)[[0, 2, 1, 3]]
+    unitary = np.eye(4)
+    for op in c.ops:
+        m = op.matrix()
+        if op.qubits == (0,):
+            m = np.kron(m, np.eye(2))
+        elif op.qubits == (1,):
+            m = np.kron(np.eye(2), m)
+        elif op.qubits == (1, 0):
+            m = swap @ m @ swap
+        unitary = m @ unitary
+    np.testing.assert_allclose(step_tensor(step).reshape(4, 4), swap @ unitary @ swap, atol=1e-12)
 
 
 def test_gate_by_gate_fits_a_small_memory_limit_or_says_why():
     c = random_circuit(9, 60, seed=1)
     probs = np.abs(dense_state(c)) ** 2
-    # 16 KiB holds one group of 4 variants but not a 256-amplitude chunk: the chunk shrinks.
-    s = sample(c, 3000, seed=3, method="gates", memory_limit=16 * 1024)
+    # 64 KiB holds a few shots' cached values, not a 256-shot batch: the batch shrinks, and the
+    # samples stay those of the default batch (the draws are made per shot up front).
+    s = sample(c, 3000, seed=3, method="gates", memory_limit=64 * 1024)
+    np.testing.assert_array_equal(s, sample(c, 3000, seed=3, method="gates"))
     assert _chi_square_pvalue(s, probs) > 1e-3
     with pytest.raises(ResourceLimitError, match="memory limit"):
         sample(c, 10, seed=0, method="gates", memory_limit=64)
@@ -165,19 +207,19 @@ def test_diagonal_steps_are_taken_without_a_redraw(monkeypatch):
     import tnsim.gatewise as gatewise
 
     calls = []
-    original = gatewise._step_probabilities
+    original = gatewise._draw
 
-    def counting(engine, members, s):
-        calls.append(s)
-        return original(engine, members, s)
+    def counting(amplitudes, uniform):
+        calls.append(len(amplitudes))
+        return original(amplitudes, uniform)
 
-    monkeypatch.setattr(gatewise, "_step_probabilities", counting)
+    monkeypatch.setattr(gatewise, "_draw", counting)
     # Steps: cz(0,1) and cz(2,3) carry the Hadamards; cz(1,2), cz(0,1) and the controlled
     # phase are diagonal; rx(3) joins the last step on qubit 3, cz(2,3), which is not.
     c = Circuit(4).h(0).h(1).h(2).h(3).cz(0, 1).cz(2, 3).cz(1, 2).cz(0, 1).cp(0.7, 1, 2)
     c.rx(0.4, 3)
     s = sample(c, 4000, seed=5, method="gates")
-    assert len(calls) == 2
+    assert sum(calls) == 2 * 4000  # two redraws per shot
     assert _chi_square_pvalue(s, np.abs(dense_state(c)) ** 2) > 1e-3
 
 
@@ -193,25 +235,26 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     # batched runs of write-heavy trees are far slower than their FLOPs at the matmul rate,
     # so plans ~10x too costly were kept and 7x7x8 sampling time varied 6x between runs.
     import tnsim.gatewise as gatewise
-    from tnsim.batch import BatchContraction
+    from tnsim.plan import make_plan
     from tnsim.plan.search import WRITE_FLOPS
 
     c = random_circuit(8, 60, seed=2)
     steps = gatewise.gate_steps(c)
-    net, _ = gatewise._layer_network(steps, len(steps), len(steps), np.complex128)
-    probe = BatchContraction(net, net.output, (), 16)
-    flops, written = sum(probe.flops()), probe.written_per_run()
+    t = min(k for k, st in enumerate(steps) if st.layer == steps[-1].layer)
+    layer = gatewise._layer_network(steps, t, len(steps), np.complex128)
+    default = make_plan(layer.network)
+    flops, written = default.flops, sum(default.tree.intermediate_sizes())
     assert WRITE_FLOPS * written > 4 * flops  # a write-heavy plan, as on grid circuits
     # A rate at which the FLOPs alone forecast a search of 0.2 s (below the 0.5 s floor).
-    rate = gatewise.PLAN_SHARE * flops / 0.2
+    shots = 16
+    rate = gatewise.PLAN_SHARE * gatewise.LIVE_PASSES * shots * flops / 0.2
     monkeypatch.setattr(gatewise, "matmul_rate", lambda dtype: rate)
     budgets = []
-    original = gatewise.fitted_engine
 
-    def spy(*args, **kwargs):
-        budgets.append(kwargs["time_budget"])
-        return original(*args, **kwargs)
+    def spy(network, **kwargs):
+        budgets.append(kwargs.get("time_budget"))
+        return make_plan(network, **kwargs)
 
-    monkeypatch.setattr(gatewise, "fitted_engine", spy)
-    gatewise._first_engine(net, 16, 4, 2**30, 16)
-    assert budgets[0] is not None and budgets[0] > gatewise.MIN_PLAN_SECONDS
+    monkeypatch.setattr(gatewise, "make_plan", spy)
+    gatewise._layer_plan(layer, shots)
+    assert budgets[-1] is not None and budgets[-1] > gatewise.MIN_PLAN_SECONDS

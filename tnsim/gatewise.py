@@ -15,14 +15,20 @@ Steps: each multi-qubit gate, with the single-qubit gates on its qubits since
 their previous step (and, after a qubit's last multi-qubit gate, the rest of
 that qubit's gates); a qubit without multi-qubit gates is one step.  Steps are
 taken layer by layer (the as-soon-as-possible layer of their multi-qubit
-gate).  The steps of one layer act on different qubits, so they share one
-network shape: all layers up to that one, with the layer's steps not yet taken
-as identities of the same shape (:func:`tnsim.network.identity_tensor`).  Each
-layer is planned once; every step runs its distinct bitstrings (and their
-``2**|S_t|`` variants) through :class:`tnsim.batch.BatchContraction`.  Qubits
-that no step has reached yet are in ``|0>`` and are left out; a step of diagonal
-gates only (no single-qubit gates attached) changes no outcome probability and
-is taken without a redraw.
+gate).  The steps of one layer act on different qubits, so they commute and
+share one network: all earlier layers, one tensor per step of the layer (the
+identity until the step is taken) and one bit vector ``<x_q|`` per qubit
+(:class:`LayerNetwork`).  Each layer is planned once; a batch of shots then
+takes the layer's steps in the order of the tree's leaves through a
+:class:`tnsim.livetree.LiveTree`: a step puts its tensor in, opens its qubits'
+bit vectors (one contraction gives all ``2**|S_t|`` amplitudes of every shot),
+draws, and closes them on the drawn bits.  Values and environments not touched
+by a step are kept, so a layer costs each shot a few contractions of its tree,
+not one per step.  Qubits that no step has reached yet are in ``|0>`` and are
+left out; a step of diagonal gates only (no single-qubit gates attached)
+changes no outcome probability and is put in without a redraw.  The uniform
+numbers of every draw are drawn per layer up front, so the samples do not
+depend on how shots are batched.
 """
 
 from __future__ import annotations
@@ -32,13 +38,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .batch import BatchContraction, fitted_engine
 from .circuit import Circuit, Operation
-from .memory import default_memory_limit
-from .network import TensorNetwork, amplitude_network, gate_tensor, identity_tensor
+from .errors import ResourceLimitError
+from .livetree import LiveTree
+from .memory import default_memory_limit, format_bytes
+from .network import TensorNetwork, amplitude_network, gate_tensor
+from .plan import ContractionTree, Plan, make_plan
 from .plan.forecast import forecast_seconds, matmul_rate
+from .simplify import absorb_small
 
-__all__ = ["GateStep", "gate_steps", "sample_by_gates"]
+__all__ = ["GateStep", "LayerNetwork", "gate_steps", "sample_by_gates", "step_tensor"]
 
 
 @dataclass(frozen=True)
@@ -82,54 +91,120 @@ def gate_steps(circuit: Circuit) -> list[GateStep]:
     return [GateStep(groups[k][0], tuple(groups[k][1]), groups[k][2]) for k in order]
 
 
-def _layer_network(steps: Sequence[GateStep], taken: int, end: int, dtype) -> tuple:
-    """Network of ``steps[:end]`` with ``steps[taken:end]`` as identities.
+@dataclass(frozen=True)
+class LayerNetwork:
+    """One layer's network: earlier layers, the layer's steps, one bit vector per qubit.
 
-    Returns the network (output: every reached qubit's final wire, in the order
-    of ``qubits``) and ``qubits``, the circuit qubits it holds.
+    Attributes
+    ----------
+    network : TensorNetwork
+        Closed network of one shot: the gates of all earlier layers
+        (simplified), one tensor per step of this layer (axes: the step's
+        outgoing wires, then its incoming ones), then one bit vector
+        ``<x_q|`` per qubit closing its final wire.
+    qubits : list of int
+        The circuit qubits it holds, in the order of the bit vectors.
+    step_leaf : dict of int to int
+        Leaf of each of the layer's steps (by index into the steps).
+    bit_leaf : list of int
+        Leaf of each qubit's bit vector (in the order of ``qubits``).
     """
+
+    network: TensorNetwork
+    qubits: list[int]
+    step_leaf: dict[int, int]
+    bit_leaf: list[int]
+
+
+def step_tensor(step: GateStep) -> np.ndarray:
+    """The product of a step's gates as a tensor: outgoing axes, then incoming ones.
+
+    Examples
+    --------
+    >>> c = Circuit(2).h(0).cx(0, 1)
+    >>> t = step_tensor(gate_steps(c)[0])
+    >>> np.round(t.reshape(4, 4)[:, 0] * np.sqrt(2), 6)  # H on qubit 0, then CNOT: a Bell pair
+    array([1.+0.j, 0.+0.j, 0.+0.j, 1.+0.j])
+    """
+    k = len(step.qubits)
+    pos = {q: j for j, q in enumerate(step.qubits)}
+    t = np.eye(1 << k, dtype=np.complex128).reshape((2,) * (2 * k))
+    for op in step.ops:
+        a = len(op.qubits)
+        axes = [pos[q] for q in op.qubits]
+        g = op.matrix().reshape((2,) * (2 * a))
+        t = np.moveaxis(np.tensordot(g, t, axes=(list(range(a, 2 * a)), axes)), range(a), axes)
+    return t
+
+
+def _layer_network(steps: Sequence[GateStep], t: int, end: int, dtype) -> LayerNetwork:
+    """The network of ``steps[:t]`` with ``steps[t:end]`` (one layer) as identities."""
     qubits = sorted({q for s in steps[:end] for q in s.qubits})
     local = {q: k for k, q in enumerate(qubits)}
-    ops, idle = [], []
-    for k, s in enumerate(steps[:end]):
-        for op in s.ops:
-            ops.append(Operation(op.name, tuple(local[q] for q in op.qubits), op.params, op.custom))
-            idle.append(k >= taken)
     m = len(qubits)
     grown = Circuit(m)
-    grown.ops = ops
-    net = amplitude_network(grown, None, open_qubits=range(m), dtype=dtype)
-    # amplitude_network lays out the m input vectors, then one tensor per gate, in order.
-    arrays = list(net.arrays)
-    for k, (op, off) in enumerate(zip(ops, idle)):
-        if off:
-            arrays[m + k] = identity_tensor(op).astype(net.dtype)
-    return TensorNetwork(arrays, net.indices, net.size, net.output, net.exponent, net.dtype), qubits
+    grown.ops = [
+        Operation(op.name, tuple(local[q] for q in op.qubits), op.params, op.custom)
+        for s in steps[:t]
+        for op in s.ops
+    ]
+    base = absorb_small(amplitude_network(grown, None, open_qubits=range(m), dtype=dtype))
+    arrays, indices, size = list(base.arrays), list(base.indices), dict(base.size)
+    wire = list(base.output)
+    nxt = max(size, default=-1) + 1
+    step_leaf = {}
+    for j in range(t, end):
+        k = len(steps[j].qubits)
+        outs = tuple(range(nxt, nxt + k))
+        nxt += k
+        step_leaf[j] = len(arrays)
+        arrays.append(np.eye(1 << k, dtype=base.dtype).reshape((2,) * (2 * k)))
+        indices.append(outs + tuple(wire[local[q]] for q in steps[j].qubits))
+        for q, label in zip(steps[j].qubits, outs):
+            wire[local[q]] = label
+            size[label] = 2
+    bit_leaf = list(range(len(arrays), len(arrays) + m))
+    arrays += [np.array([1, 0], dtype=base.dtype)] * m
+    indices += [(w,) for w in wire]
+    network = TensorNetwork(arrays, indices, size, (), base.exponent, base.dtype)
+    return LayerNetwork(network, qubits, step_leaf, bit_leaf)
 
 
-def _variants(rows: np.ndarray, cols: Sequence[int]) -> np.ndarray:
-    """Each row repeated ``2**len(cols)`` times with ``cols`` set to 0..2**len(cols)-1."""
-    s = len(cols)
-    out = np.repeat(rows, 1 << s, axis=0)
-    v = np.arange(len(out)) % (1 << s)
-    for j, c in enumerate(cols):
-        out[:, c] = (v >> (s - 1 - j)) & 1
-    return out
+def _batch_tree(layer: LayerNetwork, plan: Plan, members: int) -> tuple[ContractionTree, int]:
+    """The layer's tree with a batch label on every bit vector; returns it and the label."""
+    net = layer.network
+    batch = max(net.size) + 1
+    inputs = list(net.indices)
+    for leaf in layer.bit_leaf:
+        inputs[leaf] = (batch, *inputs[leaf])
+    size = net.size | {batch: members}
+    return ContractionTree(tuple(inputs), (batch,), size, plan.tree.path), batch
 
 
-def _step_probabilities(engine: BatchContraction, members: np.ndarray, s: int) -> np.ndarray:
-    """``|amplitude|²`` of every member, normalised within each group of ``2**s``."""
-    per = max(engine.chunk >> s, 1) << s
-    probs = []
-    for start in range(0, len(members), per):
-        part = engine.run(members[start : start + per])
-        amp = np.asarray(part.mantissa, dtype=np.complex128).reshape(-1, 1 << s)
-        probs.append(amp.real**2 + amp.imag**2)
-    table = np.concatenate(probs)
-    totals = table.sum(axis=1, keepdims=True)
+def _leaf_order(tree: ContractionTree) -> list[int]:
+    """Rank of every leaf in a depth-first walk of ``tree`` (leaves of a subtree are adjacent)."""
+    n = tree.num_leaves
+    rank = [0] * n
+    stack, count = [n + len(tree.path) - 1 if tree.path else 0], 0
+    while stack:
+        u = stack.pop()
+        if u < n:
+            rank[u], count = count, count + 1
+        else:
+            x, y = tree.path[u - n]
+            stack += [y, x]
+    return rank
+
+
+def _draw(amplitudes: np.ndarray, uniform: np.ndarray) -> np.ndarray:
+    """One outcome per row of ``amplitudes``, drawn with probability ``|a|²`` (normalised)."""
+    probs = amplitudes.real**2 + amplitudes.imag**2
+    totals = probs.sum(axis=1, keepdims=True)
     if np.any(totals <= 0):
         raise ArithmeticError("a sampled bitstring has zero probability (numerical underflow)")
-    return table / totals
+    cum = np.cumsum(probs / totals, axis=1)
+    cum[:, -1] = 1.0
+    return (uniform[:, None] >= cum).sum(axis=1)
 
 
 def sample_by_gates(
@@ -145,8 +220,9 @@ def sample_by_gates(
 
     The arguments are those of :func:`tnsim.sampling.sample` (which calls this
     with ``method="gates"``), with ``rng`` the generator; ``chunk`` is the
-    number of amplitudes contracted together (whole groups of ``2**|S_t|``),
-    shrunk to fit ``memory_limit``.  Returns ``(shots, num_qubits)`` ``uint8``.
+    number of shots taken through a layer together, shrunk to fit
+    ``memory_limit``.  The samples do not depend on ``chunk`` or the limit.
+    Returns ``(shots, num_qubits)`` ``uint8``.
 
     Examples
     --------
@@ -163,56 +239,117 @@ def sample_by_gates(
         end = t
         while end < len(steps) and steps[end].layer == steps[t].layer:
             end += 1
-        widest = 1 << max(len(steps[k].qubits) for k in range(t, end))
-        plan, size = None, min(chunk, shots * widest)
-        for taken in range(t + 1, end + 1):
-            step = steps[taken - 1]
-            if all(all(gate_tensor(op)[1]) for op in step.ops):
-                continue  # diagonal gates do not change the distribution: nothing to redraw
-            network, qubits = _layer_network(steps, taken, end, dtype)
-            if plan is None:
-                uses = shots * (end - taken + 1) * widest
-                engine = _first_engine(network, size, widest, limit, uses)
-            else:
-                engine = BatchContraction(network, network.output, (), size, limit, plan=plan)
-            plan, size = engine.plan, engine.chunk
-            local = [qubits.index(q) for q in step.qubits]
-            rows, group = np.unique(out[:, qubits], axis=0, return_inverse=True)
-            table = _step_probabilities(engine, _variants(rows, local), len(local))
-            cum = np.cumsum(table, axis=1)
-            cum[:, -1] = 1.0
-            y = (rng.random(shots)[:, None] >= cum[group.reshape(-1)]).sum(axis=1)
-            for j, q in enumerate(step.qubits):
-                out[:, q] = (y >> (len(local) - 1 - j)) & 1
+        uniform = rng.random((end - t, shots))
+        layer = _layer_network(steps, t, end, dtype)
+        plan = _layer_plan(layer, shots)
+        members = _members(layer, plan, min(chunk, shots), limit)
+        tree, _ = _batch_tree(layer, plan, members)
+        rank = _leaf_order(tree)
+        order = sorted(
+            range(t, end),
+            key=lambda j: min(rank[layer.bit_leaf[layer.qubits.index(q)]] for q in steps[j].qubits),
+        )
+        varying = _varying(tree, set(layer.bit_leaf) | set(layer.step_leaf.values()))
+        fixed = [u for u in range(tree.num_leaves, len(varying)) if not varying[u]]
+        known: dict = {}
+        for start in range(0, shots, members):
+            rows = slice(start, min(start + members, shots))
+            live = _run_layer(steps, layer, plan, order, out, rows, uniform[:, rows], t, known)
+            known = live.values_of(fixed)
         t = end
     return out
 
 
-def _first_engine(network: TensorNetwork, size: int, least: int, limit: int, uses: int):
-    """The batch engine of a layer's first step: it plans the layer and fits the chunk.
+def _run_layer(steps, layer, plan, order, out, rows, uniform, t, known) -> LiveTree:
+    """Take one layer's steps, in ``order``, for the shots ``out[rows]`` (updated in place).
 
-    The layer's plan serves about ``uses`` amplitudes: when the default plan's
-    forecast for them (FLOPs and elements written, :func:`forecast_seconds`)
-    is long, the planner searches again for up to :data:`PLAN_SHARE` of that
-    forecast (at most :data:`MAX_PLAN_SECONDS`).
-    The chunk shrinks (not below ``least``, one group of variants) to fit ``limit``.
+    ``uniform[j - t]`` holds the shots' uniform draws for step ``j``; ``known``
+    holds values computed for earlier shots that depend on no shot or step.
     """
-    first = BatchContraction(network, network.output, (), size, limit)
-    fixed, per_run = first.flops()
-    runs = uses / size
-    rate = matmul_rate(np.complex128)
-    seconds = PLAN_SHARE * forecast_seconds(
-        fixed + per_run * runs, first.written_per_run() * runs, rate
-    )
-    budget = min(seconds, MAX_PLAN_SECONDS) if seconds > MIN_PLAN_SECONDS else None
-    plan = first.plan if budget is None else None
-    return fitted_engine(
-        network, network.output, (), size, limit, least=least, plan=plan, time_budget=budget
-    )
+    count = rows.stop - rows.start
+    tree, batch = _batch_tree(layer, plan, count)
+    arrays = list(layer.network.arrays)
+    eye = np.eye(2, dtype=layer.network.dtype)
+    for leaf, q in zip(layer.bit_leaf, layer.qubits):
+        arrays[leaf] = eye[out[rows, q]]
+    live = LiveTree(tree, arrays, batch, known)
+    for j in order:
+        step = steps[j]
+        live.replace(layer.step_leaf[j], step_tensor(step).astype(layer.network.dtype))
+        if all(all(gate_tensor(op)[1]) for op in step.ops):
+            continue  # diagonal gates do not change the distribution: nothing to redraw
+        leaves = [layer.bit_leaf[layer.qubits.index(q)] for q in step.qubits]
+        amps = np.asarray(live.probe(leaves).mantissa, dtype=np.complex128).reshape(count, -1)
+        y = _draw(amps, uniform[j - t])
+        k = len(step.qubits)
+        for i, (q, leaf) in enumerate(zip(step.qubits, leaves)):
+            bits = ((y >> (k - 1 - i)) & 1).astype(np.uint8)
+            out[rows, q] = bits
+            live.replace(leaf, eye[bits])
+    return live
 
+
+def _varying(tree: ContractionTree, leaves: set[int]) -> list[bool]:
+    """For every node of ``tree`` (leaves first), whether one of ``leaves`` is below it."""
+    flags = [k in leaves for k in range(tree.num_leaves)]
+    for x, y in tree.path:
+        flags.append(flags[x] or flags[y])
+    return flags
+
+
+def _layer_plan(layer: LayerNetwork, shots: int) -> Plan:
+    """Plan a layer's network; search longer when its shots' forecast run time is long.
+
+    The default plan's forecast for ``shots`` shots (:data:`LIVE_PASSES` whole
+    contractions per shot; FLOPs and elements written, :func:`forecast_seconds`)
+    sets the search time: :data:`PLAN_SHARE` of it, at most
+    :data:`MAX_PLAN_SECONDS`, none below :data:`MIN_PLAN_SECONDS`.
+    """
+    rate = matmul_rate(np.complex128)
+
+    def forecast(plan: Plan) -> float:
+        written = sum(plan.tree.intermediate_sizes())
+        return LIVE_PASSES * shots * forecast_seconds(plan.flops, written, rate)
+
+    first = make_plan(layer.network)
+    seconds = PLAN_SHARE * forecast(first)
+    if seconds <= MIN_PLAN_SECONDS:
+        return first
+    second = make_plan(layer.network, time_budget=min(seconds, MAX_PLAN_SECONDS))
+    return min(first, second, key=forecast)
+
+
+def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
+    """Shots per batch (at most ``chunk``) whose values and environments fit ``limit`` bytes.
+
+    A shot keeps the value and the environment of every node above a bit
+    vector; three copies of the largest such node are left for a step's work.
+    The largest node of a batch is kept within :data:`BATCH_ELEMENTS`.
+    """
+    tree, _ = _batch_tree(layer, plan, 1)
+    sizes = [1] * tree.num_leaves + tree.intermediate_sizes()
+    per_shot = [s for s, v in zip(sizes, _varying(tree, set(layer.bit_leaf))) if v]
+    need = (2 * sum(per_shot) + 3 * max(per_shot)) * layer.network.dtype.itemsize
+    if need > limit:
+        raise ResourceLimitError(
+            f"gate-by-gate sampling needs {format_bytes(need)} per shot for a layer of "
+            f"{len(layer.qubits)} qubits, over the memory limit of {format_bytes(limit)}; "
+            "raise the memory limit"
+        )
+    return max(1, min(chunk, limit // need, BATCH_ELEMENTS // max(per_shot)))
+
+
+LIVE_PASSES = 5
+"""Run time per shot and layer, in forecasts of one contraction of the layer's tree (values
+are computed about twice and environments once, at well below the matmul rate; measured on
+7x7 grid circuits)."""
+
+BATCH_ELEMENTS = 1 << 21
+"""Most elements of one intermediate of a batch of shots (larger batches ran slower:
+arrays over the allocator's reuse threshold are fresh pages on every step)."""
 
 PLAN_SHARE = 0.05
-"""Share of a layer's forecast contraction time spent searching for a better plan."""
+"""Share of a layer's forecast run time spent searching for a better plan."""
 
 MIN_PLAN_SECONDS = 0.5
 """A layer whose forecast share is below this keeps the planner's default plan."""
