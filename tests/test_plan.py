@@ -512,3 +512,31 @@ def test_same_seed_and_trial_budget_give_the_same_sliced_plan():
         finally:
             reopt_module.time.perf_counter = real
     assert plans[0].tree.path == plans[1].tree.path and plans[0].sliced == plans[1].sliced
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_vectors_first_plans_merge_each_vector_then_follow_the_merged_plan(seed):
+    from tnsim.plan.vectors import plan_vectors_first
+
+    # Reference: opt_einsum.contract of the whole network (numpy einsum underneath).
+    inputs, output, size = random_network(8, num_open=1, hyper=0.3, seed=seed)
+    inputs = [tuple(ix) for ix in inputs]
+    rng = np.random.default_rng(seed)
+    vectors = []
+    for k in range(3):  # vectors closing new labels on random tensors, one closing a hyperedge
+        label = max(size) + 1
+        size[label] = 2
+        t = int(rng.integers(len(inputs)))
+        inputs[t] += (label,)
+        if k == 2:
+            inputs[(t + 1) % 8] += (label,)
+        vectors.append(len(inputs))
+        inputs.append((label,))
+    arrays = random_arrays(inputs, size, seed=seed)
+    net = TensorNetwork(arrays, inputs, size, output)
+    plan = plan_vectors_first(net, vectors, lambda n: make_plan(n, max_trials=4))
+    merged = [set(step) & set(vectors) for step in plan.tree.path[:3]]
+    assert [len(m) for m in merged] == [1, 1, 1]
+    assert plan.flops == plan.tree.cost().flops
+    want = opt_einsum.contract(*[x for pair in zip(arrays, inputs) for x in pair], output)
+    np.testing.assert_allclose(execute(net, plan.tree).value(), want, rtol=1e-10)

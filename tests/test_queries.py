@@ -217,11 +217,14 @@ def test_amplitudes_under_a_tight_limit_fit_the_executors_count(monkeypatch):
     monkeypatch.setattr(q, "OPEN_LIMIT", 0)
     monkeypatch.setattr(q, "WIDE_OPEN_LIMIT", 0)
 
-    class Costly(q.BatchContraction):  # make the batch engine look dear: row by row runs
-        def flops(self):
-            return 10**30, 10**30
+    real = q.fitted_engine
 
-    monkeypatch.setattr(q, "BatchContraction", Costly)
+    def costly(*args, **kwargs):  # make the batch engine look dear: row by row runs
+        engine = real(*args, **kwargs)
+        engine.flops = lambda: (10**30, 10**30)
+        return engine
+
+    monkeypatch.setattr(q, "fitted_engine", costly)
     rows = np.random.default_rng(5).integers(0, 2, size=(3, 14), dtype=np.uint8)
     with tnsim.run_options(memory_limit=limit):
         got = q.amplitudes(c, rows)

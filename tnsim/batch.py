@@ -29,9 +29,16 @@ from .execute import (
 )
 from .network import TensorNetwork
 from .plan import ContractionTree, Plan, make_plan
+from .plan.forecast import plan_for_runs
+from .plan.vectors import plan_vectors_first
 from .simplify import absorb_small
 
-__all__ = ["BatchContraction", "fitted_engine"]
+__all__ = ["BATCH_ELEMENTS", "BatchContraction", "fitted_engine"]
+
+BATCH_ELEMENTS = 1 << 21
+"""Most elements of one intermediate of a batch (batches of larger arrays ran up to 2x
+slower on 7x7 grid circuits: arrays over the allocator's reuse threshold, 32 MiB, come
+as fresh pages on every step)."""
 
 
 class BatchContraction:
@@ -54,6 +61,9 @@ class BatchContraction:
         (its ``plan`` attribute), to change ``chunk`` without planning again.
     time_budget : float, optional
         Seconds the planner may search (default: :func:`tnsim.plan.make_plan`'s).
+    runs : float, optional
+        Batch members expected in all; without ``time_budget``, the plan search
+        grows with their forecast run time (:func:`tnsim.plan.forecast.plan_for_runs`).
 
     Examples
     --------
@@ -75,6 +85,7 @@ class BatchContraction:
         memory_limit: int | None = None,
         plan: Plan | None = None,
         time_budget: float | None = None,
+        runs: float | None = None,
     ):
         self.batch_labels = tuple(batch_labels)
         self.chunk = int(chunk)
@@ -109,7 +120,8 @@ class BatchContraction:
             self.dtype,
         )
         if plan is None:
-            plan = make_plan(single, memory_limit=memory_limit, time_budget=time_budget)
+            vectors = range(self.num_fixed, self.num_fixed + len(self.batch_labels))
+            plan = plan_vectors_first(single, vectors, _planner(memory_limit, time_budget, runs))
         self.plan = plan
         self.tree = ContractionTree(tuple(inputs), self.network.output, size, plan.tree.path)
         self.sliced = tuple(plan.sliced)
@@ -217,6 +229,13 @@ class BatchContraction:
         return Scaled(root, exponent + e + self.network.exponent)
 
 
+def _planner(memory_limit: int | None, time_budget: float | None, runs: float | None):
+    """The planner of a batch member's network: searched by ``runs`` unless timed."""
+    if runs is not None and time_budget is None:
+        return lambda net: plan_for_runs(net, runs, memory_limit=memory_limit)
+    return lambda net: make_plan(net, memory_limit=memory_limit, time_budget=time_budget)
+
+
 def fitted_engine(
     network: TensorNetwork,
     batch_labels: Sequence[int],
@@ -227,12 +246,14 @@ def fitted_engine(
     least: int = 1,
     plan: Plan | None = None,
     time_budget: float | None = None,
+    runs: float | None = None,
 ) -> BatchContraction:
-    """A :class:`BatchContraction` whose chunk is cut (by 4, not below ``least``) to fit.
+    """A :class:`BatchContraction` whose chunk is halved (not below ``least``) to fit.
 
     The chunk shrinks until three copies of the largest intermediate of a run
-    (operands' copies and the result) fit ``memory_limit`` bytes; the plan of
-    one batch member is made once and reused.
+    (operands' copies and the result) fit ``memory_limit`` bytes and the
+    largest intermediate redone per run has at most :data:`BATCH_ELEMENTS`
+    elements; the plan of one batch member is made once and reused.
 
     Examples
     --------
@@ -244,9 +265,13 @@ def fitted_engine(
     """
     while True:
         engine = BatchContraction(
-            network, batch_labels, open_labels, chunk, memory_limit, plan, time_budget
+            network, batch_labels, open_labels, chunk, memory_limit, plan, time_budget, runs
         )
         need = largest_intermediate(engine.steps) * engine.dtype.itemsize * 3
-        if need <= memory_limit or chunk <= least:
+        n = engine.tree.num_leaves
+        redone = [s for s, v in zip(engine.steps, engine.varying[n:]) if v]
+        if chunk <= least or (
+            need <= memory_limit and largest_intermediate(redone) <= BATCH_ELEMENTS
+        ):
             return engine
-        chunk, plan = max(least, chunk // 4), engine.plan
+        chunk, plan = max(least, chunk // 2), engine.plan

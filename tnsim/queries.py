@@ -14,17 +14,19 @@ from collections.abc import Iterable, Iterator, Mapping, Sequence
 
 import numpy as np
 
-from .batch import BatchContraction
+from .batch import fitted_engine
 from .bits import parse_many
 from .budget import fit_plan
 from .circuit import Circuit
 from .errors import InputError
-from .execute import Scaled, compile_tree, count_flops, execute
+from .execute import Scaled, execute
 from .gates import gate_matrix
 from .lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
+from .memory import default_memory_limit
 from .network import TensorNetwork, amplitude_network, doubled_network
 from .observables import Observable, parse_observable
 from .plan import greedy_tree
+from .plan.forecast import elements_written, forecast_seconds, matmul_rate
 from .simplify import absorb_small
 
 __all__ = [
@@ -46,7 +48,11 @@ WIDE_OPEN_LIMIT = 22
 """Up to this many differing qubits, a batch of at least ``2**k / 4096`` bitstrings is also
 one contraction with those legs open (``2**22`` complex128 outputs are 64 MiB)."""
 CHUNK = 512
-"""Bitstrings per batched contraction."""
+"""Bitstrings per batched contraction (fewer where intermediates would be large)."""
+ROW_SECONDS = 5e-5
+"""Python time per tensor of rebuilding, simplifying and contracting one bitstring's
+network on its own (about 50 microseconds on this project's machine; measured on 7x7 grid
+circuits, order of magnitude)."""
 
 
 def _check_dtype(dtype) -> np.dtype:
@@ -198,15 +204,17 @@ def iter_amplitudes(
         return
     first = absorb_small(amplitude_network(circuit, rows[0], dtype=dt))
     plan = fit_plan(first, memory_limit)
-    single = count_flops(compile_tree(plan.tree, plan.sliced)) << len(plan.sliced)
-    chunk = min(chunk, len(rows))
     base = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt)
-    engine = BatchContraction(base, base.output, (), chunk=chunk, memory_limit=memory_limit)
+    limit = memory_limit or default_memory_limit()
+    engine = fitted_engine(base, base.output, (), min(chunk, len(rows)), limit, runs=len(rows))
+    chunk = engine.chunk
+    runs = -(-len(rows) // chunk)
+    rate = matmul_rate(dt)
     fixed, per_run = engine.flops()
-    # Row by row also rebuilds and simplifies the network each time: about 2e4 FLOPs'
-    # worth of Python per tensor (measured on this project's machine, order of magnitude).
-    per_row = single + 20_000 * len(base)
-    if fixed + per_run * -(-len(rows) // chunk) > per_row * len(rows):
+    batched = forecast_seconds(fixed + per_run * runs, engine.written_per_run() * runs, rate)
+    # Row by row also rebuilds and simplifies the network each time (ROW_SECONDS per tensor).
+    per_row = forecast_seconds(plan.flops, elements_written(plan), rate) + ROW_SECONDS * len(base)
+    if batched > per_row * len(rows):
         yield from _row_by_row(circuit, rows, dt, first, plan, memory_limit)
         return
     for start in range(0, len(rows), chunk):

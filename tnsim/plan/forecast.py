@@ -23,7 +23,7 @@ import opt_einsum
 from ..circuit import Circuit
 from ..errors import InputError
 from ..memory import format_bytes
-from ..network import amplitude_network
+from ..network import TensorNetwork, amplitude_network
 from ..simplify import absorb_small
 from . import Plan, _limit, make_plan
 from .search import WRITE_FLOPS
@@ -31,6 +31,7 @@ from .search import WRITE_FLOPS
 __all__ = [
     "PlanReport",
     "plan",
+    "plan_for_runs",
     "matmul_rate",
     "elements_written",
     "forecast_seconds",
@@ -185,6 +186,45 @@ def forecast_seconds(flops: int, written: int, rate: float) -> float:
     True
     """
     return (flops + WRITE_FLOPS * written) / rate
+
+
+def plan_for_runs(network: TensorNetwork, runs: float, *, memory_limit: int | None = None) -> Plan:
+    """Plan a network that will be contracted about ``runs`` times.
+
+    The planner's default plan is forecast (:func:`forecast_seconds` of its
+    FLOPs and elements written) for ``runs`` contractions; when
+    :data:`PLAN_SHARE` of that forecast exceeds :data:`MIN_PLAN_SECONDS`, the
+    planner searches again for that long (at most :data:`MAX_PLAN_SECONDS`)
+    and the plan with the shorter forecast is returned.
+
+    Examples
+    --------
+    >>> net = amplitude_network(Circuit(2).h(0).cx(0, 1), "11")
+    >>> plan_for_runs(net, 1).flops > 0
+    True
+    """
+    rate = matmul_rate(network.dtype)
+
+    def forecast(p: Plan) -> float:
+        return runs * forecast_seconds(p.flops, elements_written(p), rate)
+
+    first = make_plan(network, memory_limit=memory_limit)
+    seconds = PLAN_SHARE * forecast(first)
+    if seconds <= MIN_PLAN_SECONDS:
+        return first
+    budget = min(seconds, MAX_PLAN_SECONDS)
+    second = make_plan(network, memory_limit=memory_limit, time_budget=budget)
+    return min(first, second, key=forecast)
+
+
+PLAN_SHARE = 0.1
+"""Share of the forecast run time of many contractions spent searching for a better plan."""
+
+MIN_PLAN_SECONDS = 0.2
+"""Below this search time the planner's default plan is kept."""
+
+MAX_PLAN_SECONDS = 10.0
+"""Longest search of :func:`plan_for_runs`."""
 
 
 def opt_einsum_cost(p: Plan) -> float:
