@@ -1,5 +1,7 @@
 """Exact sampling against the dense output distribution (chi-square goodness of fit)."""
 
+import dataclasses
+
 import numpy as np
 import pytest
 from scipy.stats import chisquare
@@ -223,6 +225,23 @@ def test_diagonal_steps_are_taken_without_a_redraw(monkeypatch):
     assert _chi_square_pvalue(s, np.abs(dense_state(c)) ** 2) > 1e-3
 
 
+def test_gate_by_gate_samples_do_not_depend_on_the_plan(monkeypatch):
+    # Found in development: taking a layer's steps in the order of the tree's leaves made the
+    # samples of a seed depend on the plan, which comes from a time-limited search.
+    import tnsim.gatewise as gatewise
+    from tnsim.plan import greedy_tree, make_plan
+
+    c = random_circuit(10, 80, seed=11)
+    first = sample(c, 300, seed=4, method="gates")
+
+    def greedy(network, runs):  # another (deterministic) tree for every layer
+        tree = greedy_tree(network.indices, network.output, network.size)
+        return dataclasses.replace(make_plan(network), tree=tree)
+
+    monkeypatch.setattr(gatewise, "plan_for_runs", greedy)
+    np.testing.assert_array_equal(sample(c, 300, seed=4, method="gates"), first)
+
+
 def test_gate_by_gate_is_reproducible_and_seed_dependent():
     c = random_circuit(6, 30, seed=3)
     a, b = sample(c, 50, seed=7, method="gates"), sample(c, 50, seed=7, method="gates")
@@ -234,7 +253,9 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     # Bug found in review: the decision to search for a better layer plan used FLOPs only;
     # batched runs of write-heavy trees are far slower than their FLOPs at the matmul rate,
     # so plans ~10x too costly were kept and 7x7x8 sampling time varied 6x between runs.
+    # The decision now lives in plan_for_runs (used for every layer).
     import tnsim.gatewise as gatewise
+    import tnsim.plan.forecast as forecast
     from tnsim.plan import make_plan
     from tnsim.plan.search import WRITE_FLOPS
 
@@ -245,16 +266,16 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     default = make_plan(layer.network)
     flops, written = default.flops, sum(default.tree.intermediate_sizes())
     assert WRITE_FLOPS * written > 4 * flops  # a write-heavy plan, as on grid circuits
-    # A rate at which the FLOPs alone forecast a search of 0.2 s (below the 0.5 s floor).
-    shots = 16
-    rate = gatewise.PLAN_SHARE * gatewise.LIVE_PASSES * shots * flops / 0.2
-    monkeypatch.setattr(gatewise, "matmul_rate", lambda dtype: rate)
+    # A rate at which the FLOPs alone forecast a search of half the floor.
+    runs = 16
+    rate = forecast.PLAN_SHARE * runs * flops / (forecast.MIN_PLAN_SECONDS / 2)
+    monkeypatch.setattr(forecast, "matmul_rate", lambda dtype: rate)
     budgets = []
 
     def spy(network, **kwargs):
         budgets.append(kwargs.get("time_budget"))
         return make_plan(network, **kwargs)
 
-    monkeypatch.setattr(gatewise, "make_plan", spy)
-    gatewise._layer_plan(layer, shots)
-    assert budgets[-1] is not None and budgets[-1] > gatewise.MIN_PLAN_SECONDS
+    monkeypatch.setattr(forecast, "make_plan", spy)
+    forecast.plan_for_runs(layer.network, runs)
+    assert budgets[-1] is not None and budgets[-1] > forecast.MIN_PLAN_SECONDS

@@ -19,16 +19,18 @@ gate).  The steps of one layer act on different qubits, so they commute and
 share one network: all earlier layers, one tensor per step of the layer (the
 identity until the step is taken) and one bit vector ``<x_q|`` per qubit
 (:class:`LayerNetwork`).  Each layer is planned once; a batch of shots then
-takes the layer's steps in the order of the tree's leaves through a
-:class:`tnsim.livetree.LiveTree`: a step puts its tensor in, opens its qubits'
-bit vectors (one contraction gives all ``2**|S_t|`` amplitudes of every shot),
-draws, and closes them on the drawn bits.  Values and environments not touched
-by a step are kept, so a layer costs each shot a few contractions of its tree,
-not one per step.  Qubits that no step has reached yet are in ``|0>`` and are
-left out; a step of diagonal gates only (no single-qubit gates attached)
-changes no outcome probability and is put in without a redraw.  The uniform
-numbers of every draw are drawn per layer up front, so the samples do not
-depend on how shots are batched.
+takes the layer's steps through a :class:`tnsim.livetree.LiveTree`: a step
+puts its tensor in, opens its qubits' bit vectors (one contraction gives all
+``2**|S_t|`` amplitudes of every shot), draws, and closes them on the drawn
+bits.  Values and environments not touched by a step are kept, so a layer
+costs each shot a few contractions of its tree, not one per step.  The steps
+of a layer are taken in circuit order, not in the order of the tree's leaves
+(which was ~1.4x faster on a 7x7 grid): the tree comes from a time-limited
+search, and the samples of a seed must not depend on it.  Qubits that no step
+has reached yet are in ``|0>`` and are left out; a step of diagonal gates only
+(no single-qubit gates attached) changes no outcome probability and is put in
+without a redraw.  The uniform numbers of every draw are drawn per layer up
+front, so the samples do not depend on how shots are batched either.
 """
 
 from __future__ import annotations
@@ -38,13 +40,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .batch import BATCH_ELEMENTS
 from .circuit import Circuit, Operation
 from .errors import ResourceLimitError
 from .livetree import LiveTree
 from .memory import default_memory_limit, format_bytes
 from .network import TensorNetwork, amplitude_network, gate_tensor
-from .plan import ContractionTree, Plan, make_plan
-from .plan.forecast import forecast_seconds, matmul_rate
+from .plan import ContractionTree, Plan
+from .plan.forecast import plan_for_runs
+from .plan.vectors import plan_vectors_first
 from .simplify import absorb_small
 
 __all__ = ["GateStep", "LayerNetwork", "gate_steps", "sample_by_gates", "step_tensor"]
@@ -181,21 +185,6 @@ def _batch_tree(layer: LayerNetwork, plan: Plan, members: int) -> tuple[Contract
     return ContractionTree(tuple(inputs), (batch,), size, plan.tree.path), batch
 
 
-def _leaf_order(tree: ContractionTree) -> list[int]:
-    """Rank of every leaf in a depth-first walk of ``tree`` (leaves of a subtree are adjacent)."""
-    n = tree.num_leaves
-    rank = [0] * n
-    stack, count = [n + len(tree.path) - 1 if tree.path else 0], 0
-    while stack:
-        u = stack.pop()
-        if u < n:
-            rank[u], count = count, count + 1
-        else:
-            x, y = tree.path[u - n]
-            stack += [y, x]
-    return rank
-
-
 def _draw(amplitudes: np.ndarray, uniform: np.ndarray) -> np.ndarray:
     """One outcome per row of ``amplitudes``, drawn with probability ``|a|²`` (normalised)."""
     probs = amplitudes.real**2 + amplitudes.imag**2
@@ -241,27 +230,24 @@ def sample_by_gates(
             end += 1
         uniform = rng.random((end - t, shots))
         layer = _layer_network(steps, t, end, dtype)
-        plan = _layer_plan(layer, shots)
+        plan = plan_vectors_first(
+            layer.network, layer.bit_leaf, lambda net: plan_for_runs(net, LIVE_PASSES * shots)
+        )
         members = _members(layer, plan, min(chunk, shots), limit)
         tree, _ = _batch_tree(layer, plan, members)
-        rank = _leaf_order(tree)
-        order = sorted(
-            range(t, end),
-            key=lambda j: min(rank[layer.bit_leaf[layer.qubits.index(q)]] for q in steps[j].qubits),
-        )
         varying = _varying(tree, set(layer.bit_leaf) | set(layer.step_leaf.values()))
         fixed = [u for u in range(tree.num_leaves, len(varying)) if not varying[u]]
         known: dict = {}
         for start in range(0, shots, members):
             rows = slice(start, min(start + members, shots))
-            live = _run_layer(steps, layer, plan, order, out, rows, uniform[:, rows], t, known)
+            live = _run_layer(steps, layer, plan, out, rows, uniform[:, rows], t, known)
             known = live.values_of(fixed)
         t = end
     return out
 
 
-def _run_layer(steps, layer, plan, order, out, rows, uniform, t, known) -> LiveTree:
-    """Take one layer's steps, in ``order``, for the shots ``out[rows]`` (updated in place).
+def _run_layer(steps, layer, plan, out, rows, uniform, t, known) -> LiveTree:
+    """Take one layer's steps for the shots ``out[rows]`` (updated in place).
 
     ``uniform[j - t]`` holds the shots' uniform draws for step ``j``; ``known``
     holds values computed for earlier shots that depend on no shot or step.
@@ -273,7 +259,7 @@ def _run_layer(steps, layer, plan, order, out, rows, uniform, t, known) -> LiveT
     for leaf, q in zip(layer.bit_leaf, layer.qubits):
         arrays[leaf] = eye[out[rows, q]]
     live = LiveTree(tree, arrays, batch, known)
-    for j in order:
+    for j in range(t, t + len(layer.step_leaf)):
         step = steps[j]
         live.replace(layer.step_leaf[j], step_tensor(step).astype(layer.network.dtype))
         if all(all(gate_tensor(op)[1]) for op in step.ops):
@@ -297,28 +283,6 @@ def _varying(tree: ContractionTree, leaves: set[int]) -> list[bool]:
     return flags
 
 
-def _layer_plan(layer: LayerNetwork, shots: int) -> Plan:
-    """Plan a layer's network; search longer when its shots' forecast run time is long.
-
-    The default plan's forecast for ``shots`` shots (:data:`LIVE_PASSES` whole
-    contractions per shot; FLOPs and elements written, :func:`forecast_seconds`)
-    sets the search time: :data:`PLAN_SHARE` of it, at most
-    :data:`MAX_PLAN_SECONDS`, none below :data:`MIN_PLAN_SECONDS`.
-    """
-    rate = matmul_rate(np.complex128)
-
-    def forecast(plan: Plan) -> float:
-        written = sum(plan.tree.intermediate_sizes())
-        return LIVE_PASSES * shots * forecast_seconds(plan.flops, written, rate)
-
-    first = make_plan(layer.network)
-    seconds = PLAN_SHARE * forecast(first)
-    if seconds <= MIN_PLAN_SECONDS:
-        return first
-    second = make_plan(layer.network, time_budget=min(seconds, MAX_PLAN_SECONDS))
-    return min(first, second, key=forecast)
-
-
 def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
     """Shots per batch (at most ``chunk``) whose values and environments fit ``limit`` bytes.
 
@@ -340,19 +304,6 @@ def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
 
 
 LIVE_PASSES = 5
-"""Run time per shot and layer, in forecasts of one contraction of the layer's tree (values
-are computed about twice and environments once, at well below the matmul rate; measured on
-7x7 grid circuits)."""
-
-BATCH_ELEMENTS = 1 << 21
-"""Most elements of one intermediate of a batch of shots (larger batches ran slower:
-arrays over the allocator's reuse threshold are fresh pages on every step)."""
-
-PLAN_SHARE = 0.05
-"""Share of a layer's forecast run time spent searching for a better plan."""
-
-MIN_PLAN_SECONDS = 0.5
-"""A layer whose forecast share is below this keeps the planner's default plan."""
-
-MAX_PLAN_SECONDS = 10.0
-"""Longest search for one layer's plan."""
+"""Run time per shot and layer, in forecasts of one contraction of the layer's tree, for the
+plan search (values are computed about twice and environments once, well below the matmul
+rate; 4.7 to 7.5 measured on 7x7 grid circuits)."""
