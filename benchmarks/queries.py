@@ -1,7 +1,7 @@
 """Benchmarks of the queries: QAOA energies, batches of amplitudes, exact sampling, XEB.
 
 Run ``python benchmarks/queries.py`` (all sections, full sizes) or choose
-sections with ``--only qaoa,amplitudes,sampling``; ``--quick`` runs small sizes
+sections with ``--only qaoa,amplitudes,sampling,routes``; ``--quick`` runs small sizes
 (a smoke test).  Every figure printed is measured in this run; ratios compare
 timings taken side by side in the same process.
 
@@ -25,7 +25,7 @@ import networkx as nx
 import numpy as np
 
 from tnsim.errors import ResourceLimitError
-from tnsim.families import grid_circuit
+from tnsim.families import brickwork, ghz, grid_circuit, hardware_efficient, iqp, qaoa_maxcut
 from tnsim.queries import amplitude, amplitudes, maxcut_energy
 from tnsim.sampling import sample
 from tnsim.xeb import xeb
@@ -95,14 +95,13 @@ def bench_amplitudes(quick: bool) -> None:
         flush=True,
     )
     # Batch 2: independent random bitstrings (no shared output bits).
-    m = 64 if quick else 128
-    free = rng.integers(0, 2, (m, n))
+    free = rng.integers(0, 2, (count, n))
     t0 = time.perf_counter()
     amplitudes(c, free)
     seconds = time.perf_counter() - t0
     print(
-        f"{m} independent random bitstrings: {seconds:.2f} s = {seconds / one:.1f}x one "
-        f"({seconds / m / one:.2f}x one per amplitude)",
+        f"{count} independent random bitstrings: {seconds:.2f} s = {seconds / one:.1f}x one "
+        f"({seconds / count * 1e3:.2f} ms each)",
         flush=True,
     )
 
@@ -120,9 +119,9 @@ def bench_sampling(quick: bool, block: int = 5) -> None:
             (5, 5, 8, 1000, "marginals"),
             (5, 5, 8, 1000, "gates"),
             (7, 7, 8, 3, "marginals"),
-            (7, 7, 8, 100, "gates"),
-            (7, 7, 8, 100, "gates complex64"),
             (7, 7, 8, 1000, "gates"),
+            (7, 7, 8, 1000, "gates complex64"),
+            (8, 8, 8, 100, "gates"),
         ]
     print(f"## Exact samples of grid circuits (seed 1; chain rule: block {block}), then XEB")
     for r, cc, cycles, shots, method in cases:
@@ -148,7 +147,38 @@ def bench_sampling(quick: bool, block: int = 5) -> None:
         )
 
 
-SECTIONS = {"qaoa": bench_qaoa, "amplitudes": bench_amplitudes, "sampling": bench_sampling}
+def bench_routes(quick: bool) -> None:
+    """Both sampling routes on circuit families wider than the direct width (sets the default)."""
+    graph = nx.random_regular_graph(3, 100, seed=1)
+    cases = [
+        ("GHZ, 60 qubits", ghz(60)),
+        ("brickwork, 60 qubits, depth 2", brickwork(60, 2, seed=1)),
+        ("hardware-efficient, 30 qubits, 2 layers", hardware_efficient(30, 2, seed=1)),
+        ("IQP, 24 qubits", iqp(24, seed=1)),
+        ("brickwork, 100 qubits, depth 8", brickwork(100, 8, seed=1)),
+        ("QAOA p=1, random 3-regular graph, 100 nodes", qaoa_maxcut(graph, [0.4], [0.3])[0]),
+    ]
+    shots = 20 if quick else 100
+    print(f"## Sampling routes: {shots} shots, gate by gate / chain rule of marginals (seed 1)")
+    for name, c in cases[: 3 if quick else None]:
+        times = []
+        for method in ("gates", "marginals"):
+            t0 = time.perf_counter()
+            sample(c, shots, seed=1, method=method)
+            times.append(time.perf_counter() - t0)
+        print(
+            f"{name}: {times[0]:.2f} s / {times[1]:.2f} s (chain rule / gates: "
+            f"{times[1] / times[0]:.2f})",
+            flush=True,
+        )
+
+
+SECTIONS = {
+    "qaoa": bench_qaoa,
+    "amplitudes": bench_amplitudes,
+    "sampling": bench_sampling,
+    "routes": bench_routes,
+}
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -50,7 +50,7 @@ def test_samples_follow_the_born_rule(block, kind, width, direct, monkeypatch):
         monkeypatch.setattr(sampling, "_candidates", _only(kind, sampling._candidates))
     c = random_circuit(10, 60, seed=5)
     probs = np.abs(dense_state(c)) ** 2
-    s = sample(c, 8000, seed=2, block=block)
+    s = sample(c, 8000, seed=2, block=block, method="marginals")
     assert s.shape == (8000, 10) and s.dtype == np.uint8
     assert _chi_square_pvalue(s, probs) > 1e-3
 
@@ -58,7 +58,7 @@ def test_samples_follow_the_born_rule(block, kind, width, direct, monkeypatch):
 def test_memory_limit_is_respected():
     c = random_circuit(10, 60, seed=5)
     with pytest.raises(ResourceLimitError, match="memory limit"):
-        sample(c, 10, seed=0, block=4, memory_limit=64)
+        sample(c, 10, seed=0, block=4, memory_limit=64, method="marginals")
 
 
 def test_wrong_distribution_is_rejected():
@@ -76,13 +76,25 @@ def test_reproducible_and_seed_dependent():
     assert not np.array_equal(a, sample(c, 50, seed=8))
 
 
-def test_deterministic_outputs_and_wide_circuit():
+@pytest.mark.parametrize("method", ["auto", "marginals"])
+def test_deterministic_outputs_and_wide_circuit(method):
     c = Circuit(300).x(5).x(299).h(100).cx(100, 101)
-    s = sample(c, 64, seed=1, block=8)
+    s = sample(c, 64, seed=1, block=8, method=method)
     assert np.all(s[:, 5] == 1) and np.all(s[:, 299] == 1)
     np.testing.assert_array_equal(s[:, 100], s[:, 101])
     assert 0 < s[:, 100].sum() < 64
     assert s.sum() == 2 * 64 + 2 * s[:, 100].sum()
+
+
+def test_auto_method_draws_narrow_circuits_from_all_amplitudes_and_wide_ones_gate_by_gate(
+    monkeypatch,
+):
+    routes = []
+    monkeypatch.setattr(sampling, "_sample_from_all", lambda *a: routes.append("all"))
+    monkeypatch.setattr(sampling, "sample_by_gates", lambda *a, **k: routes.append("gates"))
+    sample(random_circuit(sampling.DIRECT_WIDTH, 30, seed=1), 5)
+    sample(random_circuit(sampling.DIRECT_WIDTH + 1, 30, seed=1), 5)
+    assert routes == ["all", "gates"]
 
 
 def test_bad_input():

@@ -184,11 +184,10 @@ def add_query_commands(sub) -> None:
     s.add_argument("--block", type=int, default=5, help="qubits per chain-rule step (default 5)")
     s.add_argument(
         "--method",
-        choices=("marginals", "gates"),
-        default="marginals",
-        help="marginals: chain rule over light cones (default; best for wide shallow "
-        "circuits); gates: gate by gate from amplitudes (for circuits whose doubled "
-        "networks are too wide)",
+        choices=("auto", "gates", "marginals"),
+        default="auto",
+        help="gates: gate by gate from amplitudes; marginals: chain rule over light cones; "
+        "auto (default): all amplitudes at once up to 20 qubits, gate by gate beyond",
     )
     s.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
     s.add_argument("--json", action="store_true", help="write JSON instead of lines")
