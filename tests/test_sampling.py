@@ -182,8 +182,8 @@ def test_layer_network_with_steps_taken_is_the_partial_circuit():
         arrays = list(net.arrays)
         for j in range(t, taken):
             arrays[lay.step_leaf[j]] = step_tensor(steps[j])
-        keep = [k for k in range(len(arrays)) if k not in lay.bit_leaf]
-        wires = tuple(net.indices[k][0] for k in lay.bit_leaf)
+        keep = [k for k in range(len(arrays)) if k not in lay.bit_leaf.values()]
+        wires = tuple(net.indices[lay.bit_leaf[q]][0] for q in lay.qubits)
         state = TensorNetwork(
             [arrays[k] for k in keep],
             [net.indices[k] for k in keep],

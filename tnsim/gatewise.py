@@ -110,14 +110,14 @@ class LayerNetwork:
         The circuit qubits it holds, in the order of the bit vectors.
     step_leaf : dict of int to int
         Leaf of each of the layer's steps (by index into the steps).
-    bit_leaf : list of int
-        Leaf of each qubit's bit vector (in the order of ``qubits``).
+    bit_leaf : dict of int to int
+        Leaf of each qubit's bit vector, by circuit qubit (in the order of ``qubits``).
     """
 
     network: TensorNetwork
     qubits: list[int]
     step_leaf: dict[int, int]
-    bit_leaf: list[int]
+    bit_leaf: dict[int, int]
 
 
 def step_tensor(step: GateStep) -> np.ndarray:
@@ -167,7 +167,7 @@ def _layer_network(steps: Sequence[GateStep], t: int, end: int, dtype) -> LayerN
         for q, label in zip(steps[j].qubits, outs):
             wire[local[q]] = label
             size[label] = 2
-    bit_leaf = list(range(len(arrays), len(arrays) + m))
+    bit_leaf = {q: len(arrays) + k for k, q in enumerate(qubits)}
     arrays += [np.array([1, 0], dtype=base.dtype)] * m
     indices += [(w,) for w in wire]
     network = TensorNetwork(arrays, indices, size, (), base.exponent, base.dtype)
@@ -179,7 +179,7 @@ def _batch_tree(layer: LayerNetwork, plan: Plan, members: int) -> tuple[Contract
     net = layer.network
     batch = max(net.size) + 1
     inputs = list(net.indices)
-    for leaf in layer.bit_leaf:
+    for leaf in layer.bit_leaf.values():
         inputs[leaf] = (batch, *inputs[leaf])
     size = net.size | {batch: members}
     return ContractionTree(tuple(inputs), (batch,), size, plan.tree.path), batch
@@ -230,12 +230,13 @@ def sample_by_gates(
             end += 1
         uniform = rng.random((end - t, shots))
         layer = _layer_network(steps, t, end, dtype)
+        bits = list(layer.bit_leaf.values())
         plan = plan_vectors_first(
-            layer.network, layer.bit_leaf, lambda net: plan_for_runs(net, LIVE_PASSES * shots)
+            layer.network, bits, lambda net: plan_for_runs(net, LIVE_PASSES * shots)
         )
         members = _members(layer, plan, min(chunk, shots), limit)
         tree, _ = _batch_tree(layer, plan, members)
-        varying = _varying(tree, set(layer.bit_leaf) | set(layer.step_leaf.values()))
+        varying = _varying(tree, set(layer.bit_leaf.values()) | set(layer.step_leaf.values()))
         fixed = [u for u in range(tree.num_leaves, len(varying)) if not varying[u]]
         known: dict = {}
         for start in range(0, shots, members):
@@ -256,7 +257,7 @@ def _run_layer(steps, layer, plan, out, rows, uniform, t, known) -> LiveTree:
     tree, batch = _batch_tree(layer, plan, count)
     arrays = list(layer.network.arrays)
     eye = np.eye(2, dtype=layer.network.dtype)
-    for leaf, q in zip(layer.bit_leaf, layer.qubits):
+    for q, leaf in layer.bit_leaf.items():
         arrays[leaf] = eye[out[rows, q]]
     live = LiveTree(tree, arrays, batch, known)
     for j in range(t, t + len(layer.step_leaf)):
@@ -264,7 +265,7 @@ def _run_layer(steps, layer, plan, out, rows, uniform, t, known) -> LiveTree:
         live.replace(layer.step_leaf[j], step_tensor(step).astype(layer.network.dtype))
         if all(all(gate_tensor(op)[1]) for op in step.ops):
             continue  # diagonal gates do not change the distribution: nothing to redraw
-        leaves = [layer.bit_leaf[layer.qubits.index(q)] for q in step.qubits]
+        leaves = [layer.bit_leaf[q] for q in step.qubits]
         amps = np.asarray(live.probe(leaves).mantissa, dtype=np.complex128).reshape(count, -1)
         y = _draw(amps, uniform[j - t])
         k = len(step.qubits)
@@ -292,7 +293,7 @@ def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
     """
     tree, _ = _batch_tree(layer, plan, 1)
     sizes = [1] * tree.num_leaves + tree.intermediate_sizes()
-    per_shot = [s for s, v in zip(sizes, _varying(tree, set(layer.bit_leaf))) if v]
+    per_shot = [s for s, v in zip(sizes, _varying(tree, set(layer.bit_leaf.values()))) if v]
     need = (2 * sum(per_shot) + 3 * max(per_shot)) * layer.network.dtype.itemsize
     if need > limit:
         raise ResourceLimitError(

@@ -88,15 +88,43 @@ class LiveTree:
         for k, (x, y) in enumerate(tree.path):
             self.parent[x] = self.parent[y] = n + k
         self.root = len(self.children) - 1
+        self._span = self._leaf_spans()
         self.fwd: dict[int, tuple[np.ndarray, int]] = dict(known or {})
         for k, array in enumerate(arrays):
             self.fwd[k] = (array, 0)
+        # Environments kept: one chain of nodes from below the root downwards (``env_path``),
+        # each node's subtree inside the one before; a change outside a subtree cuts the chain.
         self.env: dict[int, tuple[np.ndarray, int]] = {}
+        self.env_path: list[int] = []
         self.env_labels: dict[int, tuple[int, ...]] = {self.root: (batch_label,)}
         self._env_steps: dict[int, PairStep] = {}
         members = tree.size[batch_label]
         dtype = np.result_type(*arrays)
         self._root_env = (np.ones(members, dtype=dtype), 0)
+
+    def _leaf_spans(self) -> list[tuple[int, int]]:
+        """For every node, the range of depth-first leaf ranks of its subtree (leaves first)."""
+        n = self.num_leaves
+        span = [(0, 0)] * len(self.children)
+        rank = 0
+        stack = [(self.root, False)]
+        while stack:
+            u, done = stack.pop()
+            if u < n:
+                span[u] = (rank, rank + 1)
+                rank += 1
+            elif done:
+                x, y = self.children[u]
+                span[u] = (span[x][0], span[y][1])
+            else:
+                x, y = self.children[u]
+                stack += [(u, True), (y, False), (x, False)]
+        return span
+
+    def _holds(self, node: int, other: int) -> bool:
+        """Whether the subtree of ``other`` lies in the subtree of ``node``."""
+        (lo, hi), (a, b) = self._span[node], self._span[other]
+        return lo <= a and b <= hi
 
     def ancestors(self, node: int) -> list[int]:
         """``node`` and every node above it, bottom up."""
@@ -111,9 +139,22 @@ class LiveTree:
         u = self.parent[leaf]
         while u >= 0 and self.fwd.pop(u, None) is not None:
             u = self.parent[u]
-        if self.env:
-            inside = set(self.ancestors(leaf))
-            self.env = {v: e for v, e in self.env.items() if v in inside}
+        if self.env_path:
+            self._cut_env(leaf)
+
+    def _cut_env(self, node: int) -> None:
+        """Drop the environments of the chain from its first node not holding ``node`` on."""
+        path = self.env_path
+        lo, hi = 0, len(path)
+        while lo < hi:  # the chain's subtrees are nested: those holding ``node`` come first
+            mid = (lo + hi) // 2
+            if self._holds(path[mid], node):
+                lo = mid + 1
+            else:
+                hi = mid
+        for v in path[lo:]:
+            del self.env[v]
+        del path[lo:]
 
     def values_of(self, nodes: Sequence[int]) -> dict[int, tuple[np.ndarray, int]]:
         """The computed values among ``nodes`` (to pass as ``known`` to another LiveTree)."""
@@ -154,6 +195,8 @@ class LiveTree:
         while u not in self.env and u != self.root:
             path.append(u)
             u = self.parent[u]
+        if path:
+            self._cut_env(node)  # the chain below ``u`` leads elsewhere
         for v in reversed(path):
             p = self.parent[v]
             x, y = self.children[p]
@@ -166,17 +209,17 @@ class LiveTree:
                 self.env_labels[v] = step.out_labels
             parent_env = self._root_env if p == self.root else self.env[p]
             self.env[v] = self._join(step, parent_env, self._value(sibling))
+            self.env_path.append(v)
         return self.env[node]
 
     def lowest_common_ancestor(self, nodes: Sequence[int]) -> int:
         """The lowest node whose subtree holds every one of ``nodes``."""
-        common = None
-        for u in nodes:
-            line = self.ancestors(u)
-            common = line if common is None else [v for v in line if v in set(common)]
-        if not common:
-            raise ValueError("no nodes given")
-        return common[0]
+        lo = min(self._span[u][0] for u in nodes)
+        hi = max(self._span[u][1] for u in nodes)
+        top = nodes[0]
+        while not (self._span[top][0] <= lo and hi <= self._span[top][1]):
+            top = self.parent[top]
+        return top
 
     def probe(self, leaves: Sequence[int]) -> Scaled:
         """The batch's values with each of ``leaves`` opened, the tree left as it is.
@@ -203,10 +246,12 @@ class LiveTree:
             new_axes.append(fresh + k)
             labels[leaf] = (leg, fresh + k)
             values[leaf] = (np.eye(size[leg], dtype=self._root_env[0].dtype), 0)
-            for u in self.ancestors(leaf):
+            u = leaf
+            while True:
                 opened.setdefault(u, set()).add(fresh + k)
                 if u == top:
                     break
+                u = self.parent[u]
         for u in sorted(v for v in opened if v >= self.num_leaves):
             x, y = self.children[u]
             keep = set(self.labels[u]) | opened[u] | {self.batch}

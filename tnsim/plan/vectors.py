@@ -53,14 +53,19 @@ def plan_vectors_first(
     """
     ins = [tuple(ix) for ix in network.indices]
     count = Counter(i for ix in ins for i in ix) + Counter(network.output)
-    kept = [k for k in range(len(ins)) if k not in set(vectors)]
+    vector_set = set(vectors)
+    kept = [k for k in range(len(ins)) if k not in vector_set]
     labels = {k: list(ins[k]) for k in kept}
     node = {k: k for k in kept}
+    first: dict[int, int] = {}
+    for k in reversed(kept):
+        for i in ins[k]:
+            first[i] = k
     path: list[tuple[int, int]] = []
     for v in vectors:
         (label,) = ins[v]
-        holder = next((k for k in kept if label in labels[k]), None)
-        if holder is None:
+        holder = first.get(label)
+        if holder is None or label not in labels[holder]:
             kept.append(v)
             labels[v], node[v] = list(ins[v]), v
             continue
@@ -79,9 +84,9 @@ def plan_vectors_first(
     )
     plan = planner(reduced)
     ids = [node[k] for k in kept]
-    first = len(ins) + len(path)
+    start = len(ins) + len(path)
     for x, y in plan.tree.path:
-        path.append(tuple(ids[i] if i < len(kept) else first + i - len(kept) for i in (x, y)))
+        path.append(tuple(ids[i] if i < len(kept) else start + i - len(kept) for i in (x, y)))
     tree = ContractionTree(tuple(ins), tuple(network.output), dict(network.size), tuple(path))
     sliced = tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
     merged = plan.tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
