@@ -9,7 +9,8 @@ for every step repeats nearly all the work.  :class:`LiveTree` keeps
   the ancestors of a leaf when that leaf changes, and
 * the *environment* of nodes (the contraction of everything outside the
   node's subtree, i.e. the derivative of the root by that node), dropped
-  for every node whose outside holds a changed leaf,
+  for every node whose outside holds a changed leaf (environments are kept
+  along one chain of nested subtrees, so dropping them is a bisection),
 
 and recomputes both lazily.  The value with some leaves opened is then the
 contraction of the opened subtree (only its nodes above the opened leaves
@@ -125,13 +126,6 @@ class LiveTree:
         """Whether the subtree of ``other`` lies in the subtree of ``node``."""
         (lo, hi), (a, b) = self._span[node], self._span[other]
         return lo <= a and b <= hi
-
-    def ancestors(self, node: int) -> list[int]:
-        """``node`` and every node above it, bottom up."""
-        out = [node]
-        while self.parent[out[-1]] >= 0:
-            out.append(self.parent[out[-1]])
-        return out
 
     def replace(self, leaf: int, array: np.ndarray) -> None:
         """Put ``array`` (same labels and shape) in place of leaf ``leaf``."""
