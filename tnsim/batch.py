@@ -59,11 +59,9 @@ class BatchContraction:
     plan : Plan, optional
         The plan of one batch member, from an engine built on the same network
         (its ``plan`` attribute), to change ``chunk`` without planning again.
-    time_budget : float, optional
-        Seconds the planner may search (default: :func:`tnsim.plan.make_plan`'s).
     runs : float, optional
-        Batch members expected in all; without ``time_budget``, the plan search
-        grows with their forecast run time (:func:`tnsim.plan.forecast.plan_for_runs`).
+        Batch members expected in all: the plan search grows with their
+        forecast run time (:func:`tnsim.plan.forecast.plan_for_runs`).
 
     Examples
     --------
@@ -84,7 +82,6 @@ class BatchContraction:
         chunk: int,
         memory_limit: int | None = None,
         plan: Plan | None = None,
-        time_budget: float | None = None,
         runs: float | None = None,
     ):
         self.batch_labels = tuple(batch_labels)
@@ -121,7 +118,7 @@ class BatchContraction:
         )
         if plan is None:
             vectors = range(self.num_fixed, self.num_fixed + len(self.batch_labels))
-            plan = plan_vectors_first(single, vectors, _planner(memory_limit, time_budget, runs))
+            plan = plan_vectors_first(single, vectors, _planner(memory_limit, runs))
         self.plan = plan
         self.tree = ContractionTree(tuple(inputs), self.network.output, size, plan.tree.path)
         self.sliced = tuple(plan.sliced)
@@ -229,11 +226,11 @@ class BatchContraction:
         return Scaled(root, exponent + e + self.network.exponent)
 
 
-def _planner(memory_limit: int | None, time_budget: float | None, runs: float | None):
-    """The planner of a batch member's network: searched by ``runs`` unless timed."""
-    if runs is not None and time_budget is None:
+def _planner(memory_limit: int | None, runs: float | None):
+    """The planner of a batch member's network: searched longer for many ``runs``."""
+    if runs is not None:
         return lambda net: plan_for_runs(net, runs, memory_limit=memory_limit)
-    return lambda net: make_plan(net, memory_limit=memory_limit, time_budget=time_budget)
+    return lambda net: make_plan(net, memory_limit=memory_limit)
 
 
 def fitted_engine(
@@ -245,7 +242,6 @@ def fitted_engine(
     *,
     least: int = 1,
     plan: Plan | None = None,
-    time_budget: float | None = None,
     runs: float | None = None,
 ) -> BatchContraction:
     """A :class:`BatchContraction` whose chunk is halved (not below ``least``) to fit.
@@ -265,7 +261,7 @@ def fitted_engine(
     """
     while True:
         engine = BatchContraction(
-            network, batch_labels, open_labels, chunk, memory_limit, plan, time_budget, runs
+            network, batch_labels, open_labels, chunk, memory_limit, plan, runs
         )
         need = largest_intermediate(engine.steps) * engine.dtype.itemsize * 3
         n = engine.tree.num_leaves

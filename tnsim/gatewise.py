@@ -112,12 +112,19 @@ class LayerNetwork:
         Leaf of each of the layer's steps (by index into the steps).
     bit_leaf : dict of int to int
         Leaf of each qubit's bit vector, by circuit qubit (in the order of ``qubits``).
+    taken : dict of int to numpy.ndarray
+        The tensor each step's leaf gets when the step is taken (:func:`step_tensor`).
+    quiet : frozenset of int
+        Steps of diagonal gates only: they change no outcome probability and
+        are taken without a redraw.
     """
 
     network: TensorNetwork
     qubits: list[int]
     step_leaf: dict[int, int]
     bit_leaf: dict[int, int]
+    taken: dict[int, np.ndarray]
+    quiet: frozenset[int]
 
 
 def step_tensor(step: GateStep) -> np.ndarray:
@@ -171,7 +178,11 @@ def _layer_network(steps: Sequence[GateStep], t: int, end: int, dtype) -> LayerN
     arrays += [np.array([1, 0], dtype=base.dtype)] * m
     indices += [(w,) for w in wire]
     network = TensorNetwork(arrays, indices, size, (), base.exponent, base.dtype)
-    return LayerNetwork(network, qubits, step_leaf, bit_leaf)
+    taken = {j: step_tensor(steps[j]).astype(base.dtype) for j in range(t, end)}
+    quiet = frozenset(
+        j for j in range(t, end) if all(all(gate_tensor(op)[1]) for op in steps[j].ops)
+    )
+    return LayerNetwork(network, qubits, step_leaf, bit_leaf, taken, quiet)
 
 
 def _batch_tree(layer: LayerNetwork, plan: Plan, members: int) -> tuple[ContractionTree, int]:
@@ -235,45 +246,51 @@ def sample_by_gates(
             layer.network, bits, lambda net: plan_for_runs(net, LIVE_PASSES * shots)
         )
         members = _members(layer, plan, min(chunk, shots), limit)
-        tree, _ = _batch_tree(layer, plan, members)
-        varying = _varying(tree, set(layer.bit_leaf.values()) | set(layer.step_leaf.values()))
-        fixed = [u for u in range(tree.num_leaves, len(varying)) if not varying[u]]
-        known: dict = {}
+        live, eye = None, _EYE.astype(layer.network.dtype)
         for start in range(0, shots, members):
             rows = slice(start, min(start + members, shots))
-            live = _run_layer(steps, layer, plan, out, rows, uniform[:, rows], t, known)
-            known = live.values_of(fixed)
+            arrays = list(layer.network.arrays)
+            for q, leaf in layer.bit_leaf.items():
+                arrays[leaf] = eye[out[rows, q]]
+            if live is None:  # the first batch is the largest
+                tree, batch = _batch_tree(layer, plan, rows.stop - rows.start)
+                live = first = LiveTree(tree, arrays, batch)
+                varying = set(layer.bit_leaf.values()) | set(layer.step_leaf.values())
+                flags = _varying(tree, varying)
+                fixed = [u for u in range(tree.num_leaves, len(flags)) if not flags[u]]
+            elif rows.stop - rows.start == members:
+                live = first.restart(arrays, live.values_of(fixed))
+            else:
+                tree, batch = _batch_tree(layer, plan, rows.stop - rows.start)
+                live = LiveTree(tree, arrays, batch, live.values_of(fixed))
+            _run_layer(steps, layer, live, out, rows, uniform[:, rows], t)
         t = end
     return out
 
 
-def _run_layer(steps, layer, plan, out, rows, uniform, t, known) -> LiveTree:
-    """Take one layer's steps for the shots ``out[rows]`` (updated in place).
+def _run_layer(steps, layer, live, out, rows, uniform, t) -> None:
+    """Take one layer's steps on ``live`` for the shots ``out[rows]`` (updated in place).
 
-    ``uniform[j - t]`` holds the shots' uniform draws for step ``j``; ``known``
-    holds values computed for earlier shots that depend on no shot or step.
+    ``live`` holds the layer's network with the shots' current bits;
+    ``uniform[j - t]`` holds the shots' uniform draws for step ``j``.
     """
     count = rows.stop - rows.start
-    tree, batch = _batch_tree(layer, plan, count)
-    arrays = list(layer.network.arrays)
-    eye = np.eye(2, dtype=layer.network.dtype)
-    for q, leaf in layer.bit_leaf.items():
-        arrays[leaf] = eye[out[rows, q]]
-    live = LiveTree(tree, arrays, batch, known)
+    eye = _EYE.astype(layer.network.dtype)
     for j in range(t, t + len(layer.step_leaf)):
-        step = steps[j]
-        live.replace(layer.step_leaf[j], step_tensor(step).astype(layer.network.dtype))
-        if all(all(gate_tensor(op)[1]) for op in step.ops):
+        live.replace(layer.step_leaf[j], layer.taken[j])
+        if j in layer.quiet:
             continue  # diagonal gates do not change the distribution: nothing to redraw
-        leaves = [layer.bit_leaf[q] for q in step.qubits]
+        qubits = steps[j].qubits
+        leaves = [layer.bit_leaf[q] for q in qubits]
         amps = np.asarray(live.probe(leaves).mantissa, dtype=np.complex128).reshape(count, -1)
         y = _draw(amps, uniform[j - t])
-        k = len(step.qubits)
-        for i, (q, leaf) in enumerate(zip(step.qubits, leaves)):
-            bits = ((y >> (k - 1 - i)) & 1).astype(np.uint8)
+        for i, (q, leaf) in enumerate(zip(qubits, leaves)):
+            bits = ((y >> (len(qubits) - 1 - i)) & 1).astype(np.uint8)
             out[rows, q] = bits
             live.replace(leaf, eye[bits])
-    return live
+
+
+_EYE = np.eye(2, dtype=np.complex128)
 
 
 def _varying(tree: ContractionTree, leaves: set[int]) -> list[bool]:

@@ -28,6 +28,7 @@ networks sharing the tree.
 
 from __future__ import annotations
 
+import copy
 from collections.abc import Mapping, Sequence
 
 import numpy as np
@@ -90,6 +91,16 @@ class LiveTree:
             self.parent[x] = self.parent[y] = n + k
         self.root = len(self.children) - 1
         self._span = self._leaf_spans()
+        self._size = dict(tree.size)  # with the opened axes of probes (labels above the tree's)
+        self._fresh = max(self._size) + 1
+        self.env_labels: dict[int, tuple[int, ...]] = {self.root: (batch_label,)}
+        self._env_steps: dict[int, PairStep] = {}
+        dtype = np.result_type(*arrays)
+        self._root_env = (np.ones(tree.size[batch_label], dtype=dtype), 0)
+        self._load(arrays, known)
+
+    def _load(self, arrays, known) -> None:
+        """Set the leaves and the known values; nothing else is cached."""
         self.fwd: dict[int, tuple[np.ndarray, int]] = dict(known or {})
         for k, array in enumerate(arrays):
             self.fwd[k] = (array, 0)
@@ -97,11 +108,16 @@ class LiveTree:
         # each node's subtree inside the one before; a change outside a subtree cuts the chain.
         self.env: dict[int, tuple[np.ndarray, int]] = {}
         self.env_path: list[int] = []
-        self.env_labels: dict[int, tuple[int, ...]] = {self.root: (batch_label,)}
-        self._env_steps: dict[int, PairStep] = {}
-        members = tree.size[batch_label]
-        dtype = np.result_type(*arrays)
-        self._root_env = (np.ones(members, dtype=dtype), 0)
+
+    def restart(
+        self,
+        arrays: Sequence[np.ndarray],
+        known: Mapping[int, tuple[np.ndarray, int]] | None = None,
+    ) -> LiveTree:
+        """A LiveTree on the same tree (compiled steps shared) with new leaves, nothing cached."""
+        other = copy.copy(self)
+        other._load(arrays, known)
+        return other
 
     def _leaf_spans(self) -> list[tuple[int, int]]:
         """For every node, the range of depth-first leaf ranks of its subtree (leaves first)."""
@@ -227,9 +243,8 @@ class LiveTree:
         Scaled
             Axes: the batch, then one axis per opened leaf, in the given order.
         """
-        size = dict(self.tree.size)
+        size, fresh = self._size, self._fresh
         top = self.lowest_common_ancestor(leaves)
-        fresh = max(size) + 1
         labels: dict[int, tuple[int, ...]] = {}
         values: dict[int, tuple[np.ndarray, int]] = {}
         opened: dict[int, set[int]] = {}

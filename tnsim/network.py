@@ -118,38 +118,15 @@ def gate_tensor(op: Operation) -> tuple[np.ndarray, tuple[bool, ...]]:
     k = len(op.qubits)
     full = op.matrix().reshape((2,) * (2 * k))
     diag = _diagonal_qubits(full, k)
-    reduced = _reduce(full, diag)
-    reduced.setflags(write=False)
-    if key is not None:
-        _TENSOR_CACHE[key] = (reduced, diag)
-    return reduced, diag
-
-
-def _reduce(full: np.ndarray, diag: Sequence[bool]) -> np.ndarray:
-    """Merge the ``out`` and ``in`` axes of the diagonal qubits of a full gate tensor."""
-    k = len(diag)
     sym = opt_einsum.get_symbol
     outs = [sym(j) if diag[j] else sym(k + j) for j in range(k)]
     ins = [sym(j) for j in range(k)]
     keep = [outs[j] for j in range(k) if not diag[j]] + ins
-    return np.einsum(f"{''.join(outs + ins)}->{''.join(keep)}", full)
-
-
-def identity_tensor(op: Operation) -> np.ndarray:
-    """The identity on ``op``'s qubits, laid out like ``op``'s reduced tensor.
-
-    A network with it in place of ``op``'s tensor has the same labels and
-    shapes, so one contraction plan serves both.
-
-    Examples
-    --------
-    >>> from tnsim import Circuit
-    >>> identity_tensor(Circuit(2).cx(0, 1).ops[0]).shape
-    (2, 2, 2)
-    """
-    k = len(op.qubits)
-    _, diag = gate_tensor(op)
-    return _reduce(np.eye(1 << k, dtype=np.complex128).reshape((2,) * (2 * k)), diag)
+    reduced = np.einsum(f"{''.join(outs + ins)}->{''.join(keep)}", full)
+    reduced.setflags(write=False)
+    if key is not None:
+        _TENSOR_CACHE[key] = (reduced, diag)
+    return reduced, diag
 
 
 def circuit_network(

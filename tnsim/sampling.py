@@ -225,13 +225,13 @@ def sample(
         raise InputError(f"method must be 'auto', 'gates' or 'marginals', got {method!r}")
     rng = np.random.default_rng(seed)
     n = circuit.num_qubits
-    out = np.zeros((shots, n), dtype=np.uint8)
     if shots == 0:
-        return out
+        return np.zeros((0, n), dtype=np.uint8)
     if method == "gates" or (method == "auto" and n > DIRECT_WIDTH):
         return sample_by_gates(circuit, shots, rng, dtype=dtype, memory_limit=memory_limit)
     if n <= DIRECT_WIDTH:
         return _sample_from_all(circuit, shots, rng, dtype, memory_limit)
+    out = np.zeros((shots, n), dtype=np.uint8)
     index = index_circuit(circuit)
     prior: list[int] = []
     for qs in sample_blocks(n, int(block)):

@@ -74,6 +74,7 @@ def plan_vectors_first(
         count[label] -= 1
         if count[label] == 1:  # only the holder has it now: summed in the merge
             labels[holder].remove(label)
+    # Planners read only labels and sizes: the holders keep their own arrays here.
     reduced = TensorNetwork(
         [network.arrays[k] for k in kept],
         [tuple(labels[k]) for k in kept],
@@ -88,8 +89,8 @@ def plan_vectors_first(
     for x, y in plan.tree.path:
         path.append(tuple(ids[i] if i < len(kept) else start + i - len(kept) for i in (x, y)))
     tree = ContractionTree(tuple(ins), tuple(network.output), dict(network.size), tuple(path))
-    sliced = tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
+    extended = tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
     merged = plan.tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
     return dataclasses.replace(
-        plan, tree=tree, flops=plan.flops + (sliced - merged) * plan.num_slices
+        plan, tree=tree, flops=plan.flops + (extended - merged) * plan.num_slices
     )
