@@ -172,7 +172,7 @@ def bench_routes(quick: bool) -> None:
             f"{times[1] / times[0]:.2f})",
             flush=True,
         )
-    if not quick:  # the chain rule is not run here: it took 120 s on the 1,000-qubit case
+    if not quick:  # the chain rule is not run here: 120-151 s on the 1,000-qubit case
         t0 = time.perf_counter()
         sample(brickwork(5000, 4, seed=1), shots, seed=1, method="gates")
         print(f"brickwork, 5,000 qubits, depth 4: {time.perf_counter() - t0:.2f} s gate by gate")
