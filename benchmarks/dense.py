@@ -27,8 +27,8 @@ import time
 
 import numpy as np
 
-from tnsim.bits import parse_bits
-from tnsim.circuit import Circuit
+from tnsim.circuits.bits import parse_bits
+from tnsim.circuits.circuit import Circuit
 
 __all__ = ["simulate", "dense_amplitude"]
 
@@ -138,7 +138,7 @@ def dense_amplitude(circuit: Circuit, bits, dtype=np.complex64) -> complex:
 
 
 def _main() -> None:
-    from tnsim.families import grid_circuit
+    from tnsim.circuits.families import grid_circuit
 
     ap = argparse.ArgumentParser(description="Time the dense baseline on one grid circuit.")
     ap.add_argument("--rows", type=int, default=4)

@@ -15,7 +15,7 @@ Run::
     python benchmarks/planners.py              # the full table (long)
     python benchmarks/planners.py --quick      # small instances, short budgets
     python benchmarks/planners.py --only grid --budget-scale 1
-    python benchmarks/planners.py --slicing --objective time   # slicing of run-time plans
+    python benchmarks/planners.py --slicing --objective runtime   # slicing of run-time plans
 """
 
 from __future__ import annotations
@@ -29,11 +29,11 @@ import numpy as np
 import opt_einsum
 from opt_einsum.path_random import RandomGreedy
 
-from tnsim.families import brickwork, grid_circuit, qaoa_maxcut
-from tnsim.network import amplitude_network
-from tnsim.plan import make_plan
-from tnsim.plan.tree import ContractionTree
-from tnsim.simplify import absorb_small
+from tnsim.circuits.families import brickwork, grid_circuit, qaoa_maxcut
+from tnsim.network.builders import amplitude_network
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import make_plan
+from tnsim.plan.tree import PairTree
 
 
 def instances(quick: bool):
@@ -81,7 +81,7 @@ def run_baseline(net, eq, optimize):
     t0 = time.perf_counter()
     linear, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize=optimize)
     seconds = time.perf_counter() - t0
-    tree = ContractionTree.from_linear(net.indices, net.output, net.size, linear)
+    tree = PairTree.from_linear(net.indices, net.output, net.size, linear)
     cost = tree.cost()
     return float(info.opt_cost), cost.flops, cost.width, seconds
 
@@ -95,9 +95,9 @@ def main() -> None:
     ap.add_argument("--no-random-greedy", action="store_true")
     ap.add_argument(
         "--objective",
-        choices=("flops", "time"),
-        default="flops",
-        help="what tnsim minimises (default flops: the targets are FLOP counts)",
+        choices=("operations", "runtime"),
+        default="operations",
+        help="what tnsim minimises (default operations: the targets are FLOP counts)",
     )
     ap.add_argument(
         "--slicing",

@@ -1,4 +1,4 @@
-"""Time :func:`tnsim.qasm.read_qasm` on a large generated OpenQASM 2.0 file.
+"""Time :func:`tnsim.circuits.qasm.read_qasm` on a large generated OpenQASM 2.0 file.
 
 Not part of the tnsim library.  The file has one 1,000-qubit register and
 ``--gates`` statements, alternating ``rzz(0.3) q[i],q[j];`` and ``h q[i];`` on
@@ -35,7 +35,7 @@ from pathlib import Path
 
 import numpy as np
 
-from tnsim.qasm import read_qasm
+from tnsim.circuits.qasm import read_qasm
 
 __all__ = ["make_program", "time_reader"]
 

@@ -24,11 +24,19 @@ import time
 import networkx as nx
 import numpy as np
 
+from tnsim.circuits.families import (
+    brickwork,
+    ghz,
+    grid_circuit,
+    hardware_efficient,
+    iqp,
+    qaoa_maxcut,
+)
 from tnsim.errors import ResourceLimitError
-from tnsim.families import brickwork, ghz, grid_circuit, hardware_efficient, iqp, qaoa_maxcut
-from tnsim.queries import amplitude, amplitudes, maxcut_energy
-from tnsim.sampling import sample
-from tnsim.xeb import xeb
+from tnsim.queries.amplitudes import amplitude, amplitudes
+from tnsim.queries.expectation import maxcut_energy
+from tnsim.queries.sampling import sample
+from tnsim.queries.xeb import xeb
 
 
 def _p1_closed_form(graph: nx.Graph, gamma: float, beta: float) -> float:

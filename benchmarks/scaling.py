@@ -22,7 +22,7 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     two results are bit-for-bit equal.
 ``grid``
     A 10 x 10 qubit, 12-cycle grid amplitude under ``memory_limit=2GiB``: its
-    plan (``tnsim.budget.fit_plan``) and forecast seconds (FLOPs, plus
+    plan (``tnsim.execution.budget.fit_plan``) and forecast seconds (FLOPs, plus
     ``WRITE_FLOPS`` per element written, over the measured matmul rate, as
     ``tnsim.plan`` forecasts); run only if it is short.  Then a 7 x 7, 12-cycle
     amplitude sliced to fit 64 MiB, run: forecast against measured time.
@@ -57,11 +57,11 @@ def _best(fn, repeat: int) -> float:
 def _grid_problem(rows, cols, cycles, num_sliced=0, seed=1):
     import numpy as np
 
-    from tnsim.execute import compile_tree
-    from tnsim.families import grid_circuit
-    from tnsim.network import amplitude_network
-    from tnsim.plan import greedy_tree
-    from tnsim.simplify import absorb_small
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.execution.steps import compile_tree
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
+    from tnsim.plan.driver import greedy_tree
 
     circuit = grid_circuit(rows, cols, cycles, seed=seed)
     bits = "0" * (rows * cols)
@@ -92,7 +92,8 @@ def matmul_rate(n: int = 2048) -> float:
 
 
 def section_rate() -> None:
-    from tnsim.execute import compile_tree, count_flops, execute
+    from tnsim.execution.slices import execute
+    from tnsim.execution.steps import compile_tree, count_flops
 
     network, tree, _ = _grid_problem(*((4, 4, 8) if QUICK[0] else (5, 6, 12)))
     flops = count_flops(compile_tree(tree))
@@ -107,10 +108,11 @@ def section_rate() -> None:
 
 
 def section_overhead() -> None:
-    from tnsim.execute import compile_tree, contract_tree
-    from tnsim.families import brickwork
-    from tnsim.network import amplitude_network
-    from tnsim.plan import greedy_tree
+    from tnsim.circuits.families import brickwork
+    from tnsim.execution.steps import compile_tree
+    from tnsim.execution.treerun import contract_tree
+    from tnsim.network.builders import amplitude_network
+    from tnsim.plan.driver import greedy_tree
 
     n = 40 if QUICK[0] else 400
     network = amplitude_network(brickwork(n, 6, seed=1), "0" * n)
@@ -124,7 +126,8 @@ def section_overhead() -> None:
 
 
 def section_workers(num_sliced: int = 5) -> None:
-    from tnsim.execute import compile_tree, count_flops, execute
+    from tnsim.execution.slices import execute
+    from tnsim.execution.steps import compile_tree, count_flops
 
     size = (4, 4, 8) if QUICK[0] else (5, 6, 14)
     network, tree, sliced = _grid_problem(*size, 2 if QUICK[0] else num_sliced)
@@ -159,21 +162,21 @@ def section_workers(num_sliced: int = 5) -> None:
 def _forecast_rate(dtype) -> tuple[float, str]:
     """The planner's measured matmul rate if it has one, else this script's."""
     try:
-        from tnsim.plan.forecast import matmul_rate as planner_rate
+        from tnsim.execution.rate import matmul_rate as planner_rate
     except ImportError:
         return matmul_rate(), "scaling.py 2048^3"
-    return planner_rate(dtype), "tnsim.plan.forecast.matmul_rate"
+    return planner_rate(dtype), "tnsim.execution.rate.matmul_rate"
 
 
 def _grid_run(rows, cols, cycles, limit, run: bool) -> None:
     import numpy as np
 
-    from tnsim.budget import fit_plan
-    from tnsim.execute import execute
-    from tnsim.families import grid_circuit
-    from tnsim.memory import format_bytes
-    from tnsim.network import amplitude_network
-    from tnsim.simplify import absorb_small
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.execution.budget import fit_plan
+    from tnsim.execution.slices import execute
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
+    from tnsim.units import format_bytes
 
     circuit = grid_circuit(rows, cols, cycles, seed=1)
     network = absorb_small(amplitude_network(circuit, "0" * (rows * cols), dtype=np.complex64))
@@ -182,7 +185,7 @@ def _grid_run(rows, cols, cycles, limit, run: bool) -> None:
     planning = time.perf_counter() - start
     rate, source = _forecast_rate(np.complex64)
     # tnsim's forecast (as tnsim.plan gives it): FLOPs plus the fitted cost per element written.
-    from tnsim.plan.forecast import elements_written, forecast_seconds
+    from tnsim.execution.timemodel import elements_written, forecast_seconds
 
     forecast = forecast_seconds(plan.flops, elements_written(plan), rate)
     head = (

@@ -8,8 +8,8 @@ Two parts, both measured in this run on this machine:
    squares on relative error).  ``b / a`` is the cost of writing one element in
    FLOPs at the contraction rate: ``tnsim.plan.search.WRITE_FLOPS`` was set
    from this fit.
-2. *objectives*: ``make_plan(objective="flops")`` against
-   ``make_plan(objective="time")`` (same time budget), each plan executed,
+2. *objectives*: ``make_plan(objective="operations")`` against
+   ``make_plan(objective="runtime")`` (same time budget), each plan executed,
    side by side.
 
 Run::
@@ -27,12 +27,12 @@ import time
 
 import numpy as np
 
-from tnsim.execute import execute
-from tnsim.families import grid_circuit
-from tnsim.network import amplitude_network
-from tnsim.plan import ContractionTree, make_plan
+from tnsim.circuits.families import grid_circuit
+from tnsim.execution.slices import execute
+from tnsim.network.builders import amplitude_network
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import PairTree, make_plan
 from tnsim.plan.search import WRITE_FLOPS, search_path
-from tnsim.simplify import absorb_small
 
 
 def _network(rows: int, cols: int, cycles: int):
@@ -62,7 +62,7 @@ def fit(grids, budget: float) -> None:
             res = search_path(
                 ins, out, size, time_budget=budget, methods=[method], seed=1, reoptimize=False
             )
-            tree = ContractionTree(ins, out, size, res.path)
+            tree = PairTree(ins, out, size, res.path)
             cost = tree.cost()
             if cost.flops > 3e10:
                 continue
@@ -95,7 +95,7 @@ def objectives(grids, budget: float) -> None:
     for r, c, d in grids:
         net = _network(r, c, d)
         times = {}
-        for objective in ("flops", "time"):
+        for objective in ("operations", "runtime"):
             plan = make_plan(net, time_budget=budget, seed=0, objective=objective)
             cost = plan.tree.cost()
             times[objective] = _seconds(net, plan.tree, plan.sliced)

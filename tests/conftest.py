@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-from tnsim.execute import compile_tree
-from tnsim.network import amplitude_network
-from tnsim.plan import greedy_tree
-from tnsim.simplify import absorb_small
+from tnsim.execution.steps import compile_tree
+from tnsim.network.builders import amplitude_network
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import greedy_tree
 from tnsim.testing import dense_state, random_circuit
 
 _GATES = ["h", "cx", "rz", "rx", "cz", "ry"]

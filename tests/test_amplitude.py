@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 
 from tnsim import Circuit
-from tnsim.bits import format_bits
+from tnsim.circuits.bits import format_bits
 from tnsim.errors import InputError
-from tnsim.queries import amplitude, amplitudes
+from tnsim.queries.amplitudes import amplitude, amplitudes
 from tnsim.testing import dense_state, random_circuit
 
 

@@ -14,20 +14,15 @@ import numpy as np
 import opt_einsum
 import pytest
 
-from tnsim.bench import (
-    FAMILIES,
-    crossing_size,
-    parse_sizes,
-    plan_with,
-    run_bench,
-)
+from tnsim.circuits.families import grid_circuit, make_family
+from tnsim.circuits.qasm import read_qasm
 from tnsim.cli import main
 from tnsim.errors import InputError
-from tnsim.families import grid_circuit, make_family
-from tnsim.network import TensorNetwork, amplitude_network
-from tnsim.plan import make_plan
-from tnsim.qasm import read_qasm
-from tnsim.simplify import absorb_small
+from tnsim.network.builders import amplitude_network
+from tnsim.network.graph import TensorGraph
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import make_plan
+from tnsim.queries.costsweep import FAMILIES, crossing_size, parse_sizes, plan_with, run_bench
 from tnsim.testing import dense_state, random_circuit
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
@@ -74,7 +69,7 @@ def test_reported_flops_match_opt_einsum_on_a_matrix_chain():
     inputs = [(0, 1), (1, 2), (2, 3), (3, 4)]
     shapes = [tuple(sizes[i] for i in ix) for ix in inputs]
     arrays = [np.ones(s, dtype=np.complex128) for s in shapes]
-    net = TensorNetwork(arrays, inputs, sizes, (0, 4))
+    net = TensorGraph(arrays, inputs, sizes, (0, 4))
     plan = plan_with("greedy", net)
     linear = plan.tree.linear_path()
     _, info = opt_einsum.contract_path("ab,bc,cd,de->ae", *shapes, shapes=True, optimize=linear)

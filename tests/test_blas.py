@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from tnsim.blas import blas_threads, set_blas_threads
-from tnsim.queries import amplitude
+from tnsim.execution.blas import blas_threads, set_blas_threads
+from tnsim.queries.amplitudes import amplitude
 from tnsim.testing import dense_state, random_circuit
 
 

@@ -10,11 +10,12 @@ import textwrap
 import numpy as np
 import pytest
 
-import tnsim.execute as ex
-from tnsim.checkpoint import OrderedSum
+import tnsim.execution.slices as ex
 from tnsim.errors import CheckpointError
-from tnsim.execute import Scaled, execute
-from tnsim.executors import SliceError
+from tnsim.execution.checkpoint import OrderedSum
+from tnsim.execution.executors import SliceError
+from tnsim.execution.slices import execute
+from tnsim.network.scaled import Scaled
 
 TESTS = os.path.dirname(os.path.abspath(__file__))
 
@@ -160,7 +161,7 @@ _CHILD = textwrap.dedent(
     import sys, time
     sys.path.insert(0, {tests!r})
     from conftest import _sliced_case
-    from tnsim.execute import execute
+    from tnsim.execution.slices import execute
 
     _, _, network, tree, sliced = _sliced_case(14, 90, seed=2, num_sliced=4)
 

@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from tnsim import Circuit
+from tnsim.circuits.qasm import write_qasm
 from tnsim.cli import main
 from tnsim.testing import dense_state, random_circuit
 
@@ -16,7 +17,7 @@ from tnsim.testing import dense_state, random_circuit
 def circuit_file(tmp_path):
     c = random_circuit(8, 40, seed=5, gates=["h", "cx", "rz", "u3", "cz", "swap", "ccx", "ry"])
     path = tmp_path / "c.qasm"
-    path.write_text(c.to_qasm())
+    path.write_text(write_qasm(c))
     return c, path
 
 
@@ -72,7 +73,7 @@ def test_missing_file_and_bad_option(tmp_path, capsys):
 
 def test_bits_file_error_names_line_and_column(tmp_path, capsys):
     path = tmp_path / "c.qasm"
-    path.write_text(Circuit(3).h(0).to_qasm())
+    path.write_text(write_qasm(Circuit(3).h(0)))
     bits = tmp_path / "b.txt"
     bits.write_text("000\n  01\n")
     assert main(["amp", str(path), "--bits-file", str(bits)]) == 2

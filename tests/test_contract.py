@@ -1,10 +1,10 @@
-"""tnsim.contract: any einsum expression, against numpy.einsum."""
+"""tnsim.queries.contract: any einsum expression, against numpy.einsum."""
 
 import numpy as np
 import pytest
 
-from tnsim.contract import contract
 from tnsim.errors import InputError
+from tnsim.queries.contract import contract
 
 
 def _rand(*shape, seed=0):
@@ -65,15 +65,15 @@ def test_non_string_equation():
 def test_memory_limit_bounds_what_the_executor_allocates():
     # Bug found: the planner counted live intermediates but not the executor's reordered
     # operand copies, so contract(..., memory_limit=L) could allocate up to ~1.7x L.
-    from tnsim.execute import compile_tree, peak_memory
-    from tnsim.network import TensorNetwork
-    from tnsim.plan import make_plan
+    from tnsim.execution.steps import compile_tree, peak_memory
+    from tnsim.network.graph import TensorGraph
+    from tnsim.plan.driver import make_plan
 
     rng = np.random.default_rng(3)
     shapes = {0: 8, 1: 8, 2: 8, 3: 8, 4: 8}
     indices = [(0, 1, 2), (2, 3), (3, 4, 0), (1, 4)]
     arrays = [rng.standard_normal(tuple(shapes[i] for i in ix)) + 0j for ix in indices]
-    network = TensorNetwork(arrays, indices, shapes, ())
+    network = TensorGraph(arrays, indices, shapes, ())
     limit = 16 * 256
     plan = make_plan(network, memory_limit=limit)
     assert peak_memory(plan.tree, compile_tree(plan.tree, plan.sliced), 16) <= limit

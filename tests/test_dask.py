@@ -8,7 +8,8 @@ import pytest
 
 distributed = pytest.importorskip("distributed")
 
-from tnsim.execute import Scaled, execute  # noqa: E402
+from tnsim.execution.slices import execute  # noqa: E402
+from tnsim.network.scaled import Scaled  # noqa: E402
 
 
 def _same_bits(a: Scaled, b: Scaled) -> bool:
@@ -37,7 +38,7 @@ def _slow_slices_function():
     def slow_slices(delay):
         import time
 
-        import tnsim.execute as ex
+        import tnsim.execution.slices as ex
 
         real = getattr(ex, "_real_contract_tree", ex.contract_tree)
         ex._real_contract_tree = real
@@ -85,8 +86,8 @@ def test_killed_worker_does_not_change_result(client, sliced_case):
 
 
 def test_cli_dask_option_matches_serial(client, tmp_path, capsys):
+    from tnsim.circuits.qasm import write_qasm
     from tnsim.cli import main
-    from tnsim.qasm import write_qasm
     from tnsim.testing import random_circuit
 
     path = tmp_path / "c.qasm"

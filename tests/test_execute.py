@@ -6,19 +6,17 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import pytest
 
-import tnsim.execute as ex
+import tnsim.execution.slices as ex
+import tnsim.execution.steps as steps_module
+import tnsim.execution.treerun as treerun
+import tnsim.network.scaled as scaled_module
 from tnsim.errors import InputError, ResourceLimitError
-from tnsim.execute import (
-    Scaled,
-    compile_tree,
-    count_flops,
-    execute,
-    normalize,
-    peak_memory,
-)
-from tnsim.executors import SliceError, chunk_bounds
-from tnsim.network import TensorNetwork
-from tnsim.plan import greedy_tree
+from tnsim.execution.executors import SliceError, chunk_bounds
+from tnsim.execution.slices import execute
+from tnsim.execution.steps import compile_tree, count_flops, peak_memory
+from tnsim.network.graph import TensorGraph
+from tnsim.network.scaled import Scaled, normalize
+from tnsim.plan.driver import greedy_tree
 from tnsim.testing import dense_state
 
 
@@ -141,7 +139,7 @@ def test_normalize_in_place_matches_normalize(dtype, scale):
     x[:5] *= 2.0**-60  # components far below the peak: subnormal after scaling in complex64
     x = (x * 2.0**scale).astype(dtype)
     ref, e = normalize(x)
-    got, e2 = ex.normalize_owned(x.copy())
+    got, e2 = scaled_module.normalize_owned(x.copy())
     assert e == e2 and ref.tobytes() == got.tobytes()
     assert 0.5 <= np.max(np.abs(ref.view(ref.real.dtype))) < 1
 
@@ -163,7 +161,7 @@ def test_dask_array_backend_matches_numpy(sliced_case):
 
 
 def test_missing_backend_is_an_input_error():
-    tn = TensorNetwork([np.ones(2)], [(0,)], {0: 2})
+    tn = TensorGraph([np.ones(2)], [(0,)], {0: 2})
     with pytest.raises(InputError, match="not installed"):
         execute(tn, greedy_tree(tn.indices, tn.output, tn.size), backend="no_such_array_lib")
 
@@ -184,7 +182,7 @@ def test_apply_step_matches_einsum_on_random_layouts():
     flags = set()
     for _ in range(400):
         ia, ib, keep = _random_pair(rng)
-        step = ex.pair_step(ia, ib, keep, size)
+        step = steps_module.pair_step(ia, ib, keep, size)
         flags.add((step.trans_a, step.trans_b))
         a = rng.normal(size=[size[i] for i in ia]) + 1j * rng.normal(size=[size[i] for i in ia])
         b = rng.normal(size=[size[i] for i in ib]) + 1j * rng.normal(size=[size[i] for i in ib])
@@ -192,14 +190,16 @@ def test_apply_step_matches_einsum_on_random_layouts():
         eq = f"{''.join(sym[i] for i in ia)},{''.join(sym[i] for i in ib)}->"
         eq += "".join(sym[i] for i in step.out_labels)
         assert set(step.out_labels) == (set(ia) | set(ib)) & keep
-        np.testing.assert_allclose(ex.apply_step(step, a, b), np.einsum(eq, a, b), atol=1e-12)
+        np.testing.assert_allclose(
+            steps_module.apply_step(step, a, b), np.einsum(eq, a, b), atol=1e-12
+        )
     assert {(True, False), (False, True)} <= flags  # both transposed-view paths were taken
 
 
 def test_grouped_operand_is_not_copied():
     # b's axes already lie as (summed, right): matmul gets a view of it, no copy.
     size = dict.fromkeys(range(4), 3)
-    step = ex.pair_step([0, 1], [1, 2, 3], {0, 2, 3}, size)
+    step = steps_module.pair_step([0, 1], [1, 2, 3], {0, 2, 3}, size)
     assert step.view_b == (27,) and step.perm_b == (0,)  # one run: nothing to permute
     b = np.arange(27.0).reshape(3, 3, 3)
     view = b.reshape(step.view_b).transpose(step.perm_b).reshape(step.mat_b)
@@ -227,15 +227,15 @@ def test_script_without_main_guard(tmp_path, with_thread):
     script.write_text(
         "import threading, time\n"
         "import numpy as np\n"
-        "from tnsim.execute import execute\n"
-        "from tnsim.network import TensorNetwork\n"
+        "from tnsim.execution.slices import execute\n"
+        "from tnsim.network import TensorGraph\n"
         "from tnsim.plan import greedy_tree\n"
         + (
             "threading.Thread(target=time.sleep, args=(30,), daemon=True).start()\n"
             if with_thread
             else ""
         )
-        + "tn = TensorNetwork([np.ones((2, 2))] * 2, [(0, 1), (1, 2)], {0: 2, 1: 2, 2: 2})\n"
+        + "tn = TensorGraph([np.ones((2, 2))] * 2, [(0, 1), (1, 2)], {0: 2, 1: 2, 2: 2})\n"
         "tree = greedy_tree(tn.indices, tn.output, tn.size)\n"
         "print(complex(execute(tn, tree, [0, 1], chunk_size=1, workers=2)))\n"
     )
@@ -253,17 +253,17 @@ def test_rescaling_rule_does_not_change_bits(sliced_case, monkeypatch):
     # sec. 5.3.3), so rescaling every intermediate or only out-of-range ones agrees.
     _, _, network, tree, _ = sliced_case(16, 110, seed=4)
     lazy = ex.contract_tree(network.arrays, tree)
-    monkeypatch.setattr(ex, "SLACK", 0)
+    monkeypatch.setattr(treerun, "SLACK", 0)
     eager = ex.contract_tree(network.arrays, tree)
     assert _same_bits(lazy, eager)
-    monkeypatch.setattr(ex, "SLACK", 1000)  # never rescale in between
+    monkeypatch.setattr(treerun, "SLACK", 1000)  # never rescale in between
     never = ex.contract_tree(network.arrays, tree)
     assert never.mantissa.tobytes() == eager.mantissa.tobytes()
 
 
 def test_absurd_slice_count_is_refused():
     n = 64  # 2**64 slices: a vector per label, all sliced
-    tn = TensorNetwork(
+    tn = TensorGraph(
         [np.ones(2)] * n + [np.ones((2,) * 1)],
         [(i,) for i in range(n)] + [(0,)],
         {i: 2 for i in range(n)},

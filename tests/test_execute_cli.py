@@ -6,8 +6,8 @@ import os
 import numpy as np
 import pytest
 
+from tnsim.circuits.qasm import write_qasm
 from tnsim.cli import main
-from tnsim.qasm import write_qasm
 from tnsim.testing import dense_state, random_circuit
 
 BITS = ["0110100101", "1111000011"]

@@ -9,8 +9,7 @@ import pytest
 import scipy.linalg
 
 from tnsim import amplitude
-from tnsim.errors import InputError
-from tnsim.families import (
+from tnsim.circuits.families import (
     FAMILIES,
     SQRT_W_U3,
     brickwork,
@@ -24,8 +23,9 @@ from tnsim.families import (
     qaoa_maxcut,
     qft,
 )
-from tnsim.gates import gate_matrix
-from tnsim.qasm import read_qasm, write_qasm
+from tnsim.circuits.gates import gate_matrix
+from tnsim.circuits.qasm import read_qasm, write_qasm
+from tnsim.errors import InputError
 from tnsim.testing import dense_state
 
 X = np.array([[0, 1], [1, 0]], dtype=complex)
@@ -220,7 +220,7 @@ def test_ising_trotter_converges_to_exact_evolution():
 def _iqp_diagonal(c, n):
     # Diagonal from the gate definitions, not the matrices: cz = (-1)^(ab),
     # rzz(θ) = exp(-iθ/2 (-1)^(a⊕b)), t = exp(iπ/4 a), rz(θ) = exp(-iθ/2 (-1)^a)
-    # (OpenQASM 2.0, arXiv:1707.03429, and tnsim.gates' rotation convention).
+    # (OpenQASM 2.0, arXiv:1707.03429, and tnsim.circuits.gates' rotation convention).
     x = (np.arange(2**n)[:, None] >> (n - 1 - np.arange(n))) & 1
     d = np.ones(2**n, dtype=complex)
     for op in c.ops[n:-n]:

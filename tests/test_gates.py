@@ -1,4 +1,4 @@
-"""Tests of tnsim.gates: every matrix checked against an independent definition."""
+"""Tests of tnsim.circuits.gates: every matrix checked against an independent definition."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 import scipy.linalg
 
+from tnsim.circuits.gates import GATES, controlled, gate_matrix, is_unitary
 from tnsim.errors import InputError
-from tnsim.gates import GATES, controlled, gate_matrix, is_unitary
 
 RNG_SEED = 20240611
 I2 = np.eye(2)
@@ -44,7 +44,7 @@ def test_diagonal_flag_iff_matrix_diagonal_for_random_params(name):
 
 # Source for the rotations: the definition R_P(θ) = exp(-i θ P / 2), common practice for
 # Pauli rotations, evaluated with scipy.linalg.expm (SciPy, Virtanen et al., "SciPy 1.0",
-# Nature Methods 17, 261, 2020) rather than the closed form used in tnsim.gates.
+# Nature Methods 17, 261, 2020) rather than the closed form used in tnsim.circuits.gates.
 ROTATIONS = {
     "rx": X,
     "ry": Y,

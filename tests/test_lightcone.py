@@ -4,11 +4,12 @@ import numpy as np
 import pytest
 
 from tnsim import Circuit
-from tnsim.families import brickwork, qaoa_maxcut
-from tnsim.lightcone import canonical_cone, cone_circuit, index_circuit, light_cone
-from tnsim.network import doubled_network
-from tnsim.queries import expectation, marginal
-from tnsim.simplify import absorb_small
+from tnsim.circuits.families import brickwork, qaoa_maxcut
+from tnsim.network.builders import doubled_network
+from tnsim.network.lightcone import canonical_cone, cone_circuit, index_circuit, light_cone
+from tnsim.network.simplify import absorb_small
+from tnsim.queries.expectation import expectation
+from tnsim.queries.marginals import marginal
 from tnsim.testing import dense_state, random_circuit
 
 

@@ -8,8 +8,8 @@ import numpy as np
 import opt_einsum
 import pytest
 
-from tnsim.livetree import LiveTree
-from tnsim.plan import ContractionTree
+from tnsim.execution.livetree import LiveTree
+from tnsim.plan.driver import PairTree
 from tnsim.plan.random_networks import random_network
 
 
@@ -38,7 +38,7 @@ def _network(seed: int, n: int = 9, bits: int = 4):
         del live[i], live[j]
         live.append(nxt)
         nxt += 1
-    tree = ContractionTree(tuple(tuple(ix) for ix in inputs), (batch,), size, tuple(path))
+    tree = PairTree(tuple(tuple(ix) for ix in inputs), (batch,), size, tuple(path))
     return tree, batch, leaves, rng
 
 
@@ -93,6 +93,6 @@ def test_known_values_are_used_and_not_recomputed():
 
 def test_the_tree_must_end_in_the_batch_label():
     tree, batch, _, rng = _network(1)
-    wrong = ContractionTree(tree.inputs, (), tree.size, tree.path)
+    wrong = PairTree(tree.inputs, (), tree.size, tree.path)
     with pytest.raises(ValueError, match="batch label"):
         LiveTree(wrong, [_random(rng, ix, tree.size) for ix in tree.inputs], batch)

@@ -9,8 +9,9 @@ import textwrap
 import pytest
 
 from tnsim.errors import InputError
-from tnsim.memory import available_memory, default_memory_limit, format_bytes, parse_memory
-from tnsim.runconfig import current_options, run_options, slice_memory_limit
+from tnsim.execution.memory import available_memory, default_memory_limit
+from tnsim.execution.options import current_options, run_options, slice_memory_limit
+from tnsim.units import format_bytes, parse_memory
 
 
 @pytest.mark.parametrize(
@@ -75,9 +76,9 @@ _CHILD = textwrap.dedent(
     import resource, sys
     from tnsim import Circuit
     from tnsim.errors import PlanningError, ResourceLimitError
-    from tnsim.network import amplitude_network
-    from tnsim.queries import contract_network
-    from tnsim.runconfig import run_options
+    from tnsim.network.builders import amplitude_network
+    from tnsim.queries.amplitudes import contract_network
+    from tnsim.execution.options import run_options
 
     n = 28  # all qubits open: the result alone is 2**28 complex128 = 4 GiB
     circuit = Circuit(n)
@@ -109,10 +110,10 @@ def test_query_over_the_cap_is_refused_before_allocating():
 
 
 def test_fit_plan_fits_the_executor_count(sliced_case):
-    from tnsim.budget import fit_plan, plan_peak_memory
     from tnsim.errors import ResourceLimitError
-    from tnsim.execute import execute
-    from tnsim.plan import make_plan
+    from tnsim.execution.budget import fit_plan, plan_peak_memory
+    from tnsim.execution.slices import execute
+    from tnsim.plan.driver import make_plan
 
     _, _, network, _, _ = sliced_case(16, 110, seed=4)
     full = plan_peak_memory(network, make_plan(network))

@@ -5,7 +5,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from tnsim.errors import InputError
-from tnsim.observables import Observable, PauliTerm, parse_observable
+from tnsim.queries.observables import Observable, PauliTerm, parse_observable
 
 
 def test_documented_example():

@@ -10,16 +10,16 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from tnsim.errors import ResourceLimitError
-from tnsim.execute import execute
-from tnsim.network import TensorNetwork
-from tnsim.plan import ContractionTree, Plan, greedy_tree, make_plan, plan_path
+from tnsim.execution.slices import execute
+from tnsim.network.graph import TensorGraph
+from tnsim.plan.driver import PairTree, Plan, greedy_tree, make_plan, plan_path
 from tnsim.plan.elimination import elimination_path
 from tnsim.plan.optimizer import Planner
 from tnsim.plan.partition import bisection_path, sweep_order, sweep_path
 from tnsim.plan.random_networks import random_arrays, random_network
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.search import random_greedy_path, search_path
-from tnsim.plan.slicing import choose_slices, slice_and_replan
+from tnsim.plan.slicing import choose_slices, slice_with_replanning
 from tnsim.plan.tree import tree_cost
 
 
@@ -37,8 +37,8 @@ def _einsum_reference(inputs, output, size, arrays):
 
 
 def _run(inputs, output, size, arrays, path, sliced=()):
-    net = TensorNetwork(list(arrays), [tuple(ix) for ix in inputs], dict(size), tuple(output))
-    tree = ContractionTree(tuple(tuple(ix) for ix in inputs), tuple(output), dict(size), path)
+    net = TensorGraph(list(arrays), [tuple(ix) for ix in inputs], dict(size), tuple(output))
+    tree = PairTree(tuple(tuple(ix) for ix in inputs), tuple(output), dict(size), path)
     return execute(net, tree, sliced).value()
 
 
@@ -134,7 +134,7 @@ def test_cost_is_for_one_slice_and_peak_counts_live_intermediates_and_copies():
 def test_linear_path_round_trip_and_opt_einsum_agrees_on_width():
     inputs, output, size = random_network(12, seed=3)
     tree = greedy_tree(inputs, output, size)
-    back = ContractionTree.from_linear(inputs, output, size, tree.linear_path())
+    back = PairTree.from_linear(inputs, output, size, tree.linear_path())
     assert back.path == tree.path
     sym = {i: opt_einsum.get_symbol(k) for k, i in enumerate(sorted(size))}
     eq = ",".join("".join(sym[i] for i in ix) for ix in inputs) + "->"
@@ -214,7 +214,7 @@ def test_search_is_reproducible_with_a_seed():
 
 def _net(inputs, output, size, seed=0):
     arrays = random_arrays(inputs, size, seed=seed)
-    return TensorNetwork(arrays, [tuple(ix) for ix in inputs], dict(size), tuple(output))
+    return TensorGraph(arrays, [tuple(ix) for ix in inputs], dict(size), tuple(output))
 
 
 @pytest.mark.parametrize("seed", range(4))
@@ -300,17 +300,17 @@ def test_package_doors():
     import tnsim
     from tnsim import Circuit
 
-    report = tnsim.plan(Circuit(3).h(0).cx(0, 1).cx(1, 2), "111")
+    report = tnsim.forecast(Circuit(3).h(0).cx(0, 1).cx(1, 2), "111")
     assert report.num_qubits == 3 and report.num_slices == 1
     assert issubclass(tnsim.Planner, opt_einsum.paths.PathOptimizer)
-    assert tnsim.plan.make_plan is make_plan
+    assert tnsim.plan.driver.make_plan is make_plan
 
 
 @pytest.mark.slow
 def test_search_beats_opt_einsum_greedy_on_a_grid_circuit():
-    from tnsim.families import grid_circuit
-    from tnsim.network import amplitude_network
-    from tnsim.simplify import absorb_small
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
 
     net = absorb_small(amplitude_network(grid_circuit(8, 8, 8, seed=0), "0" * 64))
     greedy = greedy_tree(net.indices, net.output, net.size).cost().flops
@@ -336,12 +336,12 @@ def test_slicing_uses_few_labels_for_the_memory_it_saves(seed):
 def test_plans_are_reused_for_the_same_network_and_options():
     import numpy as np
 
-    from tnsim.network import TensorNetwork
-    from tnsim.plan import make_plan
+    from tnsim.network.graph import TensorGraph
+    from tnsim.plan.driver import make_plan
 
     arrays = [np.ones((2, 2))] * 3
-    tn = TensorNetwork(arrays, [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
-    same = TensorNetwork(list(arrays), [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
+    tn = TensorGraph(arrays, [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
+    same = TensorGraph(list(arrays), [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
     assert make_plan(tn) is make_plan(same)
     assert make_plan(tn, memory_limit=10**6) is not make_plan(tn)
 
@@ -358,9 +358,9 @@ def test_search_stops_once_it_has_spent_the_best_trees_contraction_time():
 
 
 def test_sweep_crosses_a_grid_along_its_long_side():
-    from tnsim.families import grid_circuit
-    from tnsim.network import amplitude_network
-    from tnsim.simplify import absorb_small
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
 
     # A 4x6 grid circuit of 8 cycles: a column-by-column sweep keeps in its front one
     # column cut (4 rows x 2 horizontal CZ layers crossing it = 8 labels), the 4 wires
@@ -382,17 +382,17 @@ def test_sweep_order_keeps_the_front_thin():
 
 
 def test_memory_limit_slices_the_cheapest_candidate_tree():
-    from tnsim.families import grid_circuit
-    from tnsim.network import amplitude_network
-    from tnsim.plan import plan_candidates
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
+    from tnsim.plan.driver import plan_candidates
     from tnsim.plan.tree import memory_order
-    from tnsim.simplify import absorb_small
 
     net = absorb_small(amplitude_network(grid_circuit(4, 5, 8, seed=0), "0" * 20))
     ins, out, size = net.indices, net.output, net.size
-    full = make_plan(net, max_trials=10, objective="flops")
+    full = make_plan(net, max_trials=10, objective="operations")
     limit = full.peak_bytes // 16
-    cut = make_plan(net, max_trials=10, memory_limit=limit, objective="flops")
+    cut = make_plan(net, max_trials=10, memory_limit=limit, objective="operations")
     assert cut.peak_bytes <= limit and cut.num_slices > 1
     # No worse than slicing any of the search's candidate trees on its own.
     candidates = plan_candidates(ins, out, size, max_trials=10)
@@ -402,10 +402,10 @@ def test_memory_limit_slices_the_cheapest_candidate_tree():
         ordered = memory_order(ins, out, size, path)
         _, one, k = choose_slices(ins, out, size, ordered, limit)
         fixed.append(one.flops * k + 2 * (k - 1))
-        _, _, one, k = slice_and_replan(ins, out, size, ordered, limit)
+        _, _, one, k = slice_with_replanning(ins, out, size, ordered, limit)
         adapted.append(one.flops * k + 2 * (k - 1))
     assert cut.flops <= min(fixed + adapted)
-    # Re-planning while slicing is why slice_and_replan exists: on this grid it finds a
+    # Re-planning while slicing is why slice_with_replanning exists: on this grid it finds a
     # cheaper sliced plan than slicing the fixed trees (measured: 6.2x vs 48x the
     # unsliced plan's FLOPs when this test was written).
     assert min(adapted) < min(fixed)
@@ -432,7 +432,7 @@ def test_slice_and_replan_fits_and_keeps_the_value(seed):
     path = random_greedy_path(inputs, output, size, seed=seed)
     full = tree_cost(inputs, output, size, path)
     limit = full.peak_bytes // 4
-    sliced, new, cost, num = slice_and_replan(inputs, output, size, path, limit)
+    sliced, new, cost, num = slice_with_replanning(inputs, output, size, path, limit)
     assert cost.peak_bytes <= limit and num == math.prod(size[i] for i in sliced)
     assert cost == tree_cost(inputs, output, size, new, sliced=sliced)
     assert set(sliced).isdisjoint(output)
@@ -444,12 +444,10 @@ def test_slice_and_replan_fits_and_keeps_the_value(seed):
 def test_planner_peak_is_never_below_the_executors_count(seed):
     # The planner's memory model must bound what the executor allocates (operand copies
     # included), so a plan sliced to a limit runs under it.
-    from tnsim.execute import compile_tree, peak_memory
+    from tnsim.execution.steps import compile_tree, peak_memory
 
     inputs, output, size = random_network(14, num_open=2, hyper=0.3, seed=seed)
-    tree = ContractionTree(
-        inputs, output, size, random_greedy_path(inputs, output, size, seed=seed)
-    )
+    tree = PairTree(inputs, output, size, random_greedy_path(inputs, output, size, seed=seed))
     labels = sorted({i for ix in inputs for i in ix} - set(output))
     for sliced in [(), tuple(labels[:2])]:
         planned = tree_cost(inputs, output, size, tree.path, sliced=sliced).peak_bytes
@@ -457,12 +455,12 @@ def test_planner_peak_is_never_below_the_executors_count(seed):
 
 
 def test_time_objective_weighs_elements_written():
-    # The same two trials (a sweep, then a bisection) scored two ways: "flops" keeps the
-    # tree with fewer FLOPs, "time" the one with fewer FLOPs + WRITE_FLOPS * written.
-    from tnsim.families import grid_circuit
-    from tnsim.network import amplitude_network
+    # The same two trials (a sweep, then a bisection) scored two ways: "operations" keeps the
+    # tree with fewer FLOPs, "runtime" the one with fewer FLOPs + WRITE_FLOPS * written.
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
     from tnsim.plan.search import WRITE_FLOPS, score
-    from tnsim.simplify import absorb_small
 
     net = absorb_small(amplitude_network(grid_circuit(7, 7, 8, seed=0), "0" * 49))
     ins, out, size = net.indices, net.output, net.size
@@ -477,15 +475,15 @@ def test_time_objective_weighs_elements_written():
             reoptimize=False,
             objective=objective,
         )
-        for objective in ("flops", "time")
+        for objective in ("operations", "runtime")
     }
-    by_flops, by_time = runs["flops"].cost, runs["time"].cost
+    by_flops, by_time = runs["operations"].cost, runs["runtime"].cost
     assert by_flops.flops <= by_time.flops
-    assert score(by_time, "time") <= score(by_flops, "time")
-    assert score(by_time, "time") == by_time.flops + WRITE_FLOPS * by_time.written
+    assert score(by_time, "runtime") <= score(by_flops, "runtime")
+    assert score(by_time, "runtime") == by_time.flops + WRITE_FLOPS * by_time.written
     # The two trees differ here: the sweep needs 3x fewer FLOPs but writes 25x more
     # elements (it rewrites its whole front at every step).
-    assert {runs["flops"].method, runs["time"].method} == {"sweep", "bisection"}
+    assert {runs["operations"].method, runs["runtime"].method} == {"sweep", "bisection"}
 
 
 def test_same_seed_and_trial_budget_give_the_same_sliced_plan():
@@ -493,11 +491,11 @@ def test_same_seed_and_trial_budget_give_the_same_sliced_plan():
     # time budget and timed sub-tree re-planning, so a loaded machine could change the plan.
     import time as _time
 
-    import tnsim.plan as plan_module
-    from tnsim.families import grid_circuit
-    from tnsim.network import amplitude_network
+    import tnsim.plan.driver as plan_module
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
     from tnsim.plan import reoptimize as reopt_module
-    from tnsim.simplify import absorb_small
 
     net = absorb_small(amplitude_network(grid_circuit(6, 6, 8, seed=0), "0" * 36))
     limit = make_plan(net, max_trials=6).peak_bytes // 8
@@ -533,7 +531,7 @@ def test_vectors_first_plans_merge_each_vector_then_follow_the_merged_plan(seed)
         vectors.append(len(inputs))
         inputs.append((label,))
     arrays = random_arrays(inputs, size, seed=seed)
-    net = TensorNetwork(arrays, inputs, size, output)
+    net = TensorGraph(arrays, inputs, size, output)
     plan = plan_vectors_first(net, vectors, lambda n: make_plan(n, max_trials=4))
     merged = [set(step) & set(vectors) for step in plan.tree.path[:3]]
     assert [len(m) for m in merged] == [1, 1, 1]

@@ -1,4 +1,4 @@
-"""tnsim cost and tnsim.plan.forecast: the forecast report, its numbers and its errors."""
+"""tnsim cost and tnsim.queries.forecast: the forecast report, its numbers and its errors."""
 
 import json
 import math
@@ -8,11 +8,13 @@ import opt_einsum
 import pytest
 
 from tnsim import write_qasm
+from tnsim.circuits.families import grid_circuit
 from tnsim.cli import main
-from tnsim.families import grid_circuit
-from tnsim.network import amplitude_network
-from tnsim.plan import forecast, make_plan
-from tnsim.simplify import absorb_small
+from tnsim.execution import rate as rate_module
+from tnsim.network.builders import amplitude_network
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import make_plan
+from tnsim.queries import forecast
 
 
 @pytest.fixture
@@ -71,24 +73,24 @@ def test_memory_limit_that_no_slicing_meets(qasm_file, capsys):
 
 def test_matmul_rate_is_cached_and_tolerates_unwritable_dirs(tmp_path, monkeypatch):
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))
-    monkeypatch.setattr(forecast, "_RATES", {})
-    rate = forecast.matmul_rate(n=64)
+    monkeypatch.setattr(rate_module, "_RATES", {})
+    rate = rate_module.matmul_rate(n=64)
     stored = json.loads((tmp_path / "tnsim" / "matmul_rate.json").read_text())
     assert list(stored.values()) == [rate]
-    monkeypatch.setattr(forecast, "_RATES", {})
-    assert forecast.matmul_rate(n=64) == rate  # read back from the file
+    monkeypatch.setattr(rate_module, "_RATES", {})
+    assert rate_module.matmul_rate(n=64) == rate  # read back from the file
     blocker = tmp_path / "file"
     blocker.write_text("")
     monkeypatch.setenv("XDG_CACHE_HOME", str(blocker))
-    monkeypatch.setattr(forecast, "_RATES", {})
-    assert forecast.matmul_rate(n=64) > 0
+    monkeypatch.setattr(rate_module, "_RATES", {})
+    assert rate_module.matmul_rate(n=64) > 0
     assert not os.path.exists(blocker / "tnsim")
 
 
 def test_forecast_of_a_sliced_plan(qasm_file):
     _, circuit = qasm_file
-    full = forecast.plan(circuit)
-    cut = forecast.plan(circuit, memory_limit=max(full.peak_bytes // 4, 1024))
+    full = forecast.forecast(circuit)
+    cut = forecast.forecast(circuit, memory_limit=max(full.peak_bytes // 4, 1024))
     assert cut.num_slices > 1 and not cut.fits_unsliced and cut.overhead >= 1.0
     from tnsim.plan.search import WRITE_FLOPS
 

@@ -1,7 +1,7 @@
 """QAOA MaxCut energies against published closed forms.
 
-Convention: tnsim.families.qaoa_maxcut applies exp(-i γ Z_u Z_v) per edge and exp(-i β X) per
-qubit.  The papers below use exp(-i γ' C) with C = Σ (1 - Z_u Z_v) / 2, which equals
+Convention: tnsim.circuits.families.qaoa_maxcut applies exp(-i γ Z_u Z_v) per edge and
+exp(-i β X) per qubit.  The papers below use exp(-i γ' C) with C = Σ (1 - Z_u Z_v) / 2, which equals
 exp(+i γ'/2 Z_u Z_v) per edge up to a global phase, so γ' = -2 γ; β is the same.
 Checked numerically against the dense state vector in test_closed_form_matches_dense.
 """
@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from scipy.optimize import minimize
 
-from tnsim.families import qaoa_maxcut
-from tnsim.queries import TermCache, expectation, maxcut_energy
+from tnsim.circuits.families import qaoa_maxcut
+from tnsim.queries.expectation import TermCache, expectation, maxcut_energy
 from tnsim.testing import dense_state
 
 

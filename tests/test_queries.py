@@ -8,11 +8,13 @@ import numpy as np
 import pytest
 
 from tnsim import Circuit
-from tnsim.batch import BatchContraction
+from tnsim.circuits.families import brickwork
 from tnsim.errors import InputError
-from tnsim.families import brickwork
-from tnsim.network import amplitude_network
-from tnsim.queries import amplitude, amplitudes, expectation, iter_amplitudes, marginal
+from tnsim.execution.batch import BatchContraction
+from tnsim.network.builders import amplitude_network
+from tnsim.queries.amplitudes import amplitude, amplitudes, iter_amplitudes
+from tnsim.queries.expectation import expectation
+from tnsim.queries.marginals import marginal
 from tnsim.testing import dense_state, random_circuit
 
 _PAULI = {
@@ -149,7 +151,7 @@ def test_expectation_errors():
 def test_large_batch_of_wide_random_bitstrings_uses_one_open_contraction(monkeypatch):
     # 600 random bitstrings differing on all 18 qubits: one contraction with every leg open
     # (2**18 <= 600 * 4096); checked against the dense state vector (tnsim.testing).
-    import tnsim.queries as q
+    import tnsim.queries.amplitudes as q
     from tnsim.testing import dense_state, random_circuit
 
     c = random_circuit(18, 60, seed=9, gates=["h", "cz", "rx", "cx", "t"])
@@ -169,7 +171,7 @@ def test_marginal_of_a_deep_narrow_circuit_uses_all_amplitudes(monkeypatch):
     # Deep 12-qubit circuit: the light cone is every qubit, so one contraction of all
     # amplitudes is cheaper than the doubled network; checked against the dense state
     # vector (tnsim.testing.dense_state), summed over the other qubits with numpy.
-    import tnsim.queries as q
+    import tnsim.queries.marginals as q
     from tnsim.testing import dense_state, random_circuit
 
     c = random_circuit(12, 300, seed=21)
@@ -187,7 +189,7 @@ def test_expectation_of_a_deep_narrow_circuit_uses_one_state():
     # Deep 12-qubit circuit: every term's cone is the whole circuit; the terms are read
     # from one contraction of all amplitudes. Reference: <psi|P|psi> with numpy on the
     # dense state vector (tnsim.testing.dense_state).
-    from tnsim.queries import TermCache
+    from tnsim.queries.expectation import TermCache
     from tnsim.testing import dense_state, random_circuit
 
     c = random_circuit(12, 300, seed=22)
@@ -206,10 +208,10 @@ def test_amplitudes_under_a_tight_limit_fit_the_executors_count(monkeypatch):
     # Regression: the row-by-row path planned with the planner's memory count, which leaves
     # out reordering copies, so the executor refused the plan under the same limit.
     import tnsim
-    import tnsim.queries as q
-    from tnsim.network import amplitude_network
-    from tnsim.plan import make_plan
-    from tnsim.simplify import absorb_small
+    import tnsim.queries.amplitudes as q
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
+    from tnsim.plan.driver import make_plan
     from tnsim.testing import dense_state, random_circuit
 
     c = random_circuit(14, 120, seed=3, gates=["h", "cx", "rz", "cz", "ry"])

@@ -5,6 +5,7 @@ import json
 import numpy as np
 import pytest
 
+from tnsim.circuits.qasm import write_qasm
 from tnsim.cli import main
 from tnsim.testing import dense_state, random_circuit
 
@@ -13,7 +14,7 @@ from tnsim.testing import dense_state, random_circuit
 def circuit_file(tmp_path):
     c = random_circuit(6, 30, seed=9, gates=["h", "cx", "rz", "u3", "cz", "ry"])
     path = tmp_path / "c.qasm"
-    path.write_text(c.to_qasm())
+    path.write_text(write_qasm(c))
     return c, path
 
 

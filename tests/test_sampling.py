@@ -6,11 +6,11 @@ import numpy as np
 import pytest
 from scipy.stats import chisquare
 
-import tnsim.sampling as sampling
+import tnsim.queries.sampling as sampling
 from tnsim import Circuit
 from tnsim.errors import InputError, ResourceLimitError
-from tnsim.network import TensorNetwork
-from tnsim.sampling import sample
+from tnsim.network.graph import TensorGraph
+from tnsim.queries.sampling import sample
 from tnsim.testing import dense_state, random_circuit
 
 
@@ -114,7 +114,7 @@ def test_bad_input():
             sample(c, **kwargs)
 
 
-# Gate-by-gate sampling (tnsim.gatewise): Bravyi, Gosset and Liu, "How to simulate quantum
+# Gate-by-gate sampling (tnsim.queries.gatewise): Bravyi, Gosset and Liu, "How to simulate quantum
 # measurement without computing marginals", Phys. Rev. Lett. 128, 220503 (2022), cited from
 # memory; the samples are checked against the dense output distribution all the same.
 
@@ -129,7 +129,7 @@ def test_gate_by_gate_samples_follow_the_born_rule(seed):
 
 
 def test_gate_by_gate_on_a_grid_circuit_and_against_another_distribution():
-    from tnsim.families import grid_circuit
+    from tnsim.circuits.families import grid_circuit
 
     c = grid_circuit(3, 3, 6, seed=3)
     s = sample(c, 6000, seed=1, method="gates")
@@ -153,7 +153,7 @@ def test_default_route_beyond_the_direct_width_matches_light_cone_marginals():
 
 
 def test_gate_steps_keep_the_circuit():
-    from tnsim.gatewise import gate_steps
+    from tnsim.queries.gatewise import gate_steps
 
     # Taking the steps layer by layer reorders gates only across different qubits.
     c = random_circuit(8, 70, seed=9)
@@ -166,8 +166,8 @@ def test_gate_steps_keep_the_circuit():
 
 
 def test_layer_network_with_steps_taken_is_the_partial_circuit():
-    from tnsim.circuit import Operation
-    from tnsim.gatewise import _layer_network, gate_steps, step_tensor
+    from tnsim.circuits.circuit import Operation
+    from tnsim.queries.gatewise import _layer_network, gate_steps, step_tensor
 
     c = random_circuit(7, 50, seed=4)
     steps = gate_steps(c)
@@ -184,7 +184,7 @@ def test_layer_network_with_steps_taken_is_the_partial_circuit():
             arrays[lay.step_leaf[j]] = step_tensor(steps[j])
         keep = [k for k in range(len(arrays)) if k not in lay.bit_leaf.values()]
         wires = tuple(net.indices[lay.bit_leaf[q]][0] for q in lay.qubits)
-        state = TensorNetwork(
+        state = TensorGraph(
             [arrays[k] for k in keep],
             [net.indices[k] for k in keep],
             net.size,
@@ -202,7 +202,7 @@ def test_layer_network_with_steps_taken_is_the_partial_circuit():
 
 
 def test_step_tensor_is_the_product_of_the_step_gates():
-    from tnsim.gatewise import gate_steps, step_tensor
+    from tnsim.queries.gatewise import gate_steps, step_tensor
 
     # Against the step's gates multiplied as 4x4 Kronecker products with numpy (qubit 0 is the
     # more significant bit; a gate on qubits (1, 0) is conjugated by the swap).
@@ -236,7 +236,7 @@ def test_gate_by_gate_fits_a_small_memory_limit_or_says_why():
 
 
 def test_diagonal_steps_are_taken_without_a_redraw(monkeypatch):
-    import tnsim.gatewise as gatewise
+    import tnsim.queries.gatewise as gatewise
 
     calls = []
     original = gatewise._draw
@@ -258,8 +258,8 @@ def test_diagonal_steps_are_taken_without_a_redraw(monkeypatch):
 def test_gate_by_gate_samples_do_not_depend_on_the_plan(monkeypatch):
     # Found in development: taking a layer's steps in the order of the tree's leaves made the
     # samples of a seed depend on the plan, which comes from a time-limited search.
-    import tnsim.gatewise as gatewise
-    from tnsim.plan import greedy_tree, make_plan
+    import tnsim.queries.gatewise as gatewise
+    from tnsim.plan.driver import greedy_tree, make_plan
 
     c = random_circuit(10, 80, seed=11)
     first = sample(c, 300, seed=4, method="gates")
@@ -284,9 +284,9 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     # batched runs of write-heavy trees are far slower than their FLOPs at the matmul rate,
     # so plans ~10x too costly were kept and 7x7x8 sampling time varied 6x between runs.
     # The decision now lives in plan_for_runs (used for every layer).
-    import tnsim.gatewise as gatewise
-    import tnsim.plan.forecast as forecast
-    from tnsim.plan import make_plan
+    import tnsim.execution.timemodel as forecast
+    import tnsim.queries.gatewise as gatewise
+    from tnsim.plan.driver import make_plan
     from tnsim.plan.search import WRITE_FLOPS
 
     c = random_circuit(8, 60, seed=2)

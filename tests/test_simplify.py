@@ -4,17 +4,18 @@ import numpy as np
 import pytest
 
 from tnsim import Circuit
-from tnsim.network import TensorNetwork, amplitude_network
+from tnsim.network.builders import amplitude_network
+from tnsim.network.graph import TensorGraph
+from tnsim.network.simplify import _einsum_pair, absorb_small
 from tnsim.plan.random_networks import random_arrays, random_network
-from tnsim.simplify import _einsum_pair, absorb_small
 from tnsim.testing import random_circuit
 
 
 @pytest.mark.parametrize("seed", range(6))
 def test_absorb_small_keeps_the_value_of_random_networks(seed):
-    # Reference: the unsimplified network contracted by numpy.einsum (TensorNetwork.dense).
+    # Reference: the unsimplified network contracted by numpy.einsum (TensorGraph.dense).
     inputs, output, size = random_network(12, num_open=seed % 3, hyper=0.4, seed=seed)
-    net = TensorNetwork(random_arrays(inputs, size, seed=seed), inputs, size, output)
+    net = TensorGraph(random_arrays(inputs, size, seed=seed), inputs, size, output)
     small = absorb_small(net)
     assert len(small) <= len(net)
     np.testing.assert_allclose(small.dense(), net.dense(), rtol=1e-10, atol=1e-12)

@@ -5,11 +5,11 @@ import pytest
 from scipy.stats import kstest
 
 from tnsim import Circuit
+from tnsim.circuits.families import brickwork, grid_circuit
 from tnsim.errors import InputError
-from tnsim.families import brickwork, grid_circuit
-from tnsim.sampling import sample
+from tnsim.queries.sampling import sample
+from tnsim.queries.xeb import scaled_probabilities, xeb
 from tnsim.testing import dense_state
-from tnsim.xeb import scaled_probabilities, xeb
 
 N = 12
 CIRCUIT = grid_circuit(3, 4, 16, seed=7)  # 16 cycles on a 3x4 grid: anti-concentrated

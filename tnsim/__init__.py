@@ -1,9 +1,18 @@
-"""tnsim: tensor-network contraction for wide, shallow quantum circuits."""
+"""tnsim: tensor-network contraction for wide, shallow quantum circuits.
 
-from . import plan  # callable: tnsim.plan(circuit, bits, ...) forecasts a contraction
-from .circuit import Circuit, Operation
-from .contract import contract
-from .errors import (
+The pipeline, one folder per stage: :mod:`tnsim.circuits` → :mod:`tnsim.network`
+→ :mod:`tnsim.plan` → :mod:`tnsim.execution` → :mod:`tnsim.queries`, with the
+command line in :mod:`tnsim.cli`.  The names below are the public API; each is
+imported on first use, so ``import tnsim`` stays quick.
+"""
+
+from __future__ import annotations
+
+import importlib
+from importlib.metadata import PackageNotFoundError, version
+from typing import TYPE_CHECKING, Any
+
+from tnsim.errors import (
     CheckpointError,
     InputError,
     PlanningError,
@@ -11,39 +20,82 @@ from .errors import (
     ResourceLimitError,
     TnsimError,
 )
-from .observables import Observable, PauliTerm, parse_observable
-from .plan.optimizer import Planner
-from .qasm import read_qasm, write_qasm
-from .queries import amplitude, amplitudes, expectation, marginal, maxcut_energy
-from .runconfig import run_options
-from .sampling import sample
-from .xeb import XebResult, xeb
+
+try:
+    __version__ = version("tnsim")
+except PackageNotFoundError:  # running from a source tree that was never installed
+    __version__ = "0+unknown"
+
+#: Public name -> module that defines it (imported when the name is first used).
+_PUBLIC = {
+    "Circuit": "tnsim.circuits.circuit",
+    "Operation": "tnsim.circuits.circuit",
+    "read_qasm": "tnsim.circuits.qasm",
+    "write_qasm": "tnsim.circuits.qasm",
+    "Scaled": "tnsim.network.scaled",
+    "TensorGraph": "tnsim.network.graph",
+    "PairTree": "tnsim.plan.tree",
+    "Plan": "tnsim.plan.driver",
+    "make_plan": "tnsim.plan.driver",
+    "Planner": "tnsim.plan.optimizer",
+    "run_options": "tnsim.execution.options",
+    "amplitude": "tnsim.queries.amplitudes",
+    "amplitudes": "tnsim.queries.amplitudes",
+    "iter_amplitudes": "tnsim.queries.amplitudes",
+    "marginal": "tnsim.queries.marginals",
+    "expectation": "tnsim.queries.expectation",
+    "maxcut_energy": "tnsim.queries.expectation",
+    "Observable": "tnsim.queries.observables",
+    "PauliTerm": "tnsim.queries.observables",
+    "parse_observable": "tnsim.queries.observables",
+    "sample": "tnsim.queries.sampling",
+    "xeb": "tnsim.queries.xeb",
+    "XebResult": "tnsim.queries.xeb",
+    "forecast": "tnsim.queries.forecast",
+    "ForecastReport": "tnsim.queries.forecast",
+    "contract": "tnsim.queries.contract",
+}
 
 __all__ = [
-    "Circuit",
-    "Operation",
-    "amplitude",
-    "amplitudes",
-    "marginal",
-    "expectation",
-    "maxcut_energy",
-    "sample",
-    "xeb",
-    "XebResult",
-    "Observable",
-    "PauliTerm",
-    "parse_observable",
+    *_PUBLIC,
     "TnsimError",
     "InputError",
     "QasmError",
     "PlanningError",
     "ResourceLimitError",
     "CheckpointError",
-    "read_qasm",
-    "write_qasm",
-    "run_options",
-    "plan",
-    "contract",
-    "Planner",
+    "__version__",
 ]
-__version__ = "0.1.0"
+
+
+def __getattr__(name: str) -> Any:
+    """Import a public name's module on first use (PEP 562)."""
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'tnsim' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_PUBLIC))
+
+
+if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
+    from tnsim.circuits.circuit import Circuit, Operation
+    from tnsim.circuits.qasm import read_qasm, write_qasm
+    from tnsim.execution.options import run_options
+    from tnsim.network.graph import TensorGraph
+    from tnsim.network.scaled import Scaled
+    from tnsim.plan.driver import Plan, make_plan
+    from tnsim.plan.optimizer import Planner
+    from tnsim.plan.tree import PairTree
+    from tnsim.queries.amplitudes import amplitude, amplitudes, iter_amplitudes
+    from tnsim.queries.contract import contract
+    from tnsim.queries.expectation import expectation, maxcut_energy
+    from tnsim.queries.forecast import ForecastReport, forecast
+    from tnsim.queries.marginals import marginal
+    from tnsim.queries.observables import Observable, PauliTerm, parse_observable
+    from tnsim.queries.sampling import sample
+    from tnsim.queries.xeb import XebResult, xeb

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .circuit import Circuit
-from .gates import GATES
+from tnsim.circuits.circuit import Circuit
+from tnsim.circuits.gates import GATES
 
 __all__ = ["random_circuit", "dense_state"]
 

@@ -17,7 +17,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
-from .builder import PathBuilder
+from tnsim.plan.builder import PathBuilder
 
 __all__ = ["elimination_order", "tree_from_order", "elimination_path"]
 

@@ -6,14 +6,14 @@ from collections.abc import Mapping, Sequence
 
 import opt_einsum.paths as oe_paths
 
-from .tree import ContractionTree
+from tnsim.plan.tree import PairTree
 
 __all__ = ["greedy_tree"]
 
 
 def greedy_tree(
     inputs: Sequence[Sequence[int]], output: Sequence[int], size: Mapping[int, int]
-) -> ContractionTree:
+) -> PairTree:
     """Plan with opt_einsum's greedy optimizer.
 
     Examples
@@ -24,6 +24,6 @@ def greedy_tree(
     ins = tuple(tuple(ix) for ix in inputs)
     out = tuple(output)
     if len(ins) == 1:
-        return ContractionTree(ins, out, dict(size), ())
+        return PairTree(ins, out, dict(size), ())
     linear = oe_paths.greedy([frozenset(ix) for ix in ins], frozenset(out), dict(size))
-    return ContractionTree(ins, out, dict(size), tuple(oe_paths.linear_to_ssa(linear)))
+    return PairTree(ins, out, dict(size), tuple(oe_paths.linear_to_ssa(linear)))

@@ -10,7 +10,7 @@ from collections.abc import Collection, Mapping
 
 import opt_einsum.paths as oe_paths
 
-from .tree import ssa_to_linear
+from tnsim.plan.tree import ssa_to_linear
 
 __all__ = ["Planner"]
 
@@ -23,13 +23,13 @@ class Planner(oe_paths.PathOptimizer):
     time_budget : float, optional
         Seconds of search per call; default: exact on at most 14 tensors,
         otherwise a budget growing with the greedy cost (see
-        :func:`tnsim.plan.plan_path`).
+        :func:`tnsim.plan.driver.plan_path`).
     seed : int
         Seed of every random choice.
     memory_limit : int, optional
         Bytes; trees whose live intermediates exceed it are penalised by
         their slicing overhead (a path cannot carry slices; use
-        :func:`tnsim.contract` to slice).  opt_einsum's own per-call
+        :func:`tnsim.queries.contract` to slice).  opt_einsum's own per-call
         ``memory_limit`` (elements of the largest intermediate) is converted
         with ``itemsize`` and the smaller limit is used.
     max_trials : int, optional
@@ -38,9 +38,9 @@ class Planner(oe_paths.PathOptimizer):
         Bytes per element for memory figures (16: complex128).
     progress : bool
         Show a progress bar while searching.
-    objective : {"flops", "time", "size", "combo"}
-        What the search minimises (default ``"flops"``, opt_einsum's own
-        measure; ``"time"`` adds a cost per element written, see
+    objective : {"operations", "runtime", "footprint"}
+        What the search minimises (default ``"operations"``, i.e. FLOPs, opt_einsum's own
+        measure; ``"runtime"`` adds a cost per element written, see
         :func:`tnsim.plan.search.score`).
 
     Attributes
@@ -65,7 +65,7 @@ class Planner(oe_paths.PathOptimizer):
         max_trials: int | None = None,
         itemsize: int = 16,
         progress: bool = False,
-        objective: str = "flops",
+        objective: str = "operations",
     ):
         self.time_budget = time_budget
         self.seed = seed
@@ -84,7 +84,7 @@ class Planner(oe_paths.PathOptimizer):
         memory_limit: int | None = None,
     ) -> list[tuple[int, ...]]:
         """Return a linear path (pairs of positions in the current operand list)."""
-        from . import plan_path
+        from tnsim.plan.driver import plan_path
 
         if len(inputs) == 1:
             return [(0,)]

@@ -27,7 +27,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from .builder import PathBuilder
+from tnsim.plan.builder import PathBuilder
 
 __all__ = ["bisection_path", "sweep_order", "sweep_path"]
 

@@ -18,7 +18,7 @@ from collections.abc import Mapping, Sequence
 
 import opt_einsum.paths as oe_paths
 
-from .tree import linear_to_ssa, step_flops, step_labels, tree_cost
+from tnsim.plan.tree import linear_to_ssa, step_flops, step_labels, tree_cost
 
 __all__ = ["reoptimize_path"]
 

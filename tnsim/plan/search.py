@@ -21,11 +21,11 @@ from dataclasses import dataclass
 import numpy as np
 import opt_einsum.paths as oe_paths
 
-from .builder import plan_coarse
-from .elimination import elimination_path
-from .partition import bisection_path, sweep_path
-from .reoptimize import reoptimize_path
-from .tree import TreeCost, join_pairwise, tree_cost
+from tnsim.plan.builder import plan_coarse
+from tnsim.plan.elimination import elimination_path
+from tnsim.plan.partition import bisection_path, sweep_path
+from tnsim.plan.reoptimize import reoptimize_path
+from tnsim.plan.tree import TreeCost, join_pairwise, tree_cost
 
 __all__ = [
     "SearchResult",
@@ -36,7 +36,7 @@ __all__ = [
     "score",
 ]
 
-OBJECTIVES = ("flops", "time", "size", "combo")
+OBJECTIVES = ("operations", "runtime", "footprint")
 
 WRITE_FLOPS = 400
 """FLOPs that writing one element of an intermediate costs in time, at the matmul rate.
@@ -78,13 +78,13 @@ class SearchResult:
     alternatives: tuple[tuple[tuple[tuple[int, int], ...], str], ...] = ()
 
 
-def score(cost: TreeCost, objective: str = "flops", memory_limit: int | None = None) -> float:
+def score(cost: TreeCost, objective: str = "operations", memory_limit: int | None = None) -> float:
     """Objective value of a tree's cost (lower is better).
 
-    ``flops``: the FLOPs; ``time``: FLOPs plus :data:`WRITE_FLOPS` per element
-    written (a model of run time in FLOPs at the matmul rate); ``size``: the
-    largest intermediate, then FLOPs; ``combo``: ``log2 FLOPs + log2 written``.
-    With ``memory_limit`` (bytes) a tree whose peak exceeds it is charged the
+    ``"operations"``: the FLOPs; ``"runtime"``: FLOPs plus :data:`WRITE_FLOPS`
+    per element written (a model of run time in FLOPs at the matmul rate);
+    ``"footprint"``: the largest intermediate, then FLOPs.  With
+    ``memory_limit`` (bytes) a tree whose peak exceeds it is charged the
     slicing it would need: its value times ``peak / limit`` (slicing by a
     factor ``k`` costs at least ``k`` slices of FLOPs each no smaller than
     ``1/k``; the factor estimates the overhead from above for balanced trees).
@@ -92,21 +92,19 @@ def score(cost: TreeCost, objective: str = "flops", memory_limit: int | None = N
     Examples
     --------
     >>> c = TreeCost(800, 32, 1.0, 2, 2, 64, 16)
-    >>> score(c), score(c, memory_limit=16), score(c, "time")
+    >>> score(c), score(c, memory_limit=16), score(c, "runtime")
     (800.0, 1600.0, 1600.0)
     """
+    if objective not in OBJECTIVES:
+        raise ValueError(f"unknown objective {objective!r}; use one of {OBJECTIVES}")
     flops = float(cost.flops)
-    if objective == "time":
+    if objective == "runtime":
         flops += WRITE_FLOPS * cost.written
     if memory_limit is not None and cost.peak_bytes > memory_limit:
         flops *= cost.peak_bytes / memory_limit
-    if objective in ("flops", "time"):
-        return flops
-    if objective == "size":
+    if objective == "footprint":
         return cost.largest * 1e30 + flops
-    if objective == "combo":
-        return math.log2(max(flops, 1)) + math.log2(max(cost.written, 1))
-    raise ValueError(f"unknown objective {objective!r}; use one of {OBJECTIVES}")
+    return flops
 
 
 def random_greedy_path(
@@ -231,7 +229,7 @@ def search_path(
     time_budget: float | None = 1.0,
     max_trials: int | None = None,
     seed: int = 0,
-    objective: str = "flops",
+    objective: str = "operations",
     memory_limit: int | None = None,
     itemsize: int = 16,
     methods: Sequence[str] = METHODS,
@@ -253,7 +251,7 @@ def search_path(
         Stop after this many trials.
     seed : int
         Seeds the single numpy generator behind every random choice.
-    objective : {"flops", "time", "size", "combo"}
+    objective : {"operations", "runtime", "footprint"}
         See :func:`score`.
     memory_limit : int, optional
         Bytes; trees whose peak exceeds it are charged their slicing overhead.

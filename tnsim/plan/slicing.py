@@ -7,7 +7,7 @@ least 1 for a fixed tree; re-planning can find a cheaper tree) while the peak
 memory shrinks.  Labels are chosen greedily: each time, among
 the labels of the largest intermediates, the one with the smallest growth of
 total FLOPs per unit of peak reduction (both in log) is added, until the peak
-fits.  :func:`choose_slices` slices a fixed tree; :func:`slice_and_replan`
+fits.  :func:`choose_slices` slices a fixed tree; :func:`slice_with_replanning`
 re-plans the tree's sub-trees after each label, so the tree and the slices
 adapt to each other (slicing interleaved with local re-planning, as in Huang
 et al., "Efficient parallelization of tensor network contraction for
@@ -19,11 +19,11 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 
-from ..errors import ResourceLimitError
-from .reoptimize import reoptimize_path
-from .tree import TreeCost, memory_order, step_labels, tree_cost, without_labels
+from tnsim.errors import ResourceLimitError
+from tnsim.plan.reoptimize import reoptimize_path
+from tnsim.plan.tree import TreeCost, memory_order, step_labels, tree_cost, without_labels
 
-__all__ = ["choose_slices", "slice_and_replan"]
+__all__ = ["choose_slices", "slice_with_replanning"]
 
 
 def _candidates(inputs, output, size, path, sliced: set[int], top: int) -> list[int]:
@@ -116,7 +116,7 @@ def _next_label(inputs, output, size, path, sliced, cost, itemsize, candidates, 
     return best[1], best[2]
 
 
-def slice_and_replan(
+def slice_with_replanning(
     inputs: Sequence[Sequence[int]],
     output: Sequence[int],
     size: Mapping[int, int],
@@ -160,7 +160,7 @@ def slice_and_replan(
     Examples
     --------
     >>> ins, size = [(0, 1), (1, 2), (2, 0)], {0: 4, 1: 4, 2: 4}
-    >>> sliced, path, cost, k = slice_and_replan(ins, (), size, [(0, 1), (2, 3)], 16 * 24)
+    >>> sliced, path, cost, k = slice_with_replanning(ins, (), size, [(0, 1), (2, 3)], 16 * 24)
     >>> len(sliced), cost.peak_bytes <= 16 * 24, k
     (1, True, 4)
     """

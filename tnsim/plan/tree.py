@@ -5,7 +5,7 @@ A tree is stored as a path in single-static-assignment (SSA) form: leaves are
 The steps are executed in the order given, so the path also fixes which
 intermediates are alive at the same time.
 
-Cost model (the one :mod:`tnsim.execute` realises), for one pairwise step
+Cost model (the one :mod:`tnsim.execution.slices` realises), for one pairwise step
 joining operands with label sets ``A`` and ``B``, where ``keep`` holds the
 labels still needed after the step (by another tensor or the output):
 
@@ -28,10 +28,9 @@ the operand goes right after, then the result is made next to both copies; the
 root's final reordered copy counts too.  Copies of inputs count; the input
 tensors themselves do not (:attr:`TreeCost.input_bytes` gives them).  The
 executor skips copies it does not need, so its own count
-(:func:`tnsim.execute.peak_memory`) is never above this one.  ``width``
+(:func:`tnsim.execution.steps.peak_memory`) is never above this one.  ``width``
 is ``log2`` of the largest intermediate in elements; ``written`` is the total
-number of elements of all intermediates.
-"""
+number of elements of all intermediates."""
 
 from __future__ import annotations
 
@@ -41,9 +40,8 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
 __all__ = [
-    "ContractionTree",
+    "PairTree",
     "TreeCost",
-    "relabel_compact",
     "tree_cost",
     "step_flops",
     "step_labels",
@@ -216,7 +214,7 @@ def tree_cost(
 
 
 @dataclass(frozen=True)
-class ContractionTree:
+class PairTree:
     """A full binary contraction tree over a network's tensors.
 
     Attributes
@@ -233,7 +231,7 @@ class ContractionTree:
 
     Examples
     --------
-    >>> t = ContractionTree(((0, 1), (1, 2), (2,)), (0,), {0: 2, 1: 2, 2: 2}, ((1, 2), (0, 3)))
+    >>> t = PairTree(((0, 1), (1, 2), (2,)), (0,), {0: 2, 1: 2, 2: 2}, ((1, 2), (0, 3)))
     >>> t.linear_path()
     [(1, 2), (0, 1)]
     >>> t.cost().flops
@@ -276,7 +274,7 @@ class ContractionTree:
         output: Sequence[int],
         size: Mapping[int, int],
         linear: Sequence[Sequence[int]],
-    ) -> ContractionTree:
+    ) -> PairTree:
         """Build a tree from an opt_einsum linear path of pairs (and singletons, dropped)."""
         ins = tuple(tuple(ix) for ix in inputs)
         return cls(ins, tuple(output), dict(size), linear_to_ssa(linear, len(ins)))
@@ -344,21 +342,6 @@ def join_pairwise(ids: Sequence[int], out: list[tuple[int, int]], nxt: int) -> t
         cur = nxt
         nxt += 1
     return cur, nxt
-
-
-def relabel_compact(
-    indices: Sequence[Sequence[int]], output: Sequence[int]
-) -> tuple[list[tuple[int, ...]], tuple[int, ...]]:
-    """Renumber labels to ``0, 1, 2, ...`` in order of first appearance.
-
-    Examples
-    --------
-    >>> relabel_compact([(7, 3), (3, 9)], (9,))
-    ([(0, 1), (1, 2)], (2,))
-    """
-    table: dict[int, int] = {}
-    new = [tuple(table.setdefault(i, len(table)) for i in ix) for ix in indices]
-    return new, tuple(table.setdefault(i, len(table)) for i in output)
 
 
 def memory_order(

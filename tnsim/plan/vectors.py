@@ -1,7 +1,7 @@
 """Plan a network with many one-label vectors as if each were merged into a neighbour.
 
-Networks with output bits given per batch member (:mod:`tnsim.batch`,
-:mod:`tnsim.gatewise`) keep each bit as its own vector leaf, so that the leaf
+Networks with output bits given per batch member (:mod:`tnsim.execution.batch`,
+:mod:`tnsim.queries.gatewise`) keep each bit as its own vector leaf, so that the leaf
 can change.  Planners search such networks poorly: every vector is one more
 leaf to place, and the time-limited searches found plans up to 4x costlier
 than for the same network with the vectors merged into their neighbours (7x7
@@ -15,27 +15,27 @@ import dataclasses
 from collections import Counter
 from collections.abc import Callable, Sequence
 
-from ..network import TensorNetwork
-from . import Plan
-from .tree import ContractionTree
+from tnsim.network.graph import TensorGraph
+from tnsim.plan.driver import Plan
+from tnsim.plan.tree import PairTree
 
 __all__ = ["plan_vectors_first"]
 
 
 def plan_vectors_first(
-    network: TensorNetwork, vectors: Sequence[int], planner: Callable[[TensorNetwork], Plan]
+    network: TensorGraph, vectors: Sequence[int], planner: Callable[[TensorGraph], Plan]
 ) -> Plan:
     """Plan ``network`` with each leaf of ``vectors`` contracted first into a neighbour.
 
     Parameters
     ----------
-    network : TensorNetwork
+    network : TensorGraph
         The network; each leaf in ``vectors`` has a single label.
     vectors : sequence of int
         Leaves to merge first, each into the first other leaf holding its label
         (a vector with no such leaf is planned as a leaf of its own).
     planner : callable
-        Plans the network with the vectors merged (e.g. :func:`tnsim.plan.make_plan`).
+        Plans the network with the vectors merged (e.g. :func:`tnsim.plan.driver.make_plan`).
 
     Returns
     -------
@@ -45,9 +45,9 @@ def plan_vectors_first(
     Examples
     --------
     >>> import numpy as np
-    >>> from tnsim.plan import make_plan
+    >>> from tnsim.plan.driver import make_plan
     >>> m, v = np.ones((2, 3)), np.ones(3)
-    >>> net = TensorNetwork([m, v, np.ones(2)], [(0, 1), (1,), (0,)], {0: 2, 1: 3})
+    >>> net = TensorGraph([m, v, np.ones(2)], [(0, 1), (1,), (0,)], {0: 2, 1: 3})
     >>> plan_vectors_first(net, [1], make_plan).tree.path
     ((0, 1), (3, 2))
     """
@@ -75,7 +75,7 @@ def plan_vectors_first(
         if count[label] == 1:  # only the holder has it now: summed in the merge
             labels[holder].remove(label)
     # Planners read only labels and sizes: the holders keep their own arrays here.
-    reduced = TensorNetwork(
+    reduced = TensorGraph(
         [network.arrays[k] for k in kept],
         [tuple(labels[k]) for k in kept],
         network.size,
@@ -88,7 +88,7 @@ def plan_vectors_first(
     start = len(ins) + len(path)
     for x, y in plan.tree.path:
         path.append(tuple(ids[i] if i < len(kept) else start + i - len(kept) for i in (x, y)))
-    tree = ContractionTree(tuple(ins), tuple(network.output), dict(network.size), tuple(path))
+    tree = PairTree(tuple(ins), tuple(network.output), dict(network.size), tuple(path))
     extended = tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
     merged = plan.tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
     return dataclasses.replace(

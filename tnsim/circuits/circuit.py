@@ -1,0 +1,241 @@
+"""The circuit model: an ordered list of operations on numbered qubits."""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from tnsim.circuits.gates import GATES, gate_matrix, is_unitary
+from tnsim.errors import InputError
+
+__all__ = ["Operation", "Circuit"]
+
+
+@dataclass(frozen=True)
+class Operation:
+    """One gate applied to qubits.
+
+    Attributes
+    ----------
+    name : str
+        Gate name (a key of :data:`tnsim.circuits.gates.GATES`), or any label for a
+        custom unitary.
+    qubits : tuple of int
+        The qubits it acts on; the first is the most significant bit of the matrix.
+    params : tuple of float
+        Real parameters of a named gate.
+    custom : numpy.ndarray or None
+        The matrix of a custom unitary (``None`` for named gates).
+    """
+
+    name: str
+    qubits: tuple[int, ...]
+    params: tuple[float, ...] = ()
+    custom: np.ndarray | None = field(default=None, compare=False, repr=False)
+
+    def matrix(self) -> np.ndarray:
+        """Return the operation's unitary matrix (complex128)."""
+        if self.custom is not None:
+            return self.custom
+        return gate_matrix(self.name, self.params)
+
+    @property
+    def diagonal(self) -> bool:
+        """Whether the matrix is diagonal."""
+        if self.custom is not None:
+            return bool(np.count_nonzero(self.custom - np.diag(np.diag(self.custom))) == 0)
+        return GATES[self.name].diagonal
+
+
+def _builder(name: str):
+    spec = GATES[name]
+
+    def method(self: Circuit, *args: float) -> Circuit:
+        if len(args) != spec.num_qubits + spec.num_params:
+            raise InputError(
+                f"{name} takes {spec.num_params} parameter(s) then {spec.num_qubits} "
+                f"qubit(s), got {len(args)} argument(s)"
+            )
+        params, qubits = args[: spec.num_params], args[spec.num_params :]
+        return self.append(name, qubits, params)
+
+    method.__name__ = name
+    params = "".join(f"p{i}, " for i in range(spec.num_params))
+    qubits = ", ".join(f"q{i}" for i in range(spec.num_qubits))
+    method.__doc__ = f"Append ``{name}``: call as ``circuit.{name}({params}{qubits})``."
+    return method
+
+
+class Circuit:
+    """An ordered list of gates on ``num_qubits`` qubits, all starting in ``|0>``.
+
+    Every gate of :data:`tnsim.circuits.gates.GATES` has a builder method taking the
+    gate's parameters first, then its qubits; builders return the circuit so
+    calls chain.
+
+    Parameters
+    ----------
+    num_qubits : int
+        Number of qubits (at least 1).
+
+    Examples
+    --------
+    >>> c = Circuit(3).h(0).cx(0, 1).cx(1, 2)
+    >>> len(c), c.num_qubits
+    (3, 3)
+    >>> c.rz(0.5, 2).ops[-1]
+    Operation(name='rz', qubits=(2,), params=(0.5,))
+    """
+
+    def __init__(self, num_qubits: int):
+        if isinstance(num_qubits, bool) or not isinstance(num_qubits, numbers.Integral):
+            raise InputError(f"num_qubits must be an integer, got {num_qubits!r}")
+        if num_qubits < 1:
+            raise InputError(f"num_qubits must be at least 1, got {num_qubits}")
+        self.num_qubits = int(num_qubits)
+        self.ops: list[Operation] = []
+
+    for _name in GATES:
+        locals()[_name] = _builder(_name)
+    del _name
+
+    def _check_qubits(self, name: str, qubits: Iterable[int], arity: int) -> tuple[int, ...]:
+        qs = tuple(qubits)
+        if len(qs) != arity:
+            raise InputError(f"gate '{name}' acts on {arity} qubit(s), got {len(qs)}: {qs}")
+        for q in qs:
+            if isinstance(q, bool) or not isinstance(q, numbers.Integral):
+                raise InputError(f"gate '{name}': qubit index {q!r} is not an integer")
+            if not 0 <= q < self.num_qubits:
+                raise InputError(
+                    f"gate '{name}': qubit {q} is out of range for a {self.num_qubits}-qubit "
+                    f"circuit (valid: 0..{self.num_qubits - 1})"
+                )
+        if len(set(qs)) != len(qs):
+            raise InputError(f"gate '{name}' repeats a qubit: {qs}")
+        return tuple(int(q) for q in qs)
+
+    def append(self, name: str, qubits: Sequence[int], params: Sequence[float] = ()) -> Circuit:
+        """Append the named gate on ``qubits`` with real ``params``; return ``self``.
+
+        Raises
+        ------
+        InputError
+            Unknown gate, wrong qubit or parameter count, qubit out of range,
+            or a parameter that is not a finite real number.
+        """
+        spec = GATES.get(name)
+        if spec is None:
+            raise InputError(f"unknown gate '{name}'; known gates: {', '.join(sorted(GATES))}")
+        qs = self._check_qubits(name, qubits, spec.num_qubits)
+        ps = tuple(params)
+        if len(ps) != spec.num_params:
+            raise InputError(f"gate '{name}' takes {spec.num_params} parameter(s), got {len(ps)}")
+        for p in ps:
+            if isinstance(p, bool) or not isinstance(p, numbers.Real) or not np.isfinite(p):
+                raise InputError(f"gate '{name}': parameter {p!r} is not a finite real number")
+        self.ops.append(Operation(name, qs, tuple(float(p) for p in ps)))
+        return self
+
+    def unitary(self, matrix: np.ndarray, qubits: Sequence[int], name: str = "unitary") -> Circuit:
+        """Append any k-qubit unitary; the first qubit is the matrix's most significant bit.
+
+        Raises
+        ------
+        InputError
+            If the matrix is not a ``2**k`` square unitary (to 1e-8).
+        """
+        m = np.array(matrix, dtype=complex)
+        qs = tuple(qubits)
+        if m.ndim != 2 or m.shape != (2 ** len(qs), 2 ** len(qs)):
+            raise InputError(
+                f"unitary on {len(qs)} qubit(s) needs a {2 ** len(qs)}x{2 ** len(qs)} matrix, "
+                f"got shape {m.shape}"
+            )
+        if not is_unitary(m):
+            err = np.abs(m.conj().T @ m - np.eye(m.shape[0])).max()
+            raise InputError(
+                f"matrix for '{name}' on qubits {qs} is not unitary (max |U†U - I| = {err:.3g}); "
+                "pass a unitary matrix"
+            )
+        qs = self._check_qubits(name, qs, len(qs))
+        m.setflags(write=False)
+        self.ops.append(Operation(name, qs, (), m))
+        return self
+
+    @classmethod
+    def from_ops(cls, num_qubits: int, ops: Iterable) -> Circuit:
+        """Build a circuit from plain operations.
+
+        Parameters
+        ----------
+        num_qubits : int
+            Number of qubits.
+        ops : iterable
+            Items are ``(name, qubits)`` or ``(name, qubits, params)`` tuples,
+            mappings with keys ``name``, ``qubits`` and optionally ``params`` or
+            ``matrix`` (a custom unitary), or :class:`Operation` objects.
+
+        Examples
+        --------
+        >>> Circuit.from_ops(2, [("h", [0]), ("cx", [0, 1]), {"name": "rz", "qubits": [1],
+        ...                      "params": [0.1]}]).ops[1].name
+        'cx'
+        """
+        circuit = cls(num_qubits)
+        for k, op in enumerate(ops):
+            circuit._add_plain(k, op)
+        return circuit
+
+    def _add_plain(self, k: int, op) -> None:
+        if isinstance(op, Operation):
+            if op.custom is not None:
+                self.unitary(op.custom, op.qubits, op.name)
+            else:
+                self.append(op.name, op.qubits, op.params)
+            return
+        if isinstance(op, Mapping):
+            name, qubits = op.get("name"), op.get("qubits")
+            params, matrix = op.get("params", ()), op.get("matrix")
+        elif isinstance(op, (tuple, list)) and len(op) in (2, 3):
+            name, qubits, params, matrix = op[0], op[1], op[2] if len(op) == 3 else (), None
+        else:
+            raise InputError(f"operation {k}: expected (name, qubits[, params]), got {op!r}")
+        if not isinstance(name, str) or qubits is None:
+            raise InputError(f"operation {k}: needs a name and qubits, got {op!r}")
+        if isinstance(qubits, numbers.Integral):
+            qubits = (qubits,)
+        try:
+            if matrix is not None:
+                self.unitary(matrix, qubits, name)
+            else:
+                self.append(name.lower(), qubits, params)
+        except InputError as exc:
+            raise InputError(f"operation {k}: {exc}") from None
+
+    def copy(self) -> Circuit:
+        """Return a shallow copy (operations are immutable)."""
+        c = Circuit(self.num_qubits)
+        c.ops = list(self.ops)
+        return c
+
+    def depth(self) -> int:
+        """Number of layers when each gate goes as early as its qubits allow."""
+        level = [0] * self.num_qubits
+        for op in self.ops:
+            d = 1 + max(level[q] for q in op.qubits)
+            for q in op.qubits:
+                level[q] = d
+        return max(level, default=0)
+
+    def __len__(self) -> int:
+        return len(self.ops)
+
+    def __iter__(self) -> Iterator[Operation]:
+        return iter(self.ops)
+
+    def __repr__(self) -> str:
+        return f"Circuit(num_qubits={self.num_qubits}, ops={len(self.ops)})"

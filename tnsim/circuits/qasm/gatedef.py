@@ -1,0 +1,141 @@
+"""Parsing ``gate`` definitions into :class:`~tnsim.circuits.qasm.definitions.Gate` values."""
+
+from __future__ import annotations
+
+from tnsim.circuits.qasm.definitions import EXTENSION_TOKENS, MAX_GATE_DEPTH, SIZE_CAP, Call, Gate
+from tnsim.circuits.qasm.header import KEYWORDS, UNITARY_ONLY
+from tnsim.circuits.qasm.lexer import Token, describe
+from tnsim.circuits.qasm.parser import TokenParser
+
+__all__ = ["DefinitionParser"]
+
+
+class DefinitionParser(TokenParser):
+    """Adds ``gate name(params) qubits { body }`` to a
+    :class:`~tnsim.circuits.qasm.parser.TokenParser`."""
+
+    def gate_definition(self) -> None:
+        self.recording = []
+        self.advance()
+        name = self.expect_id("a gate name")
+        self.check_gate_name(name)
+        params = self.id_list("(", ")", "parameter") if self.at("(") else []
+        qargs = self.id_list(None, "{", "qubit argument")
+        self.check_formals(params, qargs)
+        brace = self.tok
+        self.expect("{", f"to open the body of gate '{name.text}'")
+        body = self.gate_body(name, brace, params, qargs)
+        tokens, self.recording = tuple(self.recording), None
+        self.program.gates[name.text] = self.make_gate(name, len(params), len(qargs), body, tokens)
+
+    def check_gate_name(self, name: Token) -> None:
+        self.new_name(name, "gate")
+        existing = self.program.gates.get(name.text)
+        if existing is not None:
+            raise self.error(
+                f"gate '{name.text}' is already defined by {existing.origin}; choose another name",
+                name,
+            )
+
+    def id_list(self, opener: str | None, closer: str, what: str) -> list[Token]:
+        if opener is not None:
+            self.advance()
+            if self.at(closer):
+                self.advance()
+                return []
+        names = [self.expect_id(f"a {what} name")]
+        while self.at(","):
+            self.advance()
+            names.append(self.expect_id(f"a {what} name"))
+        if opener is not None:
+            self.expect(closer, f"to close the {what} list")
+        return names
+
+    def check_formals(self, params: list[Token], qargs: list[Token]) -> None:
+        seen: set[str] = set()
+        for tok in params + qargs:
+            self.new_name(tok, "gate parameter or argument")
+            if tok.text in seen:
+                raise self.error(f"'{tok.text}' is listed twice in the gate's signature", tok)
+            seen.add(tok.text)
+
+    def gate_body(
+        self, name: Token, brace: Token, params: list[Token], qargs: list[Token]
+    ) -> list[Call]:
+        env = {tok.text: i for i, tok in enumerate(params)}
+        formal = {tok.text: i for i, tok in enumerate(qargs)}
+        body = []
+        while not self.at("}"):
+            if self.tok.kind == "eof":
+                raise self.error(
+                    f"the body of gate '{name.text}' opened here is never closed; add '}}'", brace
+                )
+            call = self.body_statement(name.text, env, formal)
+            if call is not None:
+                body.append(call)
+        self.advance()
+        return body
+
+    def body_statement(self, owner: str, env: dict[str, int], formal: dict[str, int]):
+        tok = self.tok
+        if tok.kind != "id":
+            raise self.error(
+                f"expected a gate call in the body of '{owner}', found {describe(tok)}"
+            )
+        if tok.text in UNITARY_ONLY:
+            raise self.unsupported(tok)
+        if tok.text == "barrier":
+            self.advance()
+            self.formal_args(formal, owner)
+            self.expect(";", "after the barrier")
+            return None
+        if tok.text in KEYWORDS - {"U", "CX"}:
+            raise self.error(
+                f"'{tok.text}' cannot appear inside a gate body; only gate calls and barrier can"
+            )
+        if tok.text == owner:
+            raise self.error(
+                f"gate '{owner}' cannot call itself: a gate is defined only after its body ends"
+            )
+        gate = self.lookup(self.advance())
+        codes = self.param_list(env)
+        args = self.formal_args(formal, owner)
+        self.expect(";", f"after the call of '{tok.text}'")
+        self.check_counts(gate, tok, len(codes), len(args))
+        indices = tuple(formal[a.text] for a in args)
+        self.check_distinct(indices, args, tok.text, lambda i: f"'{args[i].text}'")
+        return Call(gate, tuple(codes), indices)
+
+    def formal_args(self, formal: dict[str, int], owner: str) -> list[Token]:
+        args = []
+        while True:
+            tok = self.expect_id(f"a qubit argument of gate '{owner}'")
+            if tok.text not in formal:
+                raise self.error(
+                    f"'{tok.text}' is not a qubit argument of gate '{owner}' "
+                    f"(its arguments: {', '.join(formal)})",
+                    tok,
+                )
+            if self.at("["):
+                raise self.error(
+                    "qubit arguments inside a gate body are the gate's own names, without indices"
+                )
+            args.append(tok)
+            if not self.at(","):
+                return args
+            self.advance()
+
+    def make_gate(self, name: Token, n_params: int, n_qubits: int, body, tokens) -> Gate:
+        line, column = self.source.where(name.offset)
+        origin = f"{self.source.name}:{line}:{column}"
+        if EXTENSION_TOKENS.get(name.text) == tokens:
+            return Gate(name.text, n_params, n_qubits, origin, native=name.text)
+        depth = 1 + max((call.gate.depth for call in body), default=0)
+        if depth > MAX_GATE_DEPTH:
+            raise self.error(
+                f"gate definitions nest deeper than {MAX_GATE_DEPTH} levels at '{name.text}'; "
+                "flatten the definitions",
+                name,
+            )
+        size = min(sum(call.gate.size for call in body), SIZE_CAP)
+        return Gate(name.text, n_params, n_qubits, origin, None, True, tuple(body), size, depth)

@@ -1,0 +1,112 @@
+"""Token-level parsing shared by every statement: expectations, gate lookup, call checks."""
+
+from __future__ import annotations
+
+from tnsim.circuits.qasm.arith import Code, parse_expression
+from tnsim.circuits.qasm.definitions import BUILTINS, Gate
+from tnsim.circuits.qasm.header import EXTENSION_DEFINITIONS, QELIB1_GATES, RESERVED
+from tnsim.circuits.qasm.lexer import Lexer, Source, Token, describe
+from tnsim.circuits.qasm.program import Arg, Program
+from tnsim.errors import QasmError
+
+__all__ = ["TokenParser"]
+
+
+class TokenParser:
+    """Reads the tokens of one file (or text) into ``program``; the helpers all parsers use."""
+
+    def __init__(self, source: Source, program: Program):
+        self.source, self.program = source, program
+        self.lexer = Lexer(source)
+        self.tok = self.lexer.next()
+        self.recording: list[tuple[str, str]] | None = None
+
+    def advance(self) -> Token:
+        tok = self.tok
+        if self.recording is not None:
+            self.recording.append((tok.kind, tok.text))
+        if tok.kind != "eof":
+            self.tok = self.lexer.next()
+        return tok
+
+    def error(self, message: str, tok: Token | None = None) -> QasmError:
+        tok = self.tok if tok is None else tok
+        return self.source.error(message, tok.offset)
+
+    def at(self, text: str) -> bool:
+        return self.tok.text == text and self.tok.kind in ("sym", "id")
+
+    def expect(self, text: str, context: str = "") -> Token:
+        if not self.at(text):
+            hint = " (every statement ends with ';')" if text == ";" else ""
+            where = f" {context}" if context else ""
+            raise self.error(f"expected '{text}'{where}, found {describe(self.tok)}{hint}")
+        return self.advance()
+
+    def expect_id(self, what: str) -> Token:
+        if self.tok.kind != "id":
+            raise self.error(f"expected {what}, found {describe(self.tok)}")
+        return self.advance()
+
+    def expect_int(self, what: str) -> tuple[int, Token]:
+        tok = self.tok
+        if tok.kind != "int":
+            raise self.error(f"expected {what} (a non-negative integer), found {describe(tok)}")
+        self.advance()
+        if len(tok.text) > 15:
+            raise self.error(f"{what} {tok.text} is too large", tok)
+        return int(tok.text), tok
+
+    def new_name(self, tok: Token, kind: str) -> None:
+        if tok.text in RESERVED:
+            raise self.error(f"'{tok.text}' is a reserved word and cannot name a {kind}", tok)
+
+    def lookup(self, tok: Token) -> Gate:
+        gate = BUILTINS.get(tok.text) or self.program.gates.get(tok.text)
+        if gate is not None:
+            return gate
+        if tok.text in QELIB1_GATES:
+            hint = "it is defined in qelib1.inc: add 'include \"qelib1.inc\";' after the header"
+        elif tok.text in EXTENSION_DEFINITIONS:
+            hint = f"define it first, e.g. as {EXTENSION_DEFINITIONS[tok.text].split(' {')[0]}"
+        elif tok.text.lower() in self.program.gates or tok.text.lower() in QELIB1_GATES:
+            hint = f"names are case-sensitive: did you mean '{tok.text.lower()}'?"
+        else:
+            hint = f"define it with 'gate {tok.text} ... {{ ... }}' before using it"
+        raise self.error(f"unknown gate '{tok.text}'; {hint}", tok)
+
+    def param_list(self, env: dict[str, int] | None) -> list[Code]:
+        if not self.at("("):
+            return []
+        self.advance()
+        codes: list[Code] = []
+        if self.at(")"):
+            self.advance()
+            return codes
+        codes.append(parse_expression(self, env))
+        while self.at(","):
+            self.advance()
+            codes.append(parse_expression(self, env))
+        self.expect(")", "to close the parameter list")
+        return codes
+
+    def check_counts(self, gate: Gate, tok: Token, n_params: int, n_qubits: int) -> None:
+        if n_params != gate.num_params:
+            raise self.error(
+                f"gate '{tok.text}' takes {gate.num_params} parameter(s), got {n_params}", tok
+            )
+        if n_qubits != gate.num_qubits:
+            raise self.error(
+                f"gate '{tok.text}' acts on {gate.num_qubits} qubit(s), got {n_qubits} argument(s)",
+                tok,
+            )
+
+    def check_distinct(self, qubits, args, gate_name: str, label) -> None:
+        if len(set(qubits)) == len(qubits):
+            return
+        for j, q in enumerate(qubits):
+            if q in qubits[:j]:
+                raise self.error(
+                    f"{label(j)} appears twice in '{gate_name}'; a gate needs distinct qubits",
+                    args[j].token if isinstance(args[j], Arg) else args[j],
+                )

@@ -1,0 +1,284 @@
+"""The slice loop: contract a planned network one slice at a time, under a memory limit.
+
+:func:`execute` checks the plan's peak memory against the limit before
+anything large is allocated, splits the slices into chunks of consecutive
+slices (:func:`tnsim.execution.executors.chunk_bounds`), runs the chunks
+serially, on local worker processes or on any executor, records finished
+chunks in a checkpoint, and adds the chunk sums in a fixed order -- so serial,
+pooled, distributed and resumed runs agree bit for bit.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable, Sequence
+from concurrent.futures import Executor
+from dataclasses import dataclass
+
+import numpy as np
+
+from tnsim.errors import InputError, ResourceLimitError
+from tnsim.execution.backends import get_backend
+from tnsim.execution.checkpoint import Checkpoint, OrderedSum, run_fingerprint
+from tnsim.execution.executors import SliceError, chunk_bounds, local_workers, run_chunks
+from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import current_options
+from tnsim.execution.progress import SliceProgress
+from tnsim.execution.steps import PairStep, compile_tree, count_flops, peak_memory
+from tnsim.execution.treerun import contract_tree
+from tnsim.network.graph import TensorGraph
+from tnsim.network.scaled import Scaled
+from tnsim.plan.tree import PairTree
+from tnsim.units import format_bytes, parse_memory
+
+__all__ = ["SliceJob", "contract_slices", "execute"]
+
+
+def _slice_arrays(
+    arrays: Sequence[np.ndarray],
+    indices: Sequence[Sequence[int]],
+    sliced: Sequence[int],
+    values: Sequence[int],
+) -> list[np.ndarray]:
+    fixed = dict(zip(sliced, values))
+    out = []
+    for arr, ix in zip(arrays, indices):
+        if any(i in fixed for i in ix):
+            arr = arr[tuple(fixed.get(i, slice(None)) for i in ix)]
+        out.append(arr)
+    return out
+
+
+@dataclass(frozen=True)
+class SliceJob:
+    """Everything a worker needs to contract slices: arrays, tree, sliced labels.
+
+    Sent once to each worker process; :func:`contract_slices` runs a chunk of it.
+    """
+
+    arrays: tuple[np.ndarray, ...]
+    tree: PairTree
+    sliced: tuple[int, ...]
+    backend: str = "numpy"
+
+    @property
+    def dims(self) -> tuple[int, ...]:
+        """Sizes of the sliced labels."""
+        return tuple(self.tree.size[i] for i in self.sliced)
+
+    def describe(self, k: int) -> str:
+        """Name slice ``k``: its number and the value of each sliced label."""
+        values = np.unravel_index(k, self.dims) if self.sliced else ()
+        fixed = ", ".join(f"label {i}={int(v)}" for i, v in zip(self.sliced, values))
+        return f"slice {k} of {math.prod(self.dims)}" + (f" ({fixed})" if fixed else "")
+
+
+_COMPILED: dict = {}
+
+
+def _compiled(job: SliceJob) -> tuple[list[PairStep], list[tuple[int, ...]]]:
+    """Steps and sliced labels of ``job``, compiled once per worker."""
+    if _COMPILED.get("job") is not job:
+        gone = set(job.sliced)
+        labels = [tuple(i for i in ix if i not in gone) for ix in job.tree.inputs]
+        _COMPILED.update(job=job, steps=compile_tree(job.tree, job.sliced), labels=labels)
+    return _COMPILED["steps"], _COMPILED["labels"]
+
+
+def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
+    """Return the sum of slices ``start .. stop-1`` of ``job``, added in slice order.
+
+    Raises
+    ------
+    SliceError
+        If a slice fails; the message names the slice.
+    """
+    steps, labels = _compiled(job)
+    total: Scaled | None = None
+    for k in range(start, stop):
+        try:
+            values = np.unravel_index(k, job.dims) if job.sliced else ()
+            arrays = _slice_arrays(job.arrays, job.tree.inputs, job.sliced, values)
+            part = contract_tree(arrays, job.tree, steps, labels, backend=job.backend)
+        except Exception as exc:
+            raise SliceError(f"{job.describe(k)} failed: {type(exc).__name__}: {exc}") from exc
+        total = part if total is None else total + part
+    return total
+
+
+def _check_sliced(network: TensorGraph, sliced: tuple[int, ...]) -> None:
+    out = set(network.output)
+    for i in sliced:
+        if i not in network.size or i in out:
+            raise InputError(
+                f"cannot slice label {i}: it is {'an output' if i in out else 'not a'} label "
+                "of the network; slice only labels that are summed over"
+            )
+    if len(set(sliced)) != len(sliced):
+        raise InputError(f"sliced labels {sliced} repeat a label; give each label once")
+
+
+def _check_memory(need: int, limit: int, workers: int) -> None:
+    if need * workers <= limit:
+        return
+    what = f"{workers} worker processes each need" if workers > 1 else "the contraction needs"
+    smallest = need * workers
+    raise ResourceLimitError(
+        f"{what} {format_bytes(need)} of intermediates per slice, above the memory limit "
+        f"of {format_bytes(limit)}; the smallest limit that works for this plan is "
+        f"{smallest} bytes ({format_bytes(smallest)}): raise --memory/memory_limit to at least "
+        "that, use fewer workers, or plan with a smaller limit so more labels are sliced"
+    )
+
+
+def _fingerprint(network: TensorGraph, job: SliceJob, bounds) -> str:
+    tree = job.tree
+    description = {
+        "indices": [list(ix) for ix in tree.inputs],
+        "output": list(tree.output),
+        "size": sorted([int(k), int(v)] for k, v in tree.size.items()),
+        "path": [list(p) for p in tree.path],
+        "sliced": list(job.sliced),
+        "chunks": [list(b) for b in bounds],
+        "dtype": np.dtype(network.dtype).str,
+        "exponent": int(network.exponent),
+        "backend": job.backend,
+    }
+    return run_fingerprint(job.arrays, description)
+
+
+def execute(
+    network: TensorGraph,
+    tree: PairTree,
+    sliced: Sequence[int] = (),
+    *,
+    memory_limit: int | str | None = None,
+    executor: Executor | None = None,
+    workers: int | None = None,
+    checkpoint: str | os.PathLike | None = None,
+    progress: bool | None | Callable[[int, int], None] = None,
+    backend: str | None = None,
+    chunk_size: int | None = None,
+) -> Scaled:
+    """Contract a network along a tree, summing over the ``sliced`` labels one value at a time.
+
+    Slices are grouped into chunks of consecutive slices
+    (:func:`tnsim.execution.executors.chunk_bounds`); each chunk sums its slices in order
+    and chunk sums are added in chunk order, so the result is bit-for-bit the
+    same for the same plan whatever runs it (serially, a process pool, Dask)
+    and however often it was stopped and resumed.
+
+    Options left at ``None`` come from the enclosing
+    :func:`tnsim.execution.options.run_options` block, if any.
+
+    Parameters
+    ----------
+    network : TensorGraph
+        The network; ``tree.inputs`` must equal ``network.indices``.
+    tree : PairTree
+        The plan.
+    sliced : sequence of int
+        Labels fixed to each of their values in turn (not output labels).
+    memory_limit : int or str, optional
+        Bytes (or text such as ``"4GiB"``) the intermediates of the running
+        slices may use; default half of the available memory.  A run that
+        would exceed it is refused before it starts.
+    executor : concurrent.futures.Executor, optional
+        Where chunks run, e.g. ``distributed.Client.get_executor()``.
+    workers : int, optional
+        Without an executor: size of a local process pool (1 = serial).  By
+        default work above 1e11 FLOPs uses every core the memory limit allows.
+    checkpoint : path, optional
+        File recording finished chunks; a rerun of the same network and plan
+        resumes from it (see :mod:`tnsim.execution.checkpoint`).
+    progress : bool, None or callable
+        Show a progress bar (``None``: only on a terminal, for large work); a
+        callable is called as ``progress(chunks_done, num_chunks)`` instead.
+    backend : str, optional
+        Array library of the contractions (default ``"numpy"``; see
+        :mod:`tnsim.execution.backends`).
+    chunk_size : int, optional
+        Slices per chunk, overriding the automatic choice (changes the rounding
+        of the sum, hence the checkpoint fingerprint).
+
+    Returns
+    -------
+    Scaled
+        The network's value, including ``network.exponent``.
+
+    Raises
+    ------
+    ResourceLimitError
+        If a slice's intermediates exceed ``memory_limit``.
+    CheckpointError
+        If ``checkpoint`` is corrupt or belongs to another run.
+    SliceError
+        If a slice fails (finished chunks stay in the checkpoint).
+
+    Examples
+    --------
+    >>> from tnsim.plan.driver import greedy_tree
+    >>> tn = TensorGraph([np.ones((2, 2)), np.ones((2, 2))], [(0, 1), (1, 2)], {0: 2, 1: 2, 2: 2})
+    >>> tree = greedy_tree(tn.indices, tn.output, tn.size)
+    >>> complex(execute(tn, tree)), complex(execute(tn, tree, sliced=[1, 2]))
+    ((8+0j), (8+0j))
+    """
+    if len(network.arrays) == 0:
+        return Scaled(np.asarray(np.ones((), network.dtype)), network.exponent)
+    sliced = tuple(int(i) for i in sliced)
+    _check_sliced(network, sliced)
+    opts = current_options()
+    ops = get_backend(backend if backend is not None else opts.backend)
+    memory_limit = memory_limit if memory_limit is not None else opts.memory_limit
+    limit = default_memory_limit() if memory_limit is None else parse_memory(memory_limit)
+    if executor is None and workers is None:
+        executor, workers = opts.executor, opts.workers
+    progress = opts.progress if progress is None else progress
+    if checkpoint is None:
+        checkpoint = opts.next_checkpoint()
+    steps = compile_tree(tree, sliced)
+    need = peak_memory(tree, steps, np.dtype(network.dtype).itemsize)
+    job = SliceJob(tuple(network.arrays), tree, sliced, ops.name)
+    num_slices = math.prod(job.dims)
+    if num_slices >= 2**62:
+        raise ResourceLimitError(
+            f"the plan has {num_slices:.3g} slices, more than can be counted in 64 bits "
+            "(and far more than can be run); plan with a larger memory limit"
+        )
+    slice_flops = count_flops(steps)
+    bounds = chunk_bounds(num_slices, slice_flops, chunk_size)
+    if executor is None and workers is None:
+        big = slice_flops * num_slices >= 1e11 and len(bounds) > 1
+        workers = min(local_workers(), len(bounds), max(1, limit // max(need, 1))) if big else 1
+    pool = 1 if executor is not None else max(1, int(workers))
+    _check_memory(need, limit, pool)
+    if checkpoint is not None:
+        store = Checkpoint(checkpoint, _fingerprint(network, job, bounds), len(bounds), Scaled)
+        sums, record = store.sums, store.add
+    else:
+        sums = OrderedSum(len(bounds))
+        record = sums.add
+    done = sums.done()
+    todo = [i for i in range(len(bounds)) if i not in done]
+    done_slices = sum(bounds[i][1] - bounds[i][0] for i in done)
+    bar = SliceProgress(progress, num_slices, len(bounds), slice_flops, done_slices, len(done))
+
+    def finished(index: int, value: Scaled) -> None:
+        record(index, value)
+        bar.advance(bounds[index][1] - bounds[index][0])
+
+    try:
+        run_chunks(
+            contract_slices,
+            job,
+            bounds,
+            todo,
+            finished,
+            executor=executor,
+            workers=min(pool, max(len(todo), 1)),
+        )
+    finally:
+        bar.close()
+    total = sums.total()
+    return Scaled(total.mantissa, total.exponent + network.exponent)

@@ -1,0 +1,107 @@
+"""Running one contraction tree: pairwise steps as batched matmul, with a running scale.
+
+Intermediates are rescaled by exact powers of two (:mod:`tnsim.network.scaled`)
+so the result keeps its log-magnitude however small it is.  numpy runs the
+compiled steps directly; other array libraries go through opt_einsum's
+backend dispatch (:mod:`tnsim.execution.backends`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from tnsim.execution.backends import ArrayBackend, get_backend
+from tnsim.execution.blas import SMALL_PRODUCT, blas_threads, set_blas_threads
+from tnsim.execution.steps import PairStep, apply_owned, compile_tree
+from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
+from tnsim.plan.tree import PairTree
+
+__all__ = ["contract_tree"]
+
+
+def contract_tree(
+    arrays: Sequence[np.ndarray],
+    tree: PairTree,
+    steps: Sequence[PairStep] | None = None,
+    labels: Sequence[Sequence[int]] | None = None,
+    *,
+    backend: ArrayBackend | str | None = None,
+) -> Scaled:
+    """Contract ``arrays`` along ``tree`` with a running power-of-two scale.
+
+    Parameters
+    ----------
+    arrays : sequence of numpy.ndarray
+        One per leaf of the tree (already sliced if the steps were compiled
+        with removed labels).
+    tree : PairTree
+        The order of pairwise contractions.
+    steps : sequence of PairStep, optional
+        From :func:`compile_tree`; computed if omitted.
+    labels : sequence of sequence of int, optional
+        Labels of ``arrays`` when they differ from ``tree.inputs`` (sliced).
+    backend : str or ArrayBackend, optional
+        Array library of the pairwise contractions (default numpy, see
+        :mod:`tnsim.execution.backends`).
+
+    Returns
+    -------
+    Scaled
+        The result, axes in the order of ``tree.output``.
+    """
+    if steps is None:
+        steps = compile_tree(tree)
+    labels = list(tree.inputs if labels is None else labels)
+    ops = get_backend(backend)
+    if ops.is_numpy:
+        root, exponent = _run_numpy(arrays, tree, steps)
+    else:
+        root, exponent = _run_other(ops, arrays, tree, steps, labels)
+    final = steps[-1].out_labels if steps else tuple(labels[0])
+    extra = tuple(k for k, i in enumerate(final) if i not in tree.output)
+    if extra:
+        root = root.sum(axis=extra)
+        final = tuple(i for i in final if i in tree.output)
+    root = root.transpose([final.index(i) for i in tree.output if i in final])
+    root, e = normalize(np.asarray(root))
+    return Scaled(root, exponent + e)
+
+
+def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
+    nodes: list[np.ndarray | None] = list(arrays)
+    exponent = 0
+    full = blas_threads()
+    current = full
+    try:
+        for (x, y), step in zip(tree.path, steps):
+            (nb, nl, nk), nr = step.mat_a, step.mat_b[2]
+            want = 1 if nb * nl * nk * nr < SMALL_PRODUCT else full
+            if want != current:
+                set_blas_threads(want)
+                current = want
+            pair = [nodes[x], nodes[y]]
+            nodes[x] = nodes[y] = None
+            c = apply_owned(step, pair)
+            c, e = normalize_owned(c, SLACK)
+            exponent += e
+            nodes.append(c)
+    finally:
+        if current != full:
+            set_blas_threads(full)
+    return nodes[-1], exponent
+
+
+def _run_other(ops: ArrayBackend, arrays, tree, steps, labels) -> tuple[np.ndarray, int]:
+    nodes = [ops.to_backend(a) for a in arrays]
+    labels = list(labels)
+    exponent = 0
+    for (x, y), step in zip(tree.path, steps):
+        c = ops.contract_pair(nodes[x], labels[x], nodes[y], labels[y], step.out_labels)
+        nodes[x] = nodes[y] = None
+        c, e = ops.normalize(c)
+        exponent += e
+        nodes.append(c)
+        labels.append(step.out_labels)
+    return ops.to_numpy(nodes[-1]), exponent

@@ -1,0 +1,120 @@
+"""Numbers kept as ``mantissa * 2**exponent``: the scale that keeps tiny amplitudes exact.
+
+Amplitudes of very wide circuits (``|a|`` near ``2**(-n/2)``) underflow
+floating point.  Networks carry a power-of-two exponent and contraction
+keeps a running one: when the largest component of an intermediate leaves
+``[2**-SLACK, 2**SLACK]`` it is divided by ``2**e`` -- an exact operation --
+so that component lies in ``[0.5, 1)``, and ``e`` is added to the exponent.
+Floating-point products are unchanged by exact power-of-two scalings, so the
+rescaling does not alter a result's bits; results keep their log-magnitude
+and phase even where the value itself underflows.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["Scaled", "normalize"]
+
+
+@dataclass(frozen=True)
+class Scaled:
+    """A value stored as ``mantissa * 2**exponent``.
+
+    Attributes
+    ----------
+    mantissa : numpy.ndarray
+        Array (0-d for a scalar) whose largest component is below 1 in magnitude.
+    exponent : int
+        Power of two.
+    """
+
+    mantissa: np.ndarray
+    exponent: int
+
+    def value(self) -> np.ndarray:
+        """Return ``mantissa * 2**exponent`` as complex128 (may under/overflow)."""
+        m = np.asarray(self.mantissa, dtype=np.complex128)
+        return np.ldexp(m.real, self.exponent) + 1j * np.ldexp(m.imag, self.exponent)
+
+    def log10_abs(self) -> np.ndarray | float:
+        """Return ``log10 |value|`` exactly, even where the value underflows."""
+        with np.errstate(divide="ignore"):
+            mag = np.abs(self.mantissa.astype(np.complex128))
+            out = np.log10(mag) + self.exponent * math.log10(2)
+        return float(out) if np.ndim(out) == 0 else out
+
+    def phase(self) -> np.ndarray | float:
+        """Return the complex argument of the value in radians."""
+        out = np.angle(self.mantissa)
+        return float(out) if np.ndim(out) == 0 else out
+
+    def __complex__(self) -> complex:
+        return complex(self.value())
+
+    def __add__(self, other: Scaled) -> Scaled:
+        if not np.any(self.mantissa):
+            return other
+        if not np.any(other.mantissa):
+            return self
+        e = max(self.exponent, other.exponent)
+        total = np.ldexp(1.0, self.exponent - e) * self.mantissa
+        total = total + np.ldexp(1.0, other.exponent - e) * other.mantissa
+        m, de = normalize(total.astype(self.mantissa.dtype, copy=False))
+        return Scaled(m, e + de)
+
+
+def normalize(array: np.ndarray) -> tuple[np.ndarray, int]:
+    """Scale ``array`` by a power of two so its largest component lies in [0.5, 1).
+
+    Returns the scaled array and the exponent ``e`` with ``array = scaled * 2**e``.
+    An all-zero array is returned unchanged with ``e = 0``.
+
+    Examples
+    --------
+    >>> normalize(np.array([3.0, -1.0]))
+    (array([ 0.75, -0.25]), 2)
+    """
+    if array.size == 0:
+        return array, 0
+    flat = array.reshape(-1)
+    if np.iscomplexobj(flat):
+        flat = flat.view(flat.real.dtype)
+    peak = float(np.max(np.abs(flat)))
+    if peak == 0.0 or not math.isfinite(peak):
+        return array, 0
+    e = math.frexp(peak)[1]
+    if e == 0:
+        return array, 0
+    return np.ldexp(flat, -e).view(array.dtype).reshape(array.shape), e
+
+
+#: Intermediates whose largest component lies in ``[2**-SLACK, 2**SLACK]`` are not rescaled.
+SLACK = 32
+
+
+def normalize_owned(array: np.ndarray, slack: int = 0) -> tuple[np.ndarray, int]:
+    """:func:`normalize` in place, for a freshly computed intermediate.
+
+    With ``slack``, an array whose peak exponent ``e`` has ``|e| <= slack`` is
+    left as it is (``e = 0`` is returned).
+    """
+    flat = array.reshape(-1)
+    if np.iscomplexobj(flat):
+        flat = flat.view(flat.real.dtype)
+    if flat.size == 0:
+        return array, 0
+    peak = float(max(flat.max(), -flat.min()))
+    if peak == 0.0 or not math.isfinite(peak):
+        return array, 0
+    e = math.frexp(peak)[1]
+    if abs(e) <= slack:
+        return array, 0
+    if -100 <= e <= 100:  # 2**-e is a normal number even in float32: multiply (SIMD, exact)
+        np.multiply(flat, flat.dtype.type(math.ldexp(1.0, -e)), out=flat)
+    elif e:
+        np.ldexp(flat, -e, out=flat)
+    return array, e

@@ -1,0 +1,203 @@
+"""Forecasts: what contracting a circuit's amplitude network will cost, before running it.
+
+:func:`forecast` plans the network (nothing big is allocated) and reports its
+FLOPs, memory, slices and a time forecast from this machine's measured matmul
+rate and the fitted cost per element written (:mod:`tnsim.execution.timemodel`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import asdict, dataclass
+
+import numpy as np
+import opt_einsum
+
+from tnsim.circuits.circuit import Circuit
+from tnsim.errors import InputError
+from tnsim.execution.rate import matmul_rate
+from tnsim.execution.timemodel import forecast_seconds
+from tnsim.network.builders import amplitude_network
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import Plan, make_plan
+from tnsim.units import parse_memory
+
+__all__ = ["ForecastReport", "forecast", "opt_einsum_cost"]
+
+
+@dataclass(frozen=True)
+class ForecastReport:
+    """What contracting one amplitude network will cost.
+
+    Attributes
+    ----------
+    num_qubits, num_tensors, num_tensors_simplified : int
+        Circuit width; tensors before and after simplification.
+    flops : int
+        Real FLOPs of the plan, all slices (complex multiply-add = 8).
+    unsliced_flops : int
+        Real FLOPs of the same tree without slicing.
+    opt_einsum_cost : float
+        opt_einsum's own cost count of the exported (unsliced) path
+        (``contract_path(...).opt_cost``; a different unit from ``flops``).
+    peak_bytes, unsliced_peak_bytes : int
+        Bytes of live intermediates of one slice / without slicing (inputs excluded).
+    width, unsliced_width : float
+        log2 of the largest intermediate, in elements.
+    num_slices : int
+        Slices (1 if none); ``sliced_labels`` labels are sliced.
+    sliced_labels : int
+        Number of sliced labels.
+    overhead : float
+        ``flops / unsliced_flops``.
+    memory_limit : int or None
+        The limit planned for, in bytes.
+    fits_unsliced : bool
+        Whether the unsliced tree fits ``memory_limit`` (True without a limit).
+    itemsize : int
+        Bytes per element (16: complex128).
+    written : int
+        Elements of intermediates written, all slices together.
+    flop_rate : float
+        Measured real FLOP/s of a dense complex matrix product here.
+    seconds : float
+        Forecast run time ``(flops + WRITE_FLOPS * written) / flop_rate``: the
+        FLOPs at the matmul rate plus a fitted cost per element written
+        (:data:`tnsim.plan.search.WRITE_FLOPS`).
+    planning_seconds : float
+        Time spent planning.
+    method : str
+        Planner that produced the tree.
+    profile : tuple of float
+        log2 (elements) of each intermediate of one slice, in contraction order.
+    """
+
+    num_qubits: int
+    num_tensors: int
+    num_tensors_simplified: int
+    flops: int
+    unsliced_flops: int
+    opt_einsum_cost: float
+    peak_bytes: int
+    unsliced_peak_bytes: int
+    width: float
+    unsliced_width: float
+    num_slices: int
+    sliced_labels: int
+    overhead: float
+    memory_limit: int | None
+    fits_unsliced: bool
+    itemsize: int
+    written: int
+    flop_rate: float
+    seconds: float
+    planning_seconds: float
+    method: str
+    profile: tuple[float, ...]
+
+    def to_dict(self) -> dict:
+        """Plain-data form (for JSON)."""
+        return asdict(self)
+
+
+def opt_einsum_cost(p: Plan) -> float:
+    """opt_einsum's cost count (``opt_cost``) of a plan's tree exported as a linear path."""
+    tree = p.tree
+    if tree.num_leaves < 2:
+        return 0.0
+    sym: dict[int, str] = {}
+    for ix in tree.inputs:
+        for i in ix:
+            sym.setdefault(i, opt_einsum.get_symbol(len(sym)))
+    eq = ",".join("".join(sym[i] for i in ix) for ix in tree.inputs)
+    eq += "->" + "".join(sym[i] for i in tree.output)
+    shapes = [tuple(tree.size[i] for i in ix) for ix in tree.inputs]
+    _, info = opt_einsum.contract_path(eq, *shapes, shapes=True, optimize=tree.linear_path())
+    return float(info.opt_cost)
+
+
+def forecast(
+    circuit: Circuit,
+    bits: str | Sequence[int] | None = None,
+    *,
+    memory_limit: int | str | None = None,
+    time_budget: float | None = None,
+    seed: int = 0,
+    dtype=np.complex128,
+    objective: str = "runtime",
+) -> ForecastReport:
+    """Plan the amplitude ``<x|C|0...0>`` of ``circuit`` and forecast its cost (no big arrays).
+
+    Parameters
+    ----------
+    circuit : Circuit
+        The circuit.
+    bits : str or sequence of int, optional
+        The bitstring ``x`` (character i is qubit i); default all zeros.
+    memory_limit : int or str, optional
+        Bytes (or ``"4GiB"``) one slice's intermediates may use; the plan is sliced to fit.
+    time_budget : float, optional
+        Seconds of planner search (default: automatic).
+    seed : int
+        Seed of the planner.
+    dtype : numpy dtype
+        complex128 (default) or complex64, for the byte figures and the rate.
+    objective : {"runtime", "operations"}
+        What the planner minimises (see :func:`tnsim.plan.driver.make_plan`).
+
+    Returns
+    -------
+    ForecastReport
+
+    Raises
+    ------
+    ResourceLimitError
+        If no slicing fits ``memory_limit`` (the message gives the smallest limit that would).
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> r = forecast(Circuit(3).h(0).cx(0, 1).cx(1, 2))
+    >>> r.num_slices, r.flops >= 0
+    (1, True)
+    """
+    if not isinstance(circuit, Circuit):
+        raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
+    dt = np.dtype(dtype)
+    if bits is None:
+        bits = "0" * circuit.num_qubits
+    network = amplitude_network(circuit, bits, dtype=dt)
+    small = absorb_small(network)
+    p = make_plan(
+        small, memory_limit=memory_limit, time_budget=time_budget, seed=seed, objective=objective
+    )
+    rate = matmul_rate(dt)
+    unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
+    sizes = p.tree.intermediate_sizes(p.sliced)
+    written = sum(sizes) * p.num_slices
+    limit = None if memory_limit is None else parse_memory(memory_limit)
+    return ForecastReport(
+        num_qubits=circuit.num_qubits,
+        num_tensors=len(network),
+        num_tensors_simplified=len(small),
+        flops=p.flops,
+        unsliced_flops=p.unsliced_flops,
+        opt_einsum_cost=opt_einsum_cost(p),
+        peak_bytes=p.peak_bytes,
+        unsliced_peak_bytes=p.unsliced_peak_bytes,
+        width=p.width,
+        unsliced_width=unsliced_width,
+        num_slices=p.num_slices,
+        sliced_labels=len(p.sliced),
+        overhead=p.overhead,
+        memory_limit=limit,
+        fits_unsliced=limit is None or p.unsliced_peak_bytes <= limit,
+        itemsize=p.itemsize,
+        written=written,
+        flop_rate=rate,
+        seconds=forecast_seconds(p.flops, written, rate),
+        planning_seconds=p.seconds,
+        method=p.method,
+        profile=tuple(math.log2(s) for s in sizes),
+    )

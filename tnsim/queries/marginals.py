@@ -1,0 +1,124 @@
+"""Marginal probabilities of a few qubits, from the light cone's doubled network.
+
+The circuit is first cut to the backward light cone of the measured qubits
+(:mod:`tnsim.network.lightcone`): gates outside it cancel against their mirror
+images and are never built.  Narrow, deep cones are answered from all ``2**m``
+amplitudes of the cone instead (:func:`all_amplitudes`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from tnsim.circuits.circuit import Circuit
+from tnsim.network.builders import amplitude_network, doubled_network
+from tnsim.network.graph import TensorGraph
+from tnsim.network.lightcone import canonical_cone, cone_circuit, index_circuit
+from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import greedy_tree
+from tnsim.queries.amplitudes import contract_network, contract_simplified
+from tnsim.queries.checks import check_circuit, check_dtype, check_qubits
+
+__all__ = ["marginal"]
+
+
+def marginal(
+    circuit: Circuit,
+    qubits: Sequence[int],
+    *,
+    dtype: type | np.dtype = np.complex128,
+    memory_limit: int | None = None,
+) -> np.ndarray:
+    """Return the outcome probabilities of a few qubits, summed over all others.
+
+    Built from the doubled network ``<0|C† (|y><y| ⊗ I) C|0>`` with the circuit
+    first reduced to the backward light cone of ``qubits``: the gates outside
+    it cancel against their mirror images and are never built.
+
+    Parameters
+    ----------
+    circuit : Circuit
+        The circuit.
+    qubits : sequence of int
+        The measured qubits; the first is the most significant bit of the
+        result's index.
+    dtype : numpy dtype
+        Contraction dtype.
+    memory_limit : int, optional
+        Bytes for live intermediates (passed to the planner).
+
+    Returns
+    -------
+    numpy.ndarray
+        ``2**len(qubits)`` float64 probabilities.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> c = Circuit(3).h(0).cx(0, 1).x(2)
+    >>> marginal(c, [2, 0]).round(6).tolist()
+    [0.0, 0.0, 0.5, 0.5]
+    """
+    check_circuit(circuit)
+    dt = check_dtype(dtype)
+    qs = check_qubits(qubits, circuit.num_qubits, "marginal")
+    index = index_circuit(circuit)
+    _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qs])
+    local = cone_circuit(index, gates, len(local_qubits))
+    small = absorb_small(doubled_network(local, open_qubits=range(len(qs)), dtype=dt))
+    if deep_and_narrow(local, small):
+        every = all_probabilities(local, dtype=dt, memory_limit=memory_limit)
+        return every.reshape(1 << len(qs), -1).sum(axis=1)
+    result = contract_simplified(small, memory_limit)
+    probs = result.value().real.reshape(-1)
+    return np.clip(probs, 0.0, None)
+
+
+NARROW = 20
+
+
+"""Light cones of at most this many qubits may be answered from all ``2**m`` amplitudes."""
+
+
+def _greedy_flops(small: TensorGraph) -> int:
+    """FLOPs of opt_einsum's greedy tree for a simplified network (a quick upper estimate)."""
+    return greedy_tree(small.indices, small.output, small.size).cost().flops
+
+
+def all_amplitudes(
+    circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
+) -> np.ndarray:
+    """Return ``<x|C|0...0>`` for all ``2**n`` bitstrings (narrow circuits only).
+
+    One contraction with every output leg open; index ``k`` is the bitstring
+    whose qubit 0 is the most significant bit of ``k``.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> (abs(all_amplitudes(Circuit(2).h(0).cx(0, 1))) ** 2).round(6).tolist()
+    [0.5, 0.0, 0.0, 0.5]
+    """
+    n = circuit.num_qubits
+    network = amplitude_network(circuit, None, open_qubits=range(n), dtype=check_dtype(dtype))
+    return contract_network(network, memory_limit=memory_limit).value().reshape(-1)
+
+
+def all_probabilities(
+    circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
+) -> np.ndarray:
+    """Return ``|<x|C|0...0>|²`` for all ``2**n`` bitstrings (see :func:`all_amplitudes`)."""
+    return np.abs(all_amplitudes(circuit, dtype=dtype, memory_limit=memory_limit)) ** 2
+
+
+def deep_and_narrow(local: Circuit, small: TensorGraph) -> bool:
+    """Whether all ``2**m`` amplitudes of the cone cost less than greedy's plan of ``small``.
+
+    ``small`` is the cone's doubled network, simplified (:func:`absorb_small`).
+
+    Amplitudes in circuit order cost at most about 64 FLOPs per gate and amplitude.
+    """
+    m = local.num_qubits
+    return m <= NARROW and _greedy_flops(small) > len(local.ops) * (64 << m)

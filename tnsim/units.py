@@ -1,0 +1,102 @@
+"""Byte counts: memory limits read from text, and byte counts written as text.
+
+A limit is a number of bytes.  Text such as ``"4GiB"``, ``"512 MB"`` or
+``"1e9"`` is accepted wherever a limit is; binary prefixes (KiB, MiB, GiB,
+TiB) are powers of 1024 and decimal ones (kB, MB, GB, TB) powers of 1000
+(IEC 80000-13:2008).  :func:`parse_memory` is the one reader of such text.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+from tnsim.errors import InputError
+
+__all__ = ["parse_memory", "format_bytes"]
+
+_UNITS = {
+    "": 1,
+    "b": 1,
+    "k": 1000,
+    "kb": 1000,
+    "m": 1000**2,
+    "mb": 1000**2,
+    "g": 1000**3,
+    "gb": 1000**3,
+    "t": 1000**4,
+    "tb": 1000**4,
+    "kib": 1024,
+    "mib": 1024**2,
+    "gib": 1024**3,
+    "tib": 1024**4,
+}
+
+
+_PATTERN = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([a-zA-Z]*)\s*$")
+
+
+def parse_memory(value: int | float | str) -> int:
+    """Return a memory limit in bytes.
+
+    Parameters
+    ----------
+    value : int, float or str
+        Bytes, or text with an optional unit (``"4GiB"``, ``"500MB"``, ``"1e9"``).
+
+    Returns
+    -------
+    int
+        Bytes (positive).
+
+    Raises
+    ------
+    InputError
+        If the text cannot be read or the value is not positive.
+
+    Examples
+    --------
+    >>> parse_memory("4GiB")
+    4294967296
+    >>> parse_memory("1.5 kB")
+    1500
+    >>> parse_memory(2048)
+    2048
+    """
+    if isinstance(value, bool):
+        raise InputError(f"memory limit must be bytes or text such as '4GiB', got {value!r}")
+    if isinstance(value, (int, float)):
+        number, unit = float(value), ""
+    elif isinstance(value, str):
+        match = _PATTERN.match(value)
+        if match is None or match.group(2).lower() not in _UNITS:
+            raise InputError(
+                f"cannot read memory limit {value!r}; give bytes or a number with a unit "
+                "such as '4GiB', '512MiB' or '8GB'"
+            )
+        number, unit = float(match.group(1)), match.group(2).lower()
+    else:
+        raise InputError(f"memory limit must be bytes or text such as '4GiB', got {value!r}")
+    total = number * _UNITS[unit]
+    if not math.isfinite(total) or total < 1:
+        raise InputError(f"memory limit must be at least 1 byte, got {value!r}")
+    return int(total)
+
+
+def format_bytes(num: float, digits: int = 2) -> str:
+    """Return a byte count as short text with a binary prefix (``digits`` decimals).
+
+    Examples
+    --------
+    >>> format_bytes(3 * 1024**3)
+    '3.00 GiB'
+    >>> format_bytes(512), format_bytes(25000, 1)
+    ('512 B', '24.4 KiB')
+    """
+    if num < 1024:
+        return f"{int(num)} B"
+    for unit in ("KiB", "MiB", "GiB", "TiB", "PiB"):
+        num /= 1024
+        if num < 1024 or unit == "PiB":
+            return f"{num:.{digits}f} {unit}"
+    raise AssertionError("unreachable")
