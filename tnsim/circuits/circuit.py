@@ -97,6 +97,8 @@ class Circuit:
             raise InputError(f"num_qubits must be at least 1, got {num_qubits}")
         self.num_qubits = int(num_qubits)
         self.ops: list[Operation] = []
+        self.measurements: dict[int, int] = {}
+        """Classical bit -> the qubit read into it (``measure`` statements), final values."""
 
     for _name in GATES:
         locals()[_name] = _builder(_name)
@@ -216,10 +218,30 @@ class Circuit:
         except InputError as exc:
             raise InputError(f"operation {k}: {exc}") from None
 
+    def measure(self, qubit: int, clbit: int) -> Circuit:
+        """Record that ``qubit`` is read into classical bit ``clbit`` at the end; return ``self``.
+
+        Measurements do not change the queries (every query is of the final
+        state); they give the classical-bit order in which bitstrings may be
+        read and written.  A later measurement into the same classical bit
+        replaces an earlier one.
+
+        Examples
+        --------
+        >>> Circuit(2).h(0).measure(0, 1).measure(1, 0).measurements
+        {1: 0, 0: 1}
+        """
+        (q,) = self._check_qubits("measure", (qubit,), 1)
+        if isinstance(clbit, bool) or not isinstance(clbit, numbers.Integral) or clbit < 0:
+            raise InputError(f"measure: classical bit {clbit!r} is not a non-negative integer")
+        self.measurements[int(clbit)] = q
+        return self
+
     def copy(self) -> Circuit:
         """Return a shallow copy (operations are immutable)."""
         c = Circuit(self.num_qubits)
         c.ops = list(self.ops)
+        c.measurements = dict(self.measurements)
         return c
 
     def depth(self) -> int:
