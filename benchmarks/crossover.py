@@ -30,10 +30,10 @@ import numpy as np
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-from dense import simulate  # noqa: E402
+from dense import simulate
 
-from tnsim import amplitude  # noqa: E402
-from tnsim.circuits.families import grid_circuit  # noqa: E402
+from tnsim import amplitude
+from tnsim.circuits.families import grid_circuit
 
 FULL_SHAPES = ["3x3", "3x4", "2x7", "3x5", "4x4", "3x6", "4x5", "2x11", "4x6", "5x5", "2x13"]
 QUICK_SHAPES = ["2x3", "3x3", "3x4", "4x4"]

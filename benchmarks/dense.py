@@ -30,7 +30,7 @@ import numpy as np
 from tnsim.circuits.bits import parse_bits
 from tnsim.circuits.circuit import Circuit
 
-__all__ = ["simulate", "dense_amplitude"]
+__all__ = ["dense_amplitude", "simulate"]
 
 
 def _block_index(n: int, qubits: tuple[int, ...], j: int) -> tuple:

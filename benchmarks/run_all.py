@@ -67,8 +67,8 @@ def steps(quick: bool, out: str) -> list[tuple[str, list[str]]]:
         grid = f"--family grid --sizes {GRID_FULL} --cycles 8 --time-budget 5 --flop-cap 1e10"
         qaoa = f"--family qaoa --sizes {QAOA_FULL} --param p=1 --time-budget 5 --flop-cap 1e10"
         plot = os.path.join(ROOT, "docs", "bench_grid.png")
-    grid = grid.split() + ["--execute", "--plot", plot]
-    qaoa = qaoa.split() + ["--execute"]
+    grid = [*grid.split(), "--execute", "--plot", plot]
+    qaoa = [*qaoa.split(), "--execute"]
     suffix = "_quick" if quick else ""
     out_steps = [
         ("bench_grid", _bench(out, "bench_grid" + suffix, grid)),

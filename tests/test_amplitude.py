@@ -109,7 +109,7 @@ def test_scaled_agrees_with_plain_value_on_small_circuit():
 
 
 @pytest.mark.parametrize(
-    "bits, match",
+    ("bits", "match"),
     [("01", "has 2 bit"), ("01a", "'a' at position 2"), ([0, 2, 1], "0s and 1s")],
 )
 def test_bad_bitstrings_are_refused(bits, match):

@@ -40,7 +40,7 @@ def _load(name):
 dense = _load("dense")
 
 
-@pytest.mark.parametrize("dtype,tol", [(np.complex128, 1e-12), (np.complex64, 2e-6)])
+@pytest.mark.parametrize(("dtype", "tol"), [(np.complex128, 1e-12), (np.complex64, 2e-6)])
 @pytest.mark.parametrize(
     "circuit",
     [
@@ -160,7 +160,8 @@ def test_bench_cli_writes_csv_json_png(tmp_path, capsys):
         c = grid_circuit(*map(int, r["size"].split("x")), 3, seed=0)
         want = dense_state(c)[int(r["bits"], 2)]
         assert abs(complex(float(r["amplitude_real"]), float(r["amplitude_imag"])) - want) < 1e-10
-    doc = json.load(open(paths["json"]))
+    with open(paths["json"]) as fh:
+        doc = json.load(fh)
     assert doc["settings"]["family"] == "grid" and len(doc["records"]) == 6
     assert "complex multiply-add = 8" in doc["units"]["flops"]
     assert doc["matmul_flop_rate"] > 0
@@ -198,7 +199,7 @@ def test_bench_refuses_missing_output_folder_before_writing(tmp_path):
     csv_path = str(tmp_path / "a.csv")
     plot = str(tmp_path / "no" / "such" / "p.png")
     argv = ["bench", "--sizes", "2x2", "--cycles", "1", "--quiet", "--csv", csv_path]
-    assert main(argv + ["--plot", plot]) == 2
+    assert main([*argv, "--plot", plot]) == 2
     assert os.listdir(tmp_path) == []
 
 

@@ -108,7 +108,7 @@ def test_damaged_checkpoint_is_refused(case, tmp_path, damage):
     else:
         blob = b""
     path.write_bytes(blob)
-    with pytest.raises(CheckpointError, match="d.ckpt"):
+    with pytest.raises(CheckpointError, match=r"d\.ckpt"):
         execute(network, tree, sliced, chunk_size=1, checkpoint=path)
 
 

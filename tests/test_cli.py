@@ -45,7 +45,7 @@ H2 = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\n'
 
 
 @pytest.mark.parametrize(
-    "text, args, match",
+    ("text", "args", "match"),
     [
         ("OPENQASM 2.0;\nqreg q[2];\nfoo q[0];\n", ["--bits", "00"], "c.qasm:3:1"),
         (H2 + "h q[5];\n", ["--bits", "00"], "4:"),

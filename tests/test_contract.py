@@ -13,7 +13,7 @@ def _rand(*shape, seed=0):
 
 
 @pytest.mark.parametrize(
-    "eq, shapes",
+    ("eq", "shapes"),
     [
         ("ij,jk->ik", [(3, 4), (4, 5)]),
         ("ii->i", [(4, 4)]),
@@ -42,7 +42,7 @@ def test_real_in_real_out_and_sliced():
 
 
 @pytest.mark.parametrize(
-    "eq, shapes, match",
+    ("eq", "shapes", "match"),
     [
         ("ab,bc->ac", [(2, 3)], "operand"),
         ("ab->ab", [(2, 3, 4)], "axes"),

@@ -8,7 +8,7 @@ import pytest
 
 distributed = pytest.importorskip("distributed")
 
-from tnsim.execution.slices import execute  # noqa: E402
+from tnsim.execution.slices import execute  # noqa: E402 - after the importorskip
 from tnsim.network.scaled import Scaled  # noqa: E402
 
 

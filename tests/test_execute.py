@@ -266,7 +266,7 @@ def test_absurd_slice_count_is_refused():
     tn = TensorGraph(
         [np.ones(2)] * n + [np.ones((2,) * 1)],
         [(i,) for i in range(n)] + [(0,)],
-        {i: 2 for i in range(n)},
+        dict.fromkeys(range(n), 2),
     )
     tree = greedy_tree(tn.indices, tn.output, tn.size)
     with pytest.raises(ResourceLimitError, match="slices"):

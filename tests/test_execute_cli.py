@@ -60,7 +60,7 @@ def test_checkpoint_of_another_circuit_is_refused(circuit_and_file, capsys, tmp_
 
 
 @pytest.mark.parametrize(
-    "args, match",
+    ("args", "match"),
     [
         (["--memory", "16"], "at least"),  # bytes: less than any 2x2 gate
         (["--memory", "lots"], "cannot read memory limit"),

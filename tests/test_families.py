@@ -34,14 +34,14 @@ Z = np.diag([1.0, -1.0]).astype(complex)
 
 # Small instance of every registered family (must cover FAMILIES).
 SMALL = {
-    "grid": dict(rows=2, cols=3, cycles=5, seed=3),
-    "brickwork": dict(n=5, depth=4, seed=3),
-    "qaoa": dict(num_nodes=6, degree=3, p=2, seed=3),
-    "iqp": dict(n=5, seed=3, density=0.6),
-    "ising": dict(rows=2, cols=2, steps=3),
-    "ghz": dict(n=5),
-    "qft": dict(n=4),
-    "hardware-efficient": dict(n=4, layers=2, seed=3),
+    "grid": {"rows": 2, "cols": 3, "cycles": 5, "seed": 3},
+    "brickwork": {"n": 5, "depth": 4, "seed": 3},
+    "qaoa": {"num_nodes": 6, "degree": 3, "p": 2, "seed": 3},
+    "iqp": {"n": 5, "seed": 3, "density": 0.6},
+    "ising": {"rows": 2, "cols": 2, "steps": 3},
+    "ghz": {"n": 5},
+    "qft": {"n": 4},
+    "hardware-efficient": {"n": 4, "layers": 2, "seed": 3},
 }
 
 
@@ -106,7 +106,7 @@ def _kind(op):
     return (op.name, op.params)
 
 
-@pytest.mark.parametrize("rows,cols,two", [(3, 4, "cz"), (4, 3, "fsim"), (1, 5, "cz")])
+@pytest.mark.parametrize(("rows", "cols", "two"), [(3, 4, "cz"), (4, 3, "fsim"), (1, 5, "cz")])
 def test_grid_structure(rows, cols, two):
     cycles = 9
     c = grid_circuit(rows, cols, cycles, two_qubit=two, seed=5)

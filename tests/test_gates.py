@@ -169,7 +169,7 @@ def fsim_foxen(theta: float, phi: float) -> np.ndarray:
     )
 
 
-@pytest.mark.parametrize("theta, phi", [(0.0, 0.0), (np.pi / 2, np.pi / 6), (-0.4, 2.2)])
+@pytest.mark.parametrize(("theta", "phi"), [(0.0, 0.0), (np.pi / 2, np.pi / 6), (-0.4, 2.2)])
 def test_fsim_matches_foxen_et_al(theta, phi):
     np.testing.assert_allclose(gate_matrix("fsim", [theta, phi]), fsim_foxen(theta, phi))
 

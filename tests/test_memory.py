@@ -15,7 +15,7 @@ from tnsim.units import format_bytes, parse_memory
 
 
 @pytest.mark.parametrize(
-    "text, expected",
+    ("text", "expected"),
     [
         # Binary prefixes are powers of 1024, decimal ones powers of 1000:
         # IEC 80000-13:2008, Quantities and units - Information science and technology.
@@ -66,9 +66,8 @@ def test_run_options_scope_and_slice_budget():
         with run_options(workers=1):
             assert slice_memory_limit() == 8 * 2**30
     assert current_options().workers is None
-    with pytest.raises(InputError, match="workers"):
-        with run_options(workers=0):
-            pass
+    with pytest.raises(InputError, match="workers"), run_options(workers=0):
+        pass
 
 
 _CHILD = textwrap.dedent(
@@ -121,7 +120,8 @@ def test_fit_plan_fits_the_executor_count(sliced_case):
     try:
         plan = fit_plan(network, limit)
     except ResourceLimitError as exc:  # a planner that cannot slice enough
-        assert "at least" in str(exc)
+        message = str(exc)
+        assert "at least" in message
     else:
         assert plan.sliced and plan_peak_memory(network, plan) <= limit
         whole = complex(execute(network, make_plan(network).tree))

@@ -18,7 +18,7 @@ def test_documented_example():
 
 
 @pytest.mark.parametrize(
-    "text, terms",
+    ("text", "terms"),
     [
         ("Z0*Z1 + Z1*Z2", [(1.0, ((0, "Z"), (1, "Z"))), (1.0, ((1, "Z"), (2, "Z")))]),
         ("-2e-3 * x0 y1 Z5", [(-0.002, ((0, "X"), (1, "Y"), (5, "Z")))]),
@@ -34,7 +34,7 @@ def test_forms(text, terms):
 
 
 @pytest.mark.parametrize(
-    "text, column, words",
+    ("text", "column", "words"),
     [
         ("0.5 Q1", 5, "unexpected character 'Q'"),
         ("Z0 Z0", 4, "appears twice"),

@@ -28,7 +28,7 @@ def _einsum_reference(inputs, output, size, arrays):
     # network's value: a sum over every label not in the output of the product of entries;
     # numpy's own pairwise order (optimize="greedy") keeps it fast.
     sym = {}
-    for ix in list(inputs) + [output]:
+    for ix in [*list(inputs), output]:
         for i in ix:
             sym.setdefault(i, opt_einsum.get_symbol(len(sym)))
     eq = ",".join("".join(sym[i] for i in ix) for ix in inputs)
@@ -266,7 +266,7 @@ def test_planner_inside_opt_einsum_contract():
     eq = ",".join("".join(sym[i] for i in ix) for ix in inputs) + "->"
     eq += "".join(sym[i] for i in output)
     planner = Planner(time_budget=0.5, seed=3)
-    path, info = opt_einsum.contract_path(eq, *arrays, optimize=planner)
+    path, _ = opt_einsum.contract_path(eq, *arrays, optimize=planner)
     assert len(path) == len(inputs) - 1 and all(len(step) == 2 for step in path)
     got = opt_einsum.contract(eq, *arrays, optimize=Planner(seed=3))
     np.testing.assert_allclose(got, _einsum_reference(inputs, output, size, arrays), atol=1e-9)
@@ -328,7 +328,7 @@ def test_slicing_uses_few_labels_for_the_memory_it_saves(seed):
     path = random_greedy_path(inputs, output, size, temperature=0.3, seed=seed)
     full = tree_cost(inputs, output, size, path)
     limit = full.peak_bytes // 4
-    sliced, cost, num = choose_slices(inputs, output, size, path, limit)
+    _, cost, num = choose_slices(inputs, output, size, path, limit)
     assert cost.peak_bytes <= limit
     assert num <= 32 * full.peak_bytes / limit
 
@@ -377,7 +377,7 @@ def test_sweep_order_keeps_the_front_thin():
     # and opens the next, so the front stays at two labels (label 0, where the ring was
     # opened, and the newest); jumping ahead would open a third.
     ring = [frozenset({k, (k + 1) % 8}) for k in range(8)]
-    order = sweep_order(ring, (), {k: 2 for k in range(8)}, [k / 8 for k in range(8)])
+    order = sweep_order(ring, (), dict.fromkeys(range(8), 2), [k / 8 for k in range(8)])
     assert order == list(range(8))
 
 

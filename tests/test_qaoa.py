@@ -45,7 +45,7 @@ def _edge_terms(graph):
 _MIXED = nx.Graph([(0, 1), (1, 2), (2, 0), (2, 3), (3, 4), (1, 5), (2, 6), (3, 6), (6, 7)])
 
 
-@pytest.mark.parametrize("gamma, beta", [(0.37, 0.61), (-0.9, 0.2), (1.3, -0.45)])
+@pytest.mark.parametrize(("gamma", "beta"), [(0.37, 0.61), (-0.9, 0.2), (1.3, -0.45)])
 def test_closed_form_matches_dense(gamma, beta):
     c, g = qaoa_maxcut(_MIXED, [gamma], [beta])
     psi = dense_state(c).reshape((2,) * c.num_qubits)
@@ -56,7 +56,7 @@ def test_closed_form_matches_dense(gamma, beta):
         assert (1 - zz) / 2 == pytest.approx(wang_edge(-2 * gamma, beta, du, dv, lam), abs=1e-12)
 
 
-@pytest.mark.parametrize("gamma, beta", [(0.37, 0.61), (-0.9, 0.2)])
+@pytest.mark.parametrize(("gamma", "beta"), [(0.37, 0.61), (-0.9, 0.2)])
 def test_tnsim_matches_closed_form_with_triangles_and_leaves(gamma, beta):
     c, g = qaoa_maxcut(_MIXED, [gamma], [beta])
     for u, v, du, dv, lam in _edge_terms(g):

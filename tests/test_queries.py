@@ -58,7 +58,7 @@ def test_batch_engine_contracts_the_fixed_part_once():
     rows = np.random.default_rng(3).integers(0, 2, (40, 20)).astype(np.uint8)
     base = amplitude_network(c, None, open_qubits=range(20))
     engine = BatchContraction(base, base.output, (), chunk=16)
-    fixed, per_run = engine.flops()
+    _, per_run = engine.flops()
     assert per_run > 0
     got = np.concatenate(
         [engine.run(rows[k : k + 16]).value().reshape(-1) for k in range(0, 40, 16)]

@@ -84,7 +84,7 @@ def test_amp_streams_a_bits_file(circuit_file, tmp_path, capsys):
 
 
 @pytest.mark.parametrize(
-    "argv, words",
+    ("argv", "words"),
     [
         (["marginal", "{c}", "--qubits", "0,x"], "--qubits: item 2"),
         (["marginal", "{c}", "--qubits", "0,9"], "not an index"),

@@ -42,7 +42,7 @@ def _only(kind, original):
 
 
 @pytest.mark.parametrize(
-    "block, kind, width, direct",
+    ("block", "kind", "width", "direct"),
     [(3, "all", 20, 0), (4, "dbl", 20, 0), (3, "amp", 7, 0), (12, None, 20, 0), (3, None, 20, 20)],
 )
 def test_samples_follow_the_born_rule(block, kind, width, direct, monkeypatch):

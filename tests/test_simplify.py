@@ -43,8 +43,8 @@ def test_ghz_network_folds_to_one_tensor():
 
 def test_pair_contraction_with_more_labels_than_einsum_sublists_allow():
     # 60 labels of size 1 plus a shared one: numpy.einsum's sublist form takes 52 at most.
-    la = tuple(range(30)) + (100,)
-    lb = tuple(range(30, 60)) + (100,)
+    la = (*tuple(range(30)), 100)
+    lb = (*tuple(range(30, 60)), 100)
     a = np.full((1,) * 30 + (3,), 2.0)
     b = np.full((1,) * 30 + (3,), 5.0)
     out = tuple(range(60))

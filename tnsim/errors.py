@@ -8,12 +8,12 @@ the command line can print them as a single line.
 from __future__ import annotations
 
 __all__ = [
-    "TnsimError",
-    "InputError",
-    "QasmError",
-    "PlanningError",
-    "ResourceLimitError",
     "CheckpointError",
+    "InputError",
+    "PlanningError",
+    "QasmError",
+    "ResourceLimitError",
+    "TnsimError",
 ]
 
 

@@ -12,7 +12,7 @@ import numpy as np
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.gates import GATES
 
-__all__ = ["random_circuit", "dense_state"]
+__all__ = ["dense_state", "random_circuit"]
 
 
 def random_circuit(

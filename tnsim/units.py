@@ -13,7 +13,7 @@ import re
 
 from tnsim.errors import InputError
 
-__all__ = ["parse_memory", "format_bytes"]
+__all__ = ["format_bytes", "parse_memory"]
 
 _UNITS = {
     "": 1,

@@ -13,7 +13,7 @@ import numpy as np
 
 from tnsim.errors import InputError
 
-__all__ = ["parse_bits", "parse_many", "read_bits_file", "format_bits"]
+__all__ = ["format_bits", "parse_bits", "parse_many", "read_bits_file"]
 
 
 def parse_bits(bits: str | Sequence[int], num_qubits: int, *, where: str = "") -> np.ndarray:

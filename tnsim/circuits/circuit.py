@@ -11,7 +11,7 @@ import numpy as np
 from tnsim.circuits.gates import GATES, gate_matrix, is_unitary
 from tnsim.errors import InputError
 
-__all__ = ["Operation", "Circuit"]
+__all__ = ["Circuit", "Operation"]
 
 
 @dataclass(frozen=True)

@@ -8,7 +8,8 @@ OpenQASM 2.0 by :func:`tnsim.circuits.qasm.write_qasm`.
 
 :data:`FAMILIES` maps a short name to a :class:`Family` record (builder and
 parameter specification); the command line (``tnsim gen``, ``tnsim bench``)
-works from it."""
+works from it.
+"""
 
 from __future__ import annotations
 
@@ -23,20 +24,20 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
 
 __all__ = [
+    "FAMILIES",
     "SQRT_W_U3",
-    "grid_circuit",
-    "grid_edge_layer",
-    "brickwork",
-    "qaoa_maxcut",
-    "iqp",
-    "ising_trotter",
-    "ghz",
-    "qft",
-    "hardware_efficient",
     "Family",
     "Param",
-    "FAMILIES",
+    "brickwork",
+    "ghz",
+    "grid_circuit",
+    "grid_edge_layer",
+    "hardware_efficient",
+    "iqp",
+    "ising_trotter",
     "make_family",
+    "qaoa_maxcut",
+    "qft",
 ]
 
 

@@ -28,7 +28,7 @@ import numpy as np
 
 from tnsim.errors import InputError
 
-__all__ = ["GateSpec", "GATES", "gate_matrix", "is_unitary", "controlled"]
+__all__ = ["GATES", "GateSpec", "controlled", "gate_matrix", "is_unitary"]
 
 _I2 = np.eye(2, dtype=complex)
 _X = np.array([[0, 1], [1, 0]], dtype=complex)
@@ -142,7 +142,10 @@ class GateSpec:
 
 def _specs() -> dict[str, GateSpec]:
     rx, ry, rz = (_pauli_rotation(p) for p in (_X, _Y, _Z))
-    phase = lambda lam: np.diag([1, np.exp(1j * lam)]).astype(complex)  # noqa: E731
+
+    def phase(lam: float) -> np.ndarray:
+        return np.diag([1, np.exp(1j * lam)]).astype(complex)
+
     table = [
         GateSpec("id", 1, 0, _const(_I2), True),
         GateSpec("x", 1, 0, _const(_X)),

@@ -16,7 +16,7 @@ from tnsim.cli import bench, cost, demo, gen, queries
 from tnsim.cli.common import BITS_HELP, CommandParser, options_from_args
 from tnsim.errors import TnsimError
 
-__all__ = ["main", "build_parser"]
+__all__ = ["build_parser", "main"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -32,7 +32,7 @@ from tnsim.queries.costsweep import (
     run_bench,
 )
 
-__all__ = ["records_csv", "records_json", "plot_records"]
+__all__ = ["plot_records", "records_csv", "records_json"]
 
 
 _UNITS = {
@@ -179,7 +179,7 @@ def _check_args(args) -> tuple[Family, list[str], list[dict], dict]:
             raise InputError(f"{option} {path}: folder {folder} does not exist or is not writable")
     if args.plot:
         try:
-            import matplotlib  # noqa: F401
+            import matplotlib  # noqa: F401 - only checks that the plot extra is installed
         except ImportError:
             raise InputError("--plot needs matplotlib: pip install 'tnsim[plot]'") from None
     return fam, planners, sizes, params

@@ -20,16 +20,18 @@ from tnsim.fileio import write_atomic
 __all__ = [
     "BITS_HELP",
     "CommandParser",
-    "write_output",
-    "load_circuit",
     "add_run_arguments",
+    "load_circuit",
     "options_from_args",
+    "write_output",
 ]
 
 
 def add_run_arguments(parser) -> None:
-    """Add the run options (``--memory``, ``--workers``, ``--dask``, ``--checkpoint``,
-    ``--quiet``, ``--array-backend``) to an :mod:`argparse` (sub)parser.
+    """Add the run options to an :mod:`argparse` (sub)parser.
+
+    The options: ``--memory``, ``--workers``, ``--dask``, ``--checkpoint``,
+    ``--quiet``, ``--array-backend``.
 
     :func:`tnsim.cli.main` runs the subcommand inside :func:`options_from_args`.
     """
@@ -117,7 +119,8 @@ BITS_HELP = "character i of a bitstring is qubit i (the leftmost character is qu
 class CommandParser(argparse.ArgumentParser):
     """An argument parser whose errors are one line and exit status 2."""
 
-    def error(self, message: str):  # noqa: D401 - argparse API
+    def error(self, message: str):
+        """Raise the message as an :class:`InputError` (one line, status 2)."""
         raise InputError(f"{self.prog}: {message} (see '{self.prog} --help')")
 
 

@@ -1,9 +1,12 @@
-"""The ``cost`` subcommand: plan an amplitude and print the forecast (nothing big allocated),
-and the text form of a forecast report."""
+"""The ``cost`` subcommand: plan an amplitude and print the forecast.
+
+Nothing big is allocated.  Also the text form of a forecast report.
+"""
 
 from __future__ import annotations
 
 import argparse
+import itertools
 import json
 import math
 from collections.abc import Sequence
@@ -17,7 +20,7 @@ from tnsim.units import format_bytes
 if TYPE_CHECKING:
     from tnsim.queries.forecast import ForecastReport
 
-__all__ = ["register", "format_report", "sparkline"]
+__all__ = ["format_report", "register", "sparkline"]
 
 _BITS_HELP = "character i is qubit i (the leftmost character is qubit 0)"
 
@@ -75,10 +78,10 @@ def sparkline(values: Sequence[float], width: int = 60) -> str:
     vals = list(values)
     if len(vals) > width:
         edges = np.linspace(0, len(vals), width + 1).astype(int)
-        vals = [max(vals[a:b]) for a, b in zip(edges[:-1], edges[1:]) if b > a]
+        vals = [max(vals[a:b]) for a, b in itertools.pairwise(edges) if b > a]
     lo, hi = min(vals), max(vals)
     span = hi - lo or 1.0
-    return "".join(_BARS[int(round((v - lo) / span * (len(_BARS) - 1)))] for v in vals)
+    return "".join(_BARS[round((v - lo) / span * (len(_BARS) - 1))] for v in vals)
 
 
 def _fmt_seconds(s: float) -> str:
@@ -95,7 +98,10 @@ def _fmt_seconds(s: float) -> str:
 
 def format_report(r: ForecastReport) -> str:
     """The report as a readable table, with a profile of intermediate sizes."""
-    lg = lambda x: math.log10(x) if x > 0 else float("-inf")  # noqa: E731
+
+    def lg(x: float) -> float:
+        return math.log10(x) if x > 0 else float("-inf")
+
     rows = [
         ("qubits", f"{r.num_qubits}"),
         ("tensors (simplified)", f"{r.num_tensors} ({r.num_tensors_simplified})"),

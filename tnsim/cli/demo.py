@@ -11,7 +11,7 @@ from tnsim.circuits.families import brickwork
 from tnsim.circuits.families import ghz as relay_chain
 from tnsim.queries.amplitudes import amplitude
 
-__all__ = ["run_demo", "relay_chain", "brickwork"]
+__all__ = ["brickwork", "relay_chain", "run_demo"]
 
 
 def _line(bits: str, a, seconds: float) -> str:

@@ -9,7 +9,7 @@ from tnsim.circuits.qasm import write_qasm
 from tnsim.cli.common import write_output
 from tnsim.errors import InputError
 
-__all__ = ["register", "parse_params", "describe_families"]
+__all__ = ["describe_families", "parse_params", "register"]
 
 
 def _cmd_gen(args: argparse.Namespace) -> int:

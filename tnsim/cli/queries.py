@@ -17,7 +17,7 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.cli.common import BITS_HELP, add_run_arguments, load_circuit, write_output
 from tnsim.errors import InputError
 
-__all__ = ["register", "parse_qubit_list"]
+__all__ = ["parse_qubit_list", "register"]
 
 _BITS = "character i of a bitstring is qubit i (the leftmost character is qubit 0)"
 

@@ -12,4 +12,4 @@ model, and the engines that contract one network many times (:mod:`.batch`,
 from tnsim.execution.options import RunOptions, run_options
 from tnsim.execution.slices import execute
 
-__all__ = ["execute", "run_options", "RunOptions"]
+__all__ = ["RunOptions", "execute", "run_options"]

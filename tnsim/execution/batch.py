@@ -93,7 +93,7 @@ class BatchContraction:
             list(base.arrays) + leaves,
             inputs,
             size,
-            (s,) + tuple(open_labels),
+            (s, *tuple(open_labels)),
             base.exponent,
             self.dtype,
         )

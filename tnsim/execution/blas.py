@@ -28,8 +28,6 @@ _SETTERS = (
 @functools.lru_cache(maxsize=1)
 def _openblas() -> tuple:
     """Return ``(setter, getter)`` of the OpenBLAS numpy loaded, or ``(None, None)``."""
-    import numpy  # noqa: F401  (loads the BLAS)
-
     try:
         with open("/proc/self/maps", encoding="ascii", errors="replace") as fh:
             paths = sorted({line.split()[-1] for line in fh if "openblas" in line.lower()})

@@ -37,7 +37,7 @@ import numpy as np
 from tnsim.errors import CheckpointError
 from tnsim.fileio import write_atomic
 
-__all__ = ["OrderedSum", "Checkpoint", "run_fingerprint"]
+__all__ = ["Checkpoint", "OrderedSum", "run_fingerprint"]
 
 _FORMAT, _VERSION = "tnsim-checkpoint", 1
 

@@ -34,7 +34,7 @@ from typing import Any
 from tnsim.errors import TnsimError
 from tnsim.execution.blas import set_blas_threads
 
-__all__ = ["SliceError", "chunk_bounds", "run_chunks", "local_workers"]
+__all__ = ["SliceError", "chunk_bounds", "local_workers", "run_chunks"]
 
 #: FLOPs per task the chunking aims at (about a second of one core's work).
 CHUNK_FLOPS = 2e9

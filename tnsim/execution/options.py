@@ -11,7 +11,8 @@ The options are held in a :class:`contextvars.ContextVar`, so threads and
 asyncio tasks each see their own.  With ``checkpoint`` set here (a folder),
 contraction number ``k`` of the block records its progress in
 ``<folder>/part-<k>.ckpt``; rerunning the same code resumes each part, and a
-part from another circuit or plan is refused."""
+part from another circuit or plan is refused.
+"""
 
 from __future__ import annotations
 
@@ -26,7 +27,7 @@ from tnsim.errors import InputError
 from tnsim.execution.memory import default_memory_limit
 from tnsim.units import parse_memory
 
-__all__ = ["RunOptions", "run_options", "current_options", "slice_memory_limit"]
+__all__ = ["RunOptions", "current_options", "run_options", "slice_memory_limit"]
 
 
 @dataclass(frozen=True)
@@ -53,7 +54,7 @@ class RunOptions:
     executor: Executor | None = None
     workers: int | None = None
     checkpoint: str | None = None
-    progress: bool | None | Callable[[int, int], None] = None
+    progress: bool | Callable[[int, int], None] | None = None
     backend: str = "numpy"
     counter: list = field(default_factory=lambda: [0], compare=False, repr=False)
 

@@ -18,7 +18,7 @@ __all__ = ["AUTO_FLOPS", "SliceProgress", "wants_bar"]
 AUTO_FLOPS = 1e10
 
 
-def wants_bar(progress: bool | None | Callable, total_flops: float) -> bool:
+def wants_bar(progress: bool | Callable | None, total_flops: float) -> bool:
     """Whether a bar should be shown for ``progress`` (``None``: automatic).
 
     Examples
@@ -49,7 +49,7 @@ class SliceProgress:
 
     def __init__(
         self,
-        progress: bool | None | Callable,
+        progress: bool | Callable | None,
         num_slices: int,
         num_chunks: int,
         slice_flops: float,

@@ -1,4 +1,4 @@
-"""This machine's dense matrix-multiply rate: the physical limit of dense contraction.
+"""The dense matrix-multiply rate of the machine: the physical limit of dense contraction.
 
 Measured once (a fraction of a second), kept in memory and in a small JSON
 file in the user's cache directory (``$XDG_CACHE_HOME/tnsim`` or

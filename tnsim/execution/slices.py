@@ -157,7 +157,7 @@ def execute(
     executor: Executor | None = None,
     workers: int | None = None,
     checkpoint: str | os.PathLike | None = None,
-    progress: bool | None | Callable[[int, int], None] = None,
+    progress: bool | Callable[[int, int], None] | None = None,
     backend: str | None = None,
     chunk_size: int | None = None,
 ) -> Scaled:

@@ -20,11 +20,11 @@ from tnsim.plan.tree import PairTree
 
 __all__ = [
     "PairStep",
-    "pair_step",
     "apply_step",
     "compile_tree",
     "count_flops",
     "largest_intermediate",
+    "pair_step",
     "peak_memory",
 ]
 

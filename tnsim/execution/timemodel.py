@@ -12,7 +12,7 @@ from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import Plan, make_plan
 from tnsim.plan.search import WRITE_FLOPS
 
-__all__ = ["plan_for_runs", "elements_written", "forecast_seconds"]
+__all__ = ["elements_written", "forecast_seconds", "plan_for_runs"]
 
 
 def elements_written(p: Plan) -> int:
@@ -21,8 +21,10 @@ def elements_written(p: Plan) -> int:
 
 
 def forecast_seconds(flops: int, written: int, rate: float) -> float:
-    """Forecast run time: ``flops`` plus :data:`~tnsim.plan.search.WRITE_FLOPS` per element
-    ``written``, at ``rate`` FLOP/s (the measured matmul rate, :func:`matmul_rate`).
+    """Forecast run time of ``flops`` and ``written`` elements at ``rate`` FLOP/s.
+
+    The FLOPs plus :data:`~tnsim.plan.search.WRITE_FLOPS` per element written,
+    at the measured matmul rate (:func:`matmul_rate`).
 
     Examples
     --------

@@ -13,10 +13,10 @@ from tnsim.network.scaled import Scaled
 from tnsim.network.simplify import absorb_small
 
 __all__ = [
-    "TensorGraph",
     "Scaled",
+    "TensorGraph",
+    "absorb_small",
     "amplitude_network",
     "doubled_network",
     "gate_tensor",
-    "absorb_small",
 ]

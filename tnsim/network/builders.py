@@ -18,7 +18,7 @@ from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.circuits.gates import gate_matrix
 from tnsim.network.graph import TensorGraph
 
-__all__ = ["gate_tensor", "circuit_network", "amplitude_network", "doubled_network"]
+__all__ = ["amplitude_network", "circuit_network", "doubled_network", "gate_tensor"]
 
 
 _TENSOR_CACHE: dict[tuple, tuple[np.ndarray, tuple[bool, ...]]] = {}
@@ -210,7 +210,7 @@ def doubled_network(
     paulis = paulis or {}
     n = circuit.num_qubits
     arrays, indices, start, end, nxt = circuit_network(circuit)
-    m_arrays, m_indices, m_start, m_end, nxt2 = circuit_network(circuit, first_label=nxt)
+    m_arrays, m_indices, m_start, m_end, _ = circuit_network(circuit, first_label=nxt)
     join = {m_end[q]: end[q] for q in range(n) if q not in paulis}
     arrays = list(arrays) + [np.conj(a) for a in m_arrays]
     indices = list(indices) + [tuple(join.get(i, i) for i in ix) for ix in m_indices]

@@ -34,7 +34,7 @@ import numpy as np
 from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.network.builders import gate_tensor
 
-__all__ = ["CircuitIndex", "index_circuit", "light_cone", "canonical_cone", "cone_circuit"]
+__all__ = ["CircuitIndex", "canonical_cone", "cone_circuit", "index_circuit", "light_cone"]
 
 _BIG = 1 << 60
 

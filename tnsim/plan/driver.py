@@ -87,7 +87,7 @@ class Plan:
     @property
     def largest_bytes(self) -> int:
         """Bytes of the largest intermediate of one slice."""
-        return int(round(2.0**self.width)) * self.itemsize if self.width else 0
+        return round(2.0**self.width) * self.itemsize if self.width else 0
 
 
 def _exact_path(inputs, output, size) -> tuple[tuple[int, int], ...]:
@@ -287,7 +287,12 @@ def make_plan(
         objective=objective,
     )
     trees = [PairTree(inputs, tuple(network.output), size, tuple(p)) for p, _ in candidates]
-    search = dict(time_budget=time_budget, seed=seed, max_trials=max_trials, objective=objective)
+    search = {
+        "time_budget": time_budget,
+        "seed": seed,
+        "max_trials": max_trials,
+        "objective": objective,
+    }
     plan = _finish(trees, [name for _, name in candidates], limit, itemsize, start, search)
     if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
         _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))

@@ -19,7 +19,7 @@ import numpy as np
 
 from tnsim.plan.builder import PathBuilder
 
-__all__ = ["elimination_order", "tree_from_order", "elimination_path"]
+__all__ = ["elimination_order", "elimination_path", "tree_from_order"]
 
 
 def _index_graph(inputs: Sequence[Sequence[int]]) -> dict[int, set[int]]:

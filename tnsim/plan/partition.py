@@ -97,8 +97,8 @@ def _split(group, labels, weight, rng, imbalance, noise, refine, num_vectors=3, 
         if a and b:
             return a, b
     vecs = _spectral(n, rows, cols, vals, rng, min(n - 2, num_vectors))
-    lo = max(1, int(math.floor(n * (0.5 - imbalance))))
-    hi = min(n - 1, int(math.ceil(n * (0.5 + imbalance))))
+    lo = max(1, math.floor(n * (0.5 - imbalance)))
+    hi = min(n - 1, math.ceil(n * (0.5 + imbalance)))
     best = (math.inf, None, 0)
     directions = list(np.eye(vecs.shape[1]))
     for _ in range(mixes):
@@ -226,7 +226,7 @@ def _embedding(labels: Sequence[frozenset[int]], size, num_vectors: int):
         return _EMBEDDINGS[key]
     n = len(labels)
     weight = {i: math.log2(size[i]) + 1e-3 for ix in labels for i in ix}
-    rows, cols, vals = _edges(range(n), labels, weight)
+    rows, cols, _ = _edges(range(n), labels, weight)
     graph = sp.coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(n, n))
     _, comp = sp.csgraph.connected_components(graph, directed=False)
     parts = []

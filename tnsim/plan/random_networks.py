@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["random_network", "random_arrays"]
+__all__ = ["random_arrays", "random_network"]
 
 
 def random_network(

@@ -28,12 +28,12 @@ from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.tree import TreeCost, join_pairwise, tree_cost
 
 __all__ = [
-    "SearchResult",
-    "search_path",
-    "random_greedy_path",
     "OBJECTIVES",
     "WRITE_FLOPS",
+    "SearchResult",
+    "random_greedy_path",
     "score",
+    "search_path",
 ]
 
 OBJECTIVES = ("operations", "runtime", "footprint")

@@ -30,7 +30,8 @@ tensors themselves do not (:attr:`TreeCost.input_bytes` gives them).  The
 executor skips copies it does not need, so its own count
 (:func:`tnsim.execution.steps.peak_memory`) is never above this one.  ``width``
 is ``log2`` of the largest intermediate in elements; ``written`` is the total
-number of elements of all intermediates."""
+number of elements of all intermediates.
+"""
 
 from __future__ import annotations
 
@@ -42,10 +43,10 @@ from dataclasses import dataclass
 __all__ = [
     "PairTree",
     "TreeCost",
-    "tree_cost",
+    "memory_order",
     "step_flops",
     "step_labels",
-    "memory_order",
+    "tree_cost",
     "without_labels",
 ]
 
@@ -87,8 +88,11 @@ def _numel(labels: Iterable[int], size: Mapping[int, int]) -> int:
 
 
 def _step(a: frozenset, b: frozenset, keep: frozenset, size: Mapping[int, int]):
-    """FLOPs of joining label sets ``a`` and ``b`` into ``keep``, and the elements of the
-    operands after their pre-summation (``|A'|``, ``|B'|``; see the module notes)."""
+    """FLOPs of joining label sets ``a`` and ``b`` into ``keep``, and the operands' sizes.
+
+    The sizes are the elements of the operands after their pre-summation
+    (``|A'|``, ``|B'|``; see the module notes).
+    """
     a2 = frozenset(i for i in a if i in b or i in keep)
     b2 = frozenset(i for i in b if i in a or i in keep)
     na, nb = _numel(a2, size), _numel(b2, size)

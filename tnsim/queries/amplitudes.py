@@ -28,7 +28,7 @@ from tnsim.network.scaled import Scaled
 from tnsim.network.simplify import absorb_small
 from tnsim.queries.checks import check_circuit, check_dtype
 
-__all__ = ["amplitude", "amplitudes", "iter_amplitudes", "contract_network"]
+__all__ = ["amplitude", "amplitudes", "contract_network", "iter_amplitudes"]
 
 
 OPEN_LIMIT = 16

@@ -18,6 +18,7 @@ _DTYPES = {np.dtype(np.complex64), np.dtype(np.complex128)}
 
 
 def check_dtype(dtype) -> np.dtype:
+    """The dtype of a contraction: complex64 or complex128, else an :class:`InputError`."""
     try:
         dt = np.dtype(dtype)
     except TypeError:
@@ -28,11 +29,13 @@ def check_dtype(dtype) -> np.dtype:
 
 
 def check_circuit(circuit: Circuit) -> None:
+    """Refuse anything that is not a :class:`~tnsim.circuits.circuit.Circuit`."""
     if not isinstance(circuit, Circuit):
         raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
 
 
 def check_qubits(qubits: Sequence[int], n: int, what: str) -> list[int]:
+    """Distinct qubit indices of an ``n``-qubit circuit as ints; ``what`` names the caller."""
     if isinstance(qubits, (str, bytes)) or not isinstance(qubits, Iterable):
         raise InputError(f"{what}: give a list of qubit indices, got {qubits!r}")
     qs = list(qubits)

@@ -14,7 +14,8 @@ the figures of :class:`tnsim.plan.driver.Plan`), so the planners are compared li
 like.  Units: FLOPs are real floating-point operations, a complex multiply-add
 counting 8, all slices included; width is log2 of the largest intermediate's
 element count; peak bytes are the intermediates alive at once in one slice
-(inputs not counted), for the dtype contracted."""
+(inputs not counted), for the dtype contracted.
+"""
 
 from __future__ import annotations
 
@@ -39,12 +40,12 @@ from tnsim.plan.tree import PairTree, linear_to_ssa
 __all__ = [
     "PLANNERS",
     "BenchRecord",
+    "crossing_size",
+    "machine_memory",
+    "measure_matmul_rate",
     "parse_sizes",
     "plan_with",
-    "measure_matmul_rate",
-    "machine_memory",
     "run_bench",
-    "crossing_size",
 ]
 
 
@@ -101,8 +102,9 @@ def _opt_einsum_plan(network: TensorGraph, optimizer, name: str, start: float) -
 def plan_with(
     planner: str, network: TensorGraph, *, time_budget: float = 2.0, seed: int = 0
 ) -> Plan:
-    """Plan ``network`` with the named planner; return a :class:`~tnsim.plan.driver.Plan`
-    with its cost.
+    """Plan ``network`` with the named planner; return a plan with its cost.
+
+    The result is a :class:`~tnsim.plan.driver.Plan` scored by tnsim's cost model.
 
     Examples
     --------

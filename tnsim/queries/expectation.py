@@ -22,7 +22,7 @@ from tnsim.queries.checks import check_circuit, check_dtype
 from tnsim.queries.marginals import NARROW, all_amplitudes, deep_and_narrow
 from tnsim.queries.observables import Observable, parse_observable
 
-__all__ = ["expectation", "maxcut_energy", "TermCache"]
+__all__ = ["TermCache", "expectation", "maxcut_energy"]
 
 
 def _pauli_expectation(psi: np.ndarray, letters: Mapping[int, str]) -> float:
@@ -68,8 +68,11 @@ class TermCache:
         self.misses = 0
 
     def _from_amplitudes(self, local: Circuit, letters: dict, paulis) -> float:
-        """A deep, narrow cone's value from all amplitudes of the whole circuit (computed
-        once, when it is itself narrow) or of the cone."""
+        """A deep, narrow cone's value from all amplitudes.
+
+        Those of the whole circuit (computed once) when it is itself narrow,
+        else those of the cone.
+        """
         if self.circuit.num_qubits <= NARROW:
             if self._psi is None:
                 self._psi = all_amplitudes(

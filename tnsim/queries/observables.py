@@ -23,7 +23,7 @@ from dataclasses import dataclass
 
 from tnsim.errors import InputError
 
-__all__ = ["PauliTerm", "Observable", "parse_observable"]
+__all__ = ["Observable", "PauliTerm", "parse_observable"]
 
 
 @dataclass(frozen=True)

@@ -21,7 +21,7 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
 from tnsim.queries.amplitudes import iter_amplitudes
 
-__all__ = ["XebResult", "xeb", "scaled_probabilities"]
+__all__ = ["XebResult", "scaled_probabilities", "xeb"]
 
 
 @dataclass(frozen=True)

@@ -54,12 +54,12 @@ from tnsim.circuits.qasm.reader import DEFAULT_MAX_OPS, MAX_INCLUDE_DEPTH, read_
 from tnsim.circuits.qasm.writer import write_qasm
 
 __all__ = [
+    "DEFAULT_MAX_OPS",
+    "EXTENSION_DEFINITIONS",
+    "MAX_EXPR_DEPTH",
+    "MAX_GATE_DEPTH",
+    "MAX_INCLUDE_DEPTH",
+    "QELIB1_GATES",
     "read_qasm",
     "write_qasm",
-    "QELIB1_GATES",
-    "EXTENSION_DEFINITIONS",
-    "DEFAULT_MAX_OPS",
-    "MAX_GATE_DEPTH",
-    "MAX_EXPR_DEPTH",
-    "MAX_INCLUDE_DEPTH",
 ]

@@ -14,12 +14,12 @@ from tnsim.circuits.qasm.lexer import Source, describe
 from tnsim.errors import QasmError
 
 __all__ = [
-    "MAX_EXPR_DEPTH",
     "FUNCTIONS",
+    "MAX_EXPR_DEPTH",
     "Code",
     "MathError",
-    "evaluate",
     "constant",
+    "evaluate",
     "parse_expression",
 ]
 

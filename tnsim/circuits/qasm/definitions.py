@@ -16,13 +16,13 @@ from tnsim.circuits.qasm.header import BUILTIN_GATES, EXTENSION_DEFINITIONS, QEL
 from tnsim.circuits.qasm.lexer import canonical
 
 __all__ = [
+    "BUILTINS",
+    "EXTENSION_TOKENS",
     "MAX_GATE_DEPTH",
+    "QELIB1",
     "SIZE_CAP",
     "Call",
     "Gate",
-    "BUILTINS",
-    "QELIB1",
-    "EXTENSION_TOKENS",
     "expand",
 ]
 

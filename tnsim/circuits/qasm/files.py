@@ -7,7 +7,7 @@ from pathlib import Path
 
 from tnsim.errors import InputError, QasmError
 
-__all__ = ["read_text", "names_file", "looks_like_missing_file"]
+__all__ = ["looks_like_missing_file", "names_file", "read_text"]
 
 
 def read_text(path: Path) -> str:

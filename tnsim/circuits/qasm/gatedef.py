@@ -11,10 +11,13 @@ __all__ = ["DefinitionParser"]
 
 
 class DefinitionParser(TokenParser):
-    """Adds ``gate name(params) qubits { body }`` to a
-    :class:`~tnsim.circuits.qasm.parser.TokenParser`."""
+    """The token parser, with ``gate name(params) qubits { body }`` definitions.
+
+    Extends :class:`~tnsim.circuits.qasm.parser.TokenParser`.
+    """
 
     def gate_definition(self) -> None:
+        """Parse one ``gate`` or ``opaque`` definition and record the gate."""
         self.recording = []
         self.advance()
         name = self.expect_id("a gate name")
@@ -29,6 +32,7 @@ class DefinitionParser(TokenParser):
         self.program.gates[name.text] = self.make_gate(name, len(params), len(qargs), body, tokens)
 
     def check_gate_name(self, name: Token) -> None:
+        """Refuse a gate name that is reserved or already defined."""
         self.new_name(name, "gate")
         existing = self.program.gates.get(name.text)
         if existing is not None:
@@ -38,6 +42,7 @@ class DefinitionParser(TokenParser):
             )
 
     def id_list(self, opener: str | None, closer: str, what: str) -> list[Token]:
+        """Parse a comma-separated list of identifiers between ``opener`` and ``closer``."""
         if opener is not None:
             self.advance()
             if self.at(closer):
@@ -52,6 +57,7 @@ class DefinitionParser(TokenParser):
         return names
 
     def check_formals(self, params: list[Token], qargs: list[Token]) -> None:
+        """Refuse parameter or qubit names that repeat or clash."""
         seen: set[str] = set()
         for tok in params + qargs:
             self.new_name(tok, "gate parameter or argument")
@@ -62,6 +68,7 @@ class DefinitionParser(TokenParser):
     def gate_body(
         self, name: Token, brace: Token, params: list[Token], qargs: list[Token]
     ) -> list[Call]:
+        """Parse the statements of a gate body into calls of other gates."""
         env = {tok.text: i for i, tok in enumerate(params)}
         formal = {tok.text: i for i, tok in enumerate(qargs)}
         body = []
@@ -77,6 +84,7 @@ class DefinitionParser(TokenParser):
         return body
 
     def body_statement(self, owner: str, env: dict[str, int], formal: dict[str, int]):
+        """Parse one statement of a gate body (a call or a barrier)."""
         tok = self.tok
         if tok.kind != "id":
             raise self.error(
@@ -107,6 +115,7 @@ class DefinitionParser(TokenParser):
         return Call(gate, tuple(codes), indices)
 
     def formal_args(self, formal: dict[str, int], owner: str) -> list[Token]:
+        """Parse the qubit arguments of a call inside a gate body."""
         args = []
         while True:
             tok = self.expect_id(f"a qubit argument of gate '{owner}'")
@@ -126,6 +135,7 @@ class DefinitionParser(TokenParser):
             self.advance()
 
     def make_gate(self, name: Token, n_params: int, n_qubits: int, body, tokens) -> Gate:
+        """Build the :class:`Gate` record of a parsed definition."""
         line, column = self.source.where(name.offset)
         origin = f"{self.source.name}:{line}:{column}"
         if EXTENSION_TOKENS.get(name.text) == tokens:

@@ -9,18 +9,50 @@ built-ins ``U`` and ``CX`` are always available and become ``u`` and ``cx``.
 from __future__ import annotations
 
 __all__ = [
-    "QELIB1_GATES",
     "BUILTIN_GATES",
     "EXTENSION_DEFINITIONS",
     "KEYWORDS",
+    "QELIB1_GATES",
     "RESERVED",
     "UNITARY_ONLY",
 ]
 
-_QELIB1_NAMES = (
-    "u3 u2 u1 cx id u p x y z h s sdg t tdg sx sxdg rx ry rz cz cy ch swap ccx cswap "
-    "crx cry crz cu1 cp cu3 rxx rzz"
-).split()
+_QELIB1_NAMES = [
+    "u3",
+    "u2",
+    "u1",
+    "cx",
+    "id",
+    "u",
+    "p",
+    "x",
+    "y",
+    "z",
+    "h",
+    "s",
+    "sdg",
+    "t",
+    "tdg",
+    "sx",
+    "sxdg",
+    "rx",
+    "ry",
+    "rz",
+    "cz",
+    "cy",
+    "ch",
+    "swap",
+    "ccx",
+    "cswap",
+    "crx",
+    "cry",
+    "crz",
+    "cu1",
+    "cp",
+    "cu3",
+    "rxx",
+    "rzz",
+]
 
 QELIB1_GATES: dict[str, str] = {name: name for name in _QELIB1_NAMES} | {"u0": "id"}
 """qelib1.inc gate name -> the tnsim gate it is read as (``u0(γ)`` is the identity)."""
@@ -53,11 +85,25 @@ keeps the gate as the single native tnsim operation.
 """
 
 KEYWORDS = frozenset(
-    "OPENQASM include qreg creg gate opaque barrier measure reset if U CX pi".split()
+    [
+        "OPENQASM",
+        "include",
+        "qreg",
+        "creg",
+        "gate",
+        "opaque",
+        "barrier",
+        "measure",
+        "reset",
+        "if",
+        "U",
+        "CX",
+        "pi",
+    ]
 )
 """Words of the language that cannot name a register, gate or parameter."""
 
-RESERVED = KEYWORDS | frozenset("sin cos tan exp ln sqrt".split())
+RESERVED = KEYWORDS | frozenset(["sin", "cos", "tan", "exp", "ln", "sqrt"])
 """Every name a program cannot declare (keywords and the expression functions)."""
 
 UNITARY_ONLY = ("reset", "if", "opaque")

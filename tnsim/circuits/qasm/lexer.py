@@ -15,7 +15,7 @@ from typing import NamedTuple
 
 from tnsim.errors import QasmError
 
-__all__ = ["SKIP", "Token", "Source", "Lexer", "describe", "canonical"]
+__all__ = ["SKIP", "Lexer", "Source", "Token", "canonical", "describe"]
 
 SKIP = r"(?:\s|//[^\n]*(?![^\n]))*(?!\s|//)"
 """Regex for all blanks, newlines and ``//`` comments at a position.  It matches only the
@@ -52,11 +52,11 @@ _new_token = tuple.__new__  # skips the Python-level NamedTuple constructor
 
 
 class Source:
-    """The text of one file (or string) and its name, for positions in messages.
+    r"""The text of one file (or string) and its name, for positions in messages.
 
     Examples
     --------
-    >>> Source("ab\\ncd", "<text>").where(4)
+    >>> Source("ab\ncd", "<text>").where(4)
     (2, 2)
     """
 

@@ -22,6 +22,7 @@ class TokenParser:
         self.recording: list[tuple[str, str]] | None = None
 
     def advance(self) -> Token:
+        """Return the current token and move to the next one."""
         tok = self.tok
         if self.recording is not None:
             self.recording.append((tok.kind, tok.text))
@@ -30,13 +31,16 @@ class TokenParser:
         return tok
 
     def error(self, message: str, tok: Token | None = None) -> QasmError:
+        """A :class:`QasmError` located at ``tok`` (default: the current token)."""
         tok = self.tok if tok is None else tok
         return self.source.error(message, tok.offset)
 
     def at(self, text: str) -> bool:
+        """Whether the current token's text is ``text``."""
         return self.tok.text == text and self.tok.kind in ("sym", "id")
 
     def expect(self, text: str, context: str = "") -> Token:
+        """Consume a token whose text is ``text``, or raise an error naming ``context``."""
         if not self.at(text):
             hint = " (every statement ends with ';')" if text == ";" else ""
             where = f" {context}" if context else ""
@@ -44,11 +48,13 @@ class TokenParser:
         return self.advance()
 
     def expect_id(self, what: str) -> Token:
+        """Consume an identifier token, or raise an error naming ``what``."""
         if self.tok.kind != "id":
             raise self.error(f"expected {what}, found {describe(self.tok)}")
         return self.advance()
 
     def expect_int(self, what: str) -> tuple[int, Token]:
+        """Consume a non-negative integer literal; return its value and token."""
         tok = self.tok
         if tok.kind != "int":
             raise self.error(f"expected {what} (a non-negative integer), found {describe(tok)}")
@@ -58,10 +64,12 @@ class TokenParser:
         return int(tok.text), tok
 
     def new_name(self, tok: Token, kind: str) -> None:
+        """Refuse a name already used by a register or gate."""
         if tok.text in RESERVED:
             raise self.error(f"'{tok.text}' is a reserved word and cannot name a {kind}", tok)
 
     def lookup(self, tok: Token) -> Gate:
+        """The gate a name refers to, or an error naming the unknown gate."""
         gate = BUILTINS.get(tok.text) or self.program.gates.get(tok.text)
         if gate is not None:
             return gate
@@ -76,6 +84,7 @@ class TokenParser:
         raise self.error(f"unknown gate '{tok.text}'; {hint}", tok)
 
     def param_list(self, env: dict[str, int] | None) -> list[Code]:
+        """Parse a parenthesised parameter list into compiled expressions."""
         if not self.at("("):
             return []
         self.advance()
@@ -91,6 +100,7 @@ class TokenParser:
         return codes
 
     def check_counts(self, gate: Gate, tok: Token, n_params: int, n_qubits: int) -> None:
+        """Refuse a call with the wrong number of parameters or qubits."""
         if n_params != gate.num_params:
             raise self.error(
                 f"gate '{tok.text}' takes {gate.num_params} parameter(s), got {n_params}", tok
@@ -102,6 +112,7 @@ class TokenParser:
             )
 
     def check_distinct(self, qubits, args, gate_name: str, label) -> None:
+        """Refuse a call that names the same qubit twice."""
         if len(set(qubits)) == len(qubits):
             return
         for j, q in enumerate(qubits):

@@ -15,6 +15,7 @@ class StatementParser(DefinitionParser):
     """Adds ``qreg``/``creg``, gate calls with broadcasting, ``barrier`` and ``measure``."""
 
     def register(self, kind: str) -> None:
+        """Parse a ``qreg`` or ``creg`` declaration."""
         self.advance()
         name = self.expect_id(f"a {kind} name")
         self.new_name(name, "register")
@@ -35,6 +36,7 @@ class StatementParser(DefinitionParser):
             self.program.cregs[name.text] = size
 
     def application(self) -> None:
+        """Parse one gate application and append its expansion to the program."""
         tok = self.advance()
         gate = self.lookup(tok)
         codes = self.param_list(None)
@@ -65,9 +67,11 @@ class StatementParser(DefinitionParser):
             self.program.emit(template, qubits)
 
     def qname(self, qubit: int) -> str:
+        """The register-and-index name of a global qubit number, for messages."""
         return f"qubit {self.program.qubit_name(qubit)}"
 
     def reserve(self, count: int, tok: Token) -> None:
+        """Refuse a program that would exceed the cap on operations."""
         total = self.program.op_count + count
         if total > self.program.max_ops:
             raise self.error(
@@ -78,6 +82,7 @@ class StatementParser(DefinitionParser):
         self.program.op_count = total
 
     def broadcast_size(self, args: list[Arg]) -> int:
+        """Length shared by the register arguments of a broadcast statement."""
         size = None
         for arg in args:
             if arg.register:
@@ -91,6 +96,7 @@ class StatementParser(DefinitionParser):
         return 1 if size is None else size
 
     def arg_list(self, *, quantum: bool) -> list[Arg]:
+        """Parse the comma-separated arguments of a statement."""
         args = [self.argument(quantum)]
         while self.at(","):
             self.advance()
@@ -98,6 +104,7 @@ class StatementParser(DefinitionParser):
         return args
 
     def argument(self, quantum: bool) -> Arg:
+        """Parse one argument: a whole register or one indexed bit."""
         kind = "qubit" if quantum else "classical"
         tok = self.expect_id(f"a {kind} register name")
         offset, size = self.find_register(tok, quantum)
@@ -115,6 +122,7 @@ class StatementParser(DefinitionParser):
         return Arg(range(offset + index, offset + index + 1), False, tok)
 
     def find_register(self, tok: Token, quantum: bool) -> tuple[int, int]:
+        """The first global index and size of the named register."""
         mine = self.program.qregs if quantum else {n: (0, s) for n, s in self.program.cregs.items()}
         if tok.text in mine:
             return mine[tok.text]
@@ -129,11 +137,13 @@ class StatementParser(DefinitionParser):
         )
 
     def barrier(self) -> None:
+        """Parse a ``barrier`` statement (it changes nothing)."""
         self.advance()
         self.arg_list(quantum=True)
         self.expect(";", "after the barrier")
 
     def measure(self) -> None:
+        """Parse a ``measure`` statement."""
         self.advance()
         qarg = self.argument(quantum=True)
         self.expect("->", "between the measured qubits and the classical bits")
