@@ -271,3 +271,22 @@ def test_absurd_slice_count_is_refused():
     tree = greedy_tree(tn.indices, tn.output, tn.size)
     with pytest.raises(ResourceLimitError, match="slices"):
         execute(tn, tree, list(range(n)))
+
+
+def test_run_options_log_records_each_contraction():
+    # The log counts what ran: FLOPs from the compiled steps times the slices, and the slices.
+    from tnsim.execution.options import run_options
+    from tnsim.plan.driver import greedy_tree
+
+    arrays = [np.ones((2, 2)), np.ones((2, 2)), np.ones((2, 2))]
+    tn = TensorGraph(arrays, [(0, 1), (1, 2), (2, 0)], {0: 2, 1: 2, 2: 2})
+    tree = greedy_tree(tn.indices, tn.output, tn.size)
+    log: list = []
+    with run_options(log=log):
+        whole = complex(execute(tn, tree))
+        cut = complex(execute(tn, tree, sliced=[1]))
+    assert whole == cut == 8
+    assert [r.num_slices for r in log] == [1, 2]
+    assert log[0].flops == count_flops(compile_tree(tree))
+    assert log[1].flops == 2 * count_flops(compile_tree(tree, [1]))
+    assert all(r.seconds >= 0 and r.itemsize == 16 and r.workers == 1 for r in log)

@@ -27,7 +27,13 @@ from tnsim.errors import InputError
 from tnsim.execution.memory import default_memory_limit
 from tnsim.units import parse_memory
 
-__all__ = ["RunOptions", "current_options", "run_options", "slice_memory_limit"]
+__all__ = [
+    "ContractionRecord",
+    "RunOptions",
+    "current_options",
+    "run_options",
+    "slice_memory_limit",
+]
 
 
 @dataclass(frozen=True)
@@ -48,6 +54,9 @@ class RunOptions:
         Progress bar (``None``: automatic, only on a terminal for large work).
     backend : str
         Array library (``"numpy"``, ``"cupy"``, ``"torch"`` ...).
+    log : list, optional
+        A list that every contraction of the block appends its
+        :class:`ContractionRecord` to (what ran: FLOPs, slices, memory, seconds).
     """
 
     memory_limit: int | None = None
@@ -56,6 +65,7 @@ class RunOptions:
     checkpoint: str | None = None
     progress: bool | Callable[[int, int], None] | None = None
     backend: str = "numpy"
+    log: list[ContractionRecord] | None = None
     counter: list = field(default_factory=lambda: [0], compare=False, repr=False)
 
     def next_checkpoint(self) -> str | None:
@@ -65,6 +75,41 @@ class RunOptions:
         k = self.counter[0]
         self.counter[0] += 1
         return os.path.join(self.checkpoint, f"part-{k:05d}.ckpt")
+
+
+@dataclass(frozen=True)
+class ContractionRecord:
+    """What one contraction ran, appended to ``RunOptions.log`` when a block keeps a log.
+
+    Attributes
+    ----------
+    flops : int
+        Real FLOPs of all slices run (complex multiply-add = 8), counted from
+        the compiled steps; chunks found in a checkpoint are not counted.
+    num_slices : int
+        Slices of the plan.
+    slices_run : int
+        Slices contracted by this call (fewer after a resume).
+    peak_bytes : int
+        Bytes of intermediates one slice needs, as the executor allocates them.
+    memory_limit : int
+        The limit the run was checked against, in bytes.
+    workers : int
+        Local worker processes (1 = serial; an executor counts as 1).
+    seconds : float
+        Wall time of the contraction (planning not included).
+    itemsize : int
+        Bytes per element of the dtype contracted.
+    """
+
+    flops: int
+    num_slices: int
+    slices_run: int
+    peak_bytes: int
+    memory_limit: int
+    workers: int
+    seconds: float
+    itemsize: int
 
 
 _CURRENT: ContextVar[RunOptions | None] = ContextVar("tnsim_run_options", default=None)

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 import os
+import time
 from collections.abc import Callable, Sequence
 from concurrent.futures import Executor
 from dataclasses import dataclass
@@ -23,7 +24,7 @@ from tnsim.execution.backends import get_backend
 from tnsim.execution.checkpoint import Checkpoint, OrderedSum, run_fingerprint
 from tnsim.execution.executors import SliceError, chunk_bounds, local_workers, run_chunks
 from tnsim.execution.memory import default_memory_limit
-from tnsim.execution.options import current_options
+from tnsim.execution.options import ContractionRecord, current_options
 from tnsim.execution.progress import SliceProgress
 from tnsim.execution.steps import PairStep, compile_tree, count_flops, peak_memory
 from tnsim.execution.treerun import contract_tree
@@ -268,6 +269,7 @@ def execute(
         record(index, value)
         bar.advance(bounds[index][1] - bounds[index][0])
 
+    began = time.perf_counter()
     try:
         run_chunks(
             contract_slices,
@@ -281,4 +283,18 @@ def execute(
     finally:
         bar.close()
     total = sums.total()
+    if opts.log is not None:
+        run = sum(bounds[i][1] - bounds[i][0] for i in todo)
+        opts.log.append(
+            ContractionRecord(
+                flops=slice_flops * run,
+                num_slices=num_slices,
+                slices_run=run,
+                peak_bytes=need,
+                memory_limit=limit,
+                workers=pool,
+                seconds=time.perf_counter() - began,
+                itemsize=np.dtype(network.dtype).itemsize,
+            )
+        )
     return Scaled(total.mantissa, total.exponent + network.exponent)
