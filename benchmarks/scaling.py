@@ -81,14 +81,12 @@ def math_prod(shape) -> int:
 
 
 def matmul_rate(n: int = 2048) -> float:
-    """Measured complex64 matrix-multiply rate in FLOP/s (8 n^3 FLOPs per product)."""
+    """Measured complex64 matrix-multiply rate in FLOP/s (8 n^3 FLOPs per product), fresh."""
     import numpy as np
 
-    rng = np.random.default_rng(0)
-    a = (rng.random((n, n)) + 1j * rng.random((n, n))).astype(np.complex64)
-    b = (rng.random((n, n)) + 1j * rng.random((n, n))).astype(np.complex64)
-    a @ b
-    return 8 * n**3 / _best(lambda: a @ b, 3)
+    from tnsim.execution.rate import matmul_rate as measure_rate
+
+    return measure_rate(np.complex64, n=n, refresh=True)
 
 
 def section_rate() -> None:
@@ -160,11 +158,9 @@ def section_workers(num_sliced: int = 5) -> None:
 
 
 def _forecast_rate(dtype) -> tuple[float, str]:
-    """The planner's measured matmul rate if it has one, else this script's."""
-    try:
-        from tnsim.execution.rate import matmul_rate as planner_rate
-    except ImportError:
-        return matmul_rate(), "scaling.py 2048^3"
+    """The matmul rate tnsim's forecasts use (measured once, cached)."""
+    from tnsim.execution.rate import matmul_rate as planner_rate
+
     return planner_rate(dtype), "tnsim.execution.rate.matmul_rate"
 
 

@@ -6,7 +6,7 @@ Two parts, both measured in this run on this machine:
    random-greedy) for grid-circuit amplitude networks are executed (best of 3)
    and their times fitted as ``a * FLOPs + b * written + c * steps`` (least
    squares on relative error).  ``b / a`` is the cost of writing one element in
-   FLOPs at the contraction rate: ``tnsim.plan.search.WRITE_FLOPS`` was set
+   FLOPs at the contraction rate: ``tnsim.fitted.WRITE_FLOPS`` was set
    from this fit.
 2. *objectives*: ``make_plan(objective="operations")`` against
    ``make_plan(objective="runtime")`` (same time budget), each plan executed,
@@ -29,10 +29,11 @@ import numpy as np
 
 from tnsim.circuits.families import grid_circuit
 from tnsim.execution.slices import execute
+from tnsim.fitted import WRITE_FLOPS
 from tnsim.network.builders import amplitude_network
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import PairTree, make_plan
-from tnsim.plan.search import WRITE_FLOPS, search_path
+from tnsim.plan.search import search_path
 
 
 def _network(rows: int, cols: int, cycles: int):

@@ -458,9 +458,10 @@ def test_time_objective_weighs_elements_written():
     # The same two trials (a sweep, then a bisection) scored two ways: "operations" keeps the
     # tree with fewer FLOPs, "runtime" the one with fewer FLOPs + WRITE_FLOPS * written.
     from tnsim.circuits.families import grid_circuit
+    from tnsim.fitted import WRITE_FLOPS
     from tnsim.network.builders import amplitude_network
     from tnsim.network.simplify import absorb_small
-    from tnsim.plan.search import WRITE_FLOPS, score
+    from tnsim.plan.search import score
 
     net = absorb_small(amplitude_network(grid_circuit(7, 7, 8, seed=0), "0" * 49))
     ins, out, size = net.indices, net.output, net.size

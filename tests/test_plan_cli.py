@@ -92,7 +92,7 @@ def test_forecast_of_a_sliced_plan(qasm_file):
     full = forecast.forecast(circuit)
     cut = forecast.forecast(circuit, memory_limit=max(full.peak_bytes // 4, 1024))
     assert cut.num_slices > 1 and not cut.fits_unsliced and cut.overhead >= 1.0
-    from tnsim.plan.search import WRITE_FLOPS
+    from tnsim.fitted import WRITE_FLOPS
 
     # Elements written: every intermediate of the profile, once per slice.
     assert cut.written == round(sum(2**w for w in cut.profile)) * cut.num_slices

@@ -286,8 +286,8 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     # The decision now lives in plan_for_runs (used for every layer).
     import tnsim.execution.timemodel as forecast
     import tnsim.queries.gatewise as gatewise
+    from tnsim.fitted import WRITE_FLOPS
     from tnsim.plan.driver import make_plan
-    from tnsim.plan.search import WRITE_FLOPS
 
     c = random_circuit(8, 60, seed=2)
     steps = gatewise.gate_steps(c)

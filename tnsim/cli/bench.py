@@ -20,6 +20,7 @@ import numpy as np
 from tnsim.circuits.families import FAMILIES, Family, make_family
 from tnsim.cli.gen import parse_params
 from tnsim.errors import InputError
+from tnsim.execution.rate import matmul_rate as measure_rate
 from tnsim.fileio import write_atomic
 from tnsim.queries.costsweep import (
     PLANNERS,
@@ -27,7 +28,6 @@ from tnsim.queries.costsweep import (
     crossing_size,
     machine_info,
     machine_memory,
-    measure_matmul_rate,
     parse_sizes,
     run_bench,
 )
@@ -210,7 +210,7 @@ def bench_command(args) -> int:
 
     fam, planners, sizes, params = _check_args(args)
     dtype = np.complex128 if args.double else np.complex64
-    rate = measure_matmul_rate(dtype)
+    rate = measure_rate(dtype, n=768, refresh=True)
     with tqdm(
         total=len(sizes) * len(planners),
         disable=args.quiet,

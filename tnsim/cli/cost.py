@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from tnsim.plan.search import WRITE_FLOPS
+from tnsim.fitted import WRITE_FLOPS
 from tnsim.units import format_bytes
 
 if TYPE_CHECKING:

@@ -3,7 +3,7 @@
 A multi-threaded BLAS gains little on the many small products of a shallow
 circuit's contraction, and on a busy machine its spinning threads can make
 them tens of times slower.  The executor therefore runs products below
-:data:`SMALL_PRODUCT` multiply-adds on one thread.  Only OpenBLAS (numpy's
+:data:`~tnsim.fitted.SMALL_PRODUCT` multiply-adds on one thread.  Only OpenBLAS (numpy's
 bundled BLAS) is controlled; with any other BLAS these functions do nothing.
 """
 
@@ -12,10 +12,7 @@ from __future__ import annotations
 import ctypes
 import functools
 
-__all__ = ["SMALL_PRODUCT", "blas_threads", "set_blas_threads"]
-
-#: Products with fewer complex multiply-adds than this run on one BLAS thread.
-SMALL_PRODUCT = 1 << 26
+__all__ = ["blas_threads", "set_blas_threads"]
 
 _SETTERS = (
     "scipy_openblas_set_num_threads64_",

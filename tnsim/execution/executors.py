@@ -33,11 +33,10 @@ from typing import Any
 
 from tnsim.errors import TnsimError
 from tnsim.execution.blas import set_blas_threads
+from tnsim.fitted import CHUNK_FLOPS
 
 __all__ = ["SliceError", "chunk_bounds", "local_workers", "run_chunks"]
 
-#: FLOPs per task the chunking aims at (about a second of one core's work).
-CHUNK_FLOPS = 2e9
 #: The most chunks a contraction is split into.
 MAX_CHUNKS = 4096
 
@@ -56,7 +55,7 @@ def chunk_bounds(
     num_slices : int
         Number of slices.
     slice_flops : float
-        FLOPs of one slice; chunks aim at :data:`CHUNK_FLOPS` each.
+        FLOPs of one slice; chunks aim at :data:`~tnsim.fitted.CHUNK_FLOPS` each.
     chunk_size : int, optional
         Slices per chunk, overriding the automatic choice.
 

@@ -1,16 +1,16 @@
 """The time model: how long a plan will run on this machine, and planning for many runs.
 
 A forecast divides the plan's FLOPs, plus a fitted cost per element of
-intermediates written (:data:`tnsim.plan.search.WRITE_FLOPS`), by this
+intermediates written (:data:`tnsim.fitted.WRITE_FLOPS`), by this
 machine's measured matmul rate (:func:`tnsim.execution.rate.matmul_rate`).
 """
 
 from __future__ import annotations
 
 from tnsim.execution.rate import matmul_rate
+from tnsim.fitted import WRITE_FLOPS
 from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import Plan, make_plan
-from tnsim.plan.search import WRITE_FLOPS
 
 __all__ = ["elements_written", "forecast_seconds", "plan_for_runs"]
 
@@ -23,7 +23,7 @@ def elements_written(p: Plan) -> int:
 def forecast_seconds(flops: int, written: int, rate: float) -> float:
     """Forecast run time of ``flops`` and ``written`` elements at ``rate`` FLOP/s.
 
-    The FLOPs plus :data:`~tnsim.plan.search.WRITE_FLOPS` per element written,
+    The FLOPs plus :data:`~tnsim.fitted.WRITE_FLOPS` per element written,
     at the measured matmul rate (:func:`matmul_rate`).
 
     Examples

@@ -13,8 +13,9 @@ from collections.abc import Sequence
 import numpy as np
 
 from tnsim.execution.backends import ArrayBackend, get_backend
-from tnsim.execution.blas import SMALL_PRODUCT, blas_threads, set_blas_threads
+from tnsim.execution.blas import blas_threads, set_blas_threads
 from tnsim.execution.steps import PairStep, apply_owned, compile_tree
+from tnsim.fitted import SMALL_PRODUCT
 from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
 from tnsim.plan.tree import PairTree
 

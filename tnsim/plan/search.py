@@ -21,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 import opt_einsum.paths as oe_paths
 
+from tnsim.fitted import WRITE_FLOPS
 from tnsim.plan.builder import plan_coarse
 from tnsim.plan.elimination import elimination_path
 from tnsim.plan.partition import bisection_path, sweep_path
@@ -29,7 +30,6 @@ from tnsim.plan.tree import TreeCost, join_pairwise, tree_cost
 
 __all__ = [
     "OBJECTIVES",
-    "WRITE_FLOPS",
     "SearchResult",
     "random_greedy_path",
     "score",
@@ -37,16 +37,6 @@ __all__ = [
 ]
 
 OBJECTIVES = ("operations", "runtime", "footprint")
-
-WRITE_FLOPS = 400
-"""FLOPs that writing one element of an intermediate costs in time, at the matmul rate.
-
-Fitted on the development machine (2-core x86-64, numpy's OpenBLAS, complex128) by
-``python benchmarks/time_model.py``: execution time = FLOPs / (6.1-7.2e10 FLOP/s) +
-5.0-5.4 ns per element written (+ a per-step term), over 17 plans of grid circuits with
-10^6.8 to 10^10.4 FLOPs; 300 and 390 FLOPs per element in two runs.  Sweeps, whose
-every step rewrites the whole front to absorb one small tensor, need up to 3x fewer
-FLOPs than bisection trees there but ran 3-4x slower."""
 
 
 @dataclass(frozen=True)
@@ -81,7 +71,7 @@ class SearchResult:
 def score(cost: TreeCost, objective: str = "operations", memory_limit: int | None = None) -> float:
     """Objective value of a tree's cost (lower is better).
 
-    ``"operations"``: the FLOPs; ``"runtime"``: FLOPs plus :data:`WRITE_FLOPS`
+    ``"operations"``: the FLOPs; ``"runtime"``: FLOPs plus :data:`~tnsim.fitted.WRITE_FLOPS`
     per element written (a model of run time in FLOPs at the matmul rate);
     ``"footprint"``: the largest intermediate, then FLOPs.  With
     ``memory_limit`` (bytes) a tree whose peak exceeds it is charged the

@@ -42,7 +42,6 @@ __all__ = [
     "BenchRecord",
     "crossing_size",
     "machine_memory",
-    "measure_matmul_rate",
     "parse_sizes",
     "plan_with",
     "run_bench",
@@ -126,22 +125,6 @@ def plan_with(
         opt = opt_einsum.RandomGreedy(max_repeats=64, max_time=time_budget, minimize="flops")
         return _opt_einsum_plan(network, opt, planner, start)
     raise InputError(f"unknown planner {planner!r}; choose from {', '.join(PLANNERS)}")
-
-
-def measure_matmul_rate(dtype=np.complex64, n: int = 768, repeats: int = 3) -> float:
-    """Return the best measured rate of one ``n``×``n`` complex matrix product, in real FLOP/s.
-
-    A complex ``n``×``n`` product is ``8 n³`` real FLOPs.
-    """
-    rng = np.random.default_rng(0)
-    a = (rng.standard_normal((n, n)) + 1j * rng.standard_normal((n, n))).astype(dtype)
-    b = a.T.copy()
-    best = math.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        a @ b
-        best = min(best, time.perf_counter() - t0)
-    return 8.0 * n**3 / max(best, 1e-9)
 
 
 def machine_memory() -> int:
