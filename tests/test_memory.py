@@ -10,7 +10,7 @@ import pytest
 
 from tnsim.errors import InputError
 from tnsim.execution.memory import available_memory, default_memory_limit
-from tnsim.execution.options import current_options, run_options, slice_memory_limit
+from tnsim.execution.options import current_options, resolve_options, run_options
 from tnsim.units import format_bytes, parse_memory
 
 
@@ -61,12 +61,34 @@ def test_format_bytes():
 def test_run_options_scope_and_slice_budget():
     with run_options(memory_limit="8GiB", workers=4):
         assert current_options().memory_limit == 8 * 2**30
-        assert slice_memory_limit() == 2 * 2**30
-        assert slice_memory_limit("1GiB") == 2**28
+        assert resolve_options().slice_limit == 2 * 2**30
+        assert resolve_options("1GiB").slice_limit == 2**28
+        assert resolve_options("1GiB").memory_limit == 2**30
         with run_options(workers=1):
-            assert slice_memory_limit() == 8 * 2**30
+            assert resolve_options().slice_limit == 8 * 2**30
     assert current_options().workers is None
     with pytest.raises(InputError, match="workers"), run_options(workers=0):
+        pass
+
+
+def test_resolve_options_argument_over_block_over_default():
+    import numpy as np
+
+    assert resolve_options().memory_limit == pytest.approx(default_memory_limit(), rel=0.2)
+    assert resolve_options().dtype == np.complex128
+    with run_options(memory_limit=2**20, dtype="complex64", progress=False, backend="numpy"):
+        opts = resolve_options()
+        assert (opts.memory_limit, opts.dtype, opts.progress) == (2**20, np.complex64, False)
+        opts = resolve_options("3 KiB", dtype=np.complex128, progress=True)
+        assert (opts.memory_limit, opts.dtype, opts.progress) == (3072, np.complex128, True)
+        # an executor given to one call means no local workers, whatever the block says
+        with run_options(workers=4):
+            assert resolve_options().slice_limit == 2**18
+            assert resolve_options(executor=object()).slice_limit == 2**20
+    for bad in ({"memory_limit": "lots"}, {"dtype": "float64"}, {"workers": 0}):
+        with pytest.raises(InputError):
+            resolve_options(**bad)
+    with pytest.raises(InputError, match="dtype"), run_options(dtype=np.float32):
         pass
 
 
@@ -118,7 +140,7 @@ def test_fit_plan_fits_the_executor_count(sliced_case):
     full = plan_peak_memory(network, make_plan(network))
     limit = full // 3
     try:
-        plan = fit_plan(network, limit)
+        plan = fit_plan(network, resolve_options(limit))
     except ResourceLimitError as exc:  # a planner that cannot slice enough
         message = str(exc)
         assert "at least" in message

@@ -13,10 +13,16 @@ import numpy as np
 
 from tnsim.errors import InputError
 
-__all__ = ["format_bits", "parse_bits", "parse_many", "read_bits_file"]
+__all__ = ["Bitstring", "Bitstrings", "format_bits", "parse_bits", "parse_many", "read_bits_file"]
+
+Bitstring = str | Sequence[int]
+"""One bitstring: text such as ``"0110"`` (character i is qubit i) or a sequence of 0/1."""
+
+Bitstrings = Iterable[str | Sequence[int]] | np.ndarray
+"""Several bitstrings: an iterable of :data:`Bitstring`, or a ``(count, n)`` array of 0/1."""
 
 
-def parse_bits(bits: str | Sequence[int], num_qubits: int, *, where: str = "") -> np.ndarray:
+def parse_bits(bits: Bitstring, num_qubits: int, *, where: str = "") -> np.ndarray:
     """Turn a bitstring into an array of 0/1 of length ``num_qubits``.
 
     Parameters
@@ -65,14 +71,26 @@ def parse_bits(bits: str | Sequence[int], num_qubits: int, *, where: str = "") -
     return arr
 
 
-def parse_many(bitstrings: Iterable[str | Sequence[int]], num_qubits: int) -> np.ndarray:
+def parse_many(bitstrings: Bitstrings, num_qubits: int) -> np.ndarray:
     """Parse several bitstrings into a ``(count, num_qubits)`` ``uint8`` array.
+
+    ``bitstrings`` is an iterable of bitstrings (text or 0/1 sequences) or a
+    2-D array of 0s and 1s, one row per bitstring.
 
     Examples
     --------
     >>> parse_many(["01", "10"], 2).tolist()
     [[0, 1], [1, 0]]
+    >>> parse_many(np.array([[1, 1]]), 2).tolist()
+    [[1, 1]]
     """
+    if isinstance(bitstrings, np.ndarray) and bitstrings.ndim == 2:
+        if bitstrings.shape[1] != num_qubits or not np.isin(bitstrings, (0, 1)).all():
+            raise InputError(
+                f"bitstring array must be (count, {num_qubits}) of 0s and 1s, "
+                f"got shape {bitstrings.shape}; give one row of bits per bitstring"
+            )
+        return np.asarray(bitstrings, dtype=np.uint8)
     rows = [parse_bits(b, num_qubits, where=f"bitstring {k}: ") for k, b in enumerate(bitstrings)]
     if not rows:
         return np.zeros((0, num_qubits), dtype=np.uint8)

@@ -12,25 +12,22 @@ steps above the ``E`` leaves are redone for each chunk of the batch.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 import numpy as np
 
+from tnsim.execution.options import QueryOptions, resolve_options
 from tnsim.execution.slices import execute
 from tnsim.execution.steps import apply_step, compile_tree, count_flops, largest_intermediate
 from tnsim.execution.timemodel import plan_for_runs
+from tnsim.fitted import BATCH_ELEMENTS
 from tnsim.network.graph import TensorGraph
 from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import PairTree, Plan, make_plan
 from tnsim.plan.vectors import plan_vectors_first
 
-__all__ = ["BATCH_ELEMENTS", "BatchContraction", "fitted_engine"]
-
-BATCH_ELEMENTS = 1 << 21
-"""Most elements of one intermediate of a batch (batches of larger arrays ran up to 2x
-slower on 7x7 grid circuits: arrays over the allocator's reuse threshold, 32 MiB, come
-as fresh pages on every step)."""
+__all__ = ["BatchContraction", "fitted_engine"]
 
 
 class BatchContraction:
@@ -46,8 +43,10 @@ class BatchContraction:
         Output labels kept open in the result.
     chunk : int
         Batch members per run (shorter runs are padded).
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    options : QueryOptions, optional
+        The query's resolved options (default :func:`~tnsim.execution.options.resolve_options`
+        ``()``): plans are made for ``options.slice_limit``, sliced runs checked
+        against ``options.memory_limit``.
     plan : Plan, optional
         The plan of one batch member, from an engine built on the same network
         (its ``plan`` attribute), to change ``chunk`` without planning again.
@@ -72,10 +71,11 @@ class BatchContraction:
         batch_labels: Sequence[int],
         open_labels: Sequence[int],
         chunk: int,
-        memory_limit: int | None = None,
+        options: QueryOptions | None = None,
         plan: Plan | None = None,
         runs: float | None = None,
     ):
+        self.options = resolve_options() if options is None else options
         self.batch_labels = tuple(batch_labels)
         self.chunk = int(chunk)
         base = absorb_small(network)
@@ -110,7 +110,7 @@ class BatchContraction:
         )
         if plan is None:
             vectors = range(self.num_fixed, self.num_fixed + len(self.batch_labels))
-            plan = plan_vectors_first(single, vectors, _planner(memory_limit, runs))
+            plan = plan_vectors_first(single, vectors, _planner(self.options.slice_limit, runs))
         self.plan = plan
         self.tree = PairTree(tuple(inputs), self.network.output, size, plan.tree.path)
         self.sliced = tuple(plan.sliced)
@@ -186,7 +186,7 @@ class BatchContraction:
                 net.exponent,
                 net.dtype,
             )
-            out = execute(full, self.tree, self.sliced)
+            out = execute(full, self.tree, self.sliced, memory_limit=self.options.memory_limit)
             return Scaled(out.mantissa[:count], out.exponent)
         return self._run_cached(leaves, count)
 
@@ -218,7 +218,7 @@ class BatchContraction:
         return Scaled(root, exponent + e + self.network.exponent)
 
 
-def _planner(memory_limit: int | None, runs: float | None):
+def _planner(memory_limit: int, runs: float | None) -> Callable[[TensorGraph], Plan]:
     """The planner of a batch member's network: searched longer for many ``runs``."""
     if runs is not None:
         return lambda net: plan_for_runs(net, runs, memory_limit=memory_limit)
@@ -230,7 +230,7 @@ def fitted_engine(
     batch_labels: Sequence[int],
     open_labels: Sequence[int],
     chunk: int,
-    memory_limit: int,
+    options: QueryOptions,
     *,
     least: int = 1,
     plan: Plan | None = None,
@@ -239,8 +239,8 @@ def fitted_engine(
     """A :class:`BatchContraction` whose chunk is halved (not below ``least``) to fit.
 
     The chunk shrinks until three copies of the largest intermediate of a run
-    (operands' copies and the result) fit ``memory_limit`` bytes and the
-    largest intermediate redone per run has at most :data:`BATCH_ELEMENTS`
+    (operands' copies and the result) fit ``options.memory_limit`` bytes and the
+    largest intermediate redone per run has at most :data:`~tnsim.fitted.BATCH_ELEMENTS`
     elements; the plan of one batch member is made once and reused.
 
     Examples
@@ -248,18 +248,16 @@ def fitted_engine(
     >>> from tnsim import Circuit
     >>> from tnsim.network.builders import amplitude_network
     >>> tn = amplitude_network(Circuit(3).h(0).cx(0, 1).cx(1, 2), None, open_qubits=[0, 1, 2])
-    >>> fitted_engine(tn, tn.output, (), 64, 16 * 3 * 64).chunk
+    >>> fitted_engine(tn, tn.output, (), 64, resolve_options(16 * 3 * 64)).chunk
     16
     """
     while True:
-        engine = BatchContraction(
-            network, batch_labels, open_labels, chunk, memory_limit, plan, runs
-        )
+        engine = BatchContraction(network, batch_labels, open_labels, chunk, options, plan, runs)
         need = largest_intermediate(engine.steps) * engine.dtype.itemsize * 3
         n = engine.tree.num_leaves
         redone = [s for s, v in zip(engine.steps, engine.varying[n:]) if v]
         if chunk <= least or (
-            need <= memory_limit and largest_intermediate(redone) <= BATCH_ELEMENTS
+            need <= options.memory_limit and largest_intermediate(redone) <= BATCH_ELEMENTS
         ):
             return engine
         chunk, plan = max(least, chunk // 2), engine.plan

@@ -2,16 +2,17 @@
 
 The planner counts memory as the executor allocates it (operand copies
 included, :func:`tnsim.plan.tree.tree_cost`), so a plan sliced to a limit runs
-under it.  :func:`fit_plan` resolves the limit a query runs under (the
-argument, else the enclosing :func:`tnsim.execution.options.run_options` block's, else
-half of the available memory, divided among local workers) and plans for it.
+under it.  :func:`fit_plan` plans for the per-slice limit of a query's
+resolved options (:func:`tnsim.execution.options.resolve_options`: the
+argument, else the enclosing ``run_options`` block's, else half of the
+available memory, divided among local workers).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from tnsim.execution.options import slice_memory_limit
+from tnsim.execution.options import QueryOptions
 from tnsim.execution.steps import compile_tree, peak_memory
 from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import Plan, make_plan
@@ -25,17 +26,16 @@ def plan_peak_memory(network: TensorGraph, plan: Plan) -> int:
     return peak_memory(plan.tree, steps, np.dtype(network.dtype).itemsize)
 
 
-def fit_plan(network: TensorGraph, memory_limit: int | str | None = None, *, seed: int = 0) -> Plan:
-    """Return a plan whose slices run within ``memory_limit`` by the executor's count.
+def fit_plan(network: TensorGraph, options: QueryOptions, *, seed: int = 0) -> Plan:
+    """Return a plan whose slices run within the options' limit by the executor's count.
 
     Parameters
     ----------
     network : TensorGraph
         The (simplified) network.
-    memory_limit : int or str, optional
-        Bytes or text such as ``"4GiB"``; default the enclosing
-        :func:`tnsim.execution.options.run_options` block's, else half of the available
-        memory.  Divided among local worker processes running at once.
+    options : QueryOptions
+        The query's resolved options; the plan is made for ``options.slice_limit``
+        (the memory limit divided among local worker processes running at once).
     seed : int
         Passed to the planner.
 
@@ -47,9 +47,10 @@ def fit_plan(network: TensorGraph, memory_limit: int | str | None = None, *, see
     Examples
     --------
     >>> from tnsim import Circuit
+    >>> from tnsim.execution.options import resolve_options
     >>> from tnsim.network.builders import amplitude_network
     >>> tn = amplitude_network(Circuit(2).h(0).cx(0, 1), "11")
-    >>> plan_peak_memory(tn, fit_plan(tn, "1MiB")) <= 2**20
+    >>> plan_peak_memory(tn, fit_plan(tn, resolve_options("1MiB"))) <= 2**20
     True
     """
-    return make_plan(network, memory_limit=slice_memory_limit(memory_limit), seed=seed)
+    return make_plan(network, memory_limit=options.slice_limit, seed=seed)

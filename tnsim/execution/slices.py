@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import os
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from concurrent.futures import Executor
 from dataclasses import dataclass
 
@@ -23,15 +23,14 @@ from tnsim.errors import InputError, ResourceLimitError
 from tnsim.execution.backends import get_backend
 from tnsim.execution.checkpoint import Checkpoint, OrderedSum, run_fingerprint
 from tnsim.execution.executors import SliceError, chunk_bounds, local_workers, run_chunks
-from tnsim.execution.memory import default_memory_limit
-from tnsim.execution.options import ContractionRecord, current_options
+from tnsim.execution.options import ContractionRecord, MemoryLimit, Progress, resolve_options
 from tnsim.execution.progress import SliceProgress
 from tnsim.execution.steps import PairStep, compile_tree, count_flops, peak_memory
 from tnsim.execution.treerun import contract_tree
 from tnsim.network.graph import TensorGraph
 from tnsim.network.scaled import Scaled
 from tnsim.plan.tree import PairTree
-from tnsim.units import format_bytes, parse_memory
+from tnsim.units import format_bytes
 
 __all__ = ["SliceJob", "contract_slices", "execute"]
 
@@ -154,11 +153,11 @@ def execute(
     tree: PairTree,
     sliced: Sequence[int] = (),
     *,
-    memory_limit: int | str | None = None,
+    memory_limit: MemoryLimit | None = None,
     executor: Executor | None = None,
     workers: int | None = None,
-    checkpoint: str | os.PathLike | None = None,
-    progress: bool | Callable[[int, int], None] | None = None,
+    checkpoint: str | os.PathLike[str] | None = None,
+    progress: Progress = None,
     backend: str | None = None,
     chunk_size: int | None = None,
 ) -> Scaled:
@@ -171,7 +170,8 @@ def execute(
     and however often it was stopped and resumed.
 
     Options left at ``None`` come from the enclosing
-    :func:`tnsim.execution.options.run_options` block, if any.
+    :func:`tnsim.execution.options.run_options` block, if any
+    (:func:`tnsim.execution.options.resolve_options`).
 
     Parameters
     ----------
@@ -229,15 +229,22 @@ def execute(
         return Scaled(np.asarray(np.ones((), network.dtype)), network.exponent)
     sliced = tuple(int(i) for i in sliced)
     _check_sliced(network, sliced)
-    opts = current_options()
-    ops = get_backend(backend if backend is not None else opts.backend)
-    memory_limit = memory_limit if memory_limit is not None else opts.memory_limit
-    limit = default_memory_limit() if memory_limit is None else parse_memory(memory_limit)
-    if executor is None and workers is None:
-        executor, workers = opts.executor, opts.workers
-    progress = opts.progress if progress is None else progress
-    if checkpoint is None:
-        checkpoint = opts.next_checkpoint()
+    opts = resolve_options(
+        memory_limit,
+        executor=executor,
+        workers=workers,
+        checkpoint=checkpoint,
+        progress=progress,
+        backend=backend,
+    )
+    ops = get_backend(opts.backend)
+    limit, executor, workers, progress = (
+        opts.memory_limit,
+        opts.executor,
+        opts.workers,
+        opts.progress,
+    )
+    checkpoint = opts.checkpoint_file()
     steps = compile_tree(tree, sliced)
     need = peak_memory(tree, steps, np.dtype(network.dtype).itemsize)
     job = SliceJob(tuple(network.arrays), tree, sliced, ops.name)

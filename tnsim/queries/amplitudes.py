@@ -10,25 +10,33 @@ differing bits once.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Iterator
+from typing import Literal, overload
 
 import numpy as np
 
-from tnsim.circuits.bits import parse_many
+from tnsim.circuits.bits import Bitstring, Bitstrings, parse_many
 from tnsim.circuits.circuit import Circuit
 from tnsim.execution.batch import fitted_engine
 from tnsim.execution.budget import fit_plan
-from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.execution.rate import matmul_rate
 from tnsim.execution.slices import execute
 from tnsim.execution.timemodel import elements_written, forecast_seconds
+from tnsim.fitted import ROW_SECONDS
 from tnsim.network.builders import amplitude_network
 from tnsim.network.graph import TensorGraph
 from tnsim.network.scaled import Scaled
 from tnsim.network.simplify import absorb_small
-from tnsim.queries.checks import check_circuit, check_dtype
+from tnsim.plan.driver import Plan
+from tnsim.queries.checks import check_circuit
 
-__all__ = ["amplitude", "amplitudes", "contract_network", "iter_amplitudes"]
+__all__ = [
+    "amplitude",
+    "amplitudes",
+    "contract_network",
+    "iter_amplitudes",
+]
 
 
 OPEN_LIMIT = 16
@@ -51,45 +59,72 @@ CHUNK = 512
 """Bitstrings per batched contraction (fewer where intermediates would be large)."""
 
 
-ROW_SECONDS = 5e-5
-
-
-"""Python time per tensor of rebuilding, simplifying and contracting one bitstring's
-network on its own (about 50 microseconds on this project's machine; measured on 7x7 grid
-circuits, order of magnitude)."""
-
-
-def contract_network(network: TensorGraph, *, memory_limit: int | None = None) -> Scaled:
+def contract_network(network: TensorGraph, options: QueryOptions | None = None) -> Scaled:
     """Simplify, plan and contract a network; return its value with its scale.
 
     Parameters
     ----------
     network : TensorGraph
         Any network (closed or with open labels).
-    memory_limit : int, optional
-        Bytes the planner may let live intermediates use (passed to ``make_plan``).
+    options : QueryOptions, optional
+        Resolved run options (default: :func:`~tnsim.execution.options.resolve_options`
+        ``()``, the enclosing ``run_options`` block's or the defaults).
 
     Returns
     -------
     Scaled
         ``mantissa * 2**exponent``, axes in the order of ``network.output``.
     """
-    return contract_simplified(absorb_small(network), memory_limit)
+    opts = resolve_options() if options is None else options
+    return contract_simplified(absorb_small(network), opts)
 
 
-def contract_simplified(small: TensorGraph, memory_limit: int | None) -> Scaled:
+def contract_simplified(small: TensorGraph, options: QueryOptions) -> Scaled:
     """Plan and contract a network that :func:`absorb_small` has already simplified."""
-    plan = fit_plan(small, memory_limit)
-    return execute(small, plan.tree, plan.sliced, memory_limit=memory_limit)
+    plan = fit_plan(small, options)
+    return execute(small, plan.tree, plan.sliced, memory_limit=options.memory_limit)
+
+
+@overload
+def amplitude(
+    circuit: Circuit,
+    bitstring: Bitstring,
+    *,
+    dtype: DTypeLike | None = ...,
+    scaled: Literal[False] = ...,
+    memory_limit: MemoryLimit | None = ...,
+) -> complex: ...
+
+
+@overload
+def amplitude(
+    circuit: Circuit,
+    bitstring: Bitstring,
+    *,
+    dtype: DTypeLike | None = ...,
+    scaled: Literal[True],
+    memory_limit: MemoryLimit | None = ...,
+) -> Scaled: ...
+
+
+@overload
+def amplitude(
+    circuit: Circuit,
+    bitstring: Bitstring,
+    *,
+    dtype: DTypeLike | None = ...,
+    scaled: bool,
+    memory_limit: MemoryLimit | None = ...,
+) -> complex | Scaled: ...
 
 
 def amplitude(
     circuit: Circuit,
-    bits: str | Sequence[int],
+    bitstring: Bitstring,
     *,
-    dtype: type | np.dtype = np.complex128,
+    dtype: DTypeLike | None = None,
     scaled: bool = False,
-    memory_limit: int | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> complex | Scaled:
     """Return the amplitude ``<x|C|0...0>`` of one bitstring.
 
@@ -97,20 +132,24 @@ def amplitude(
     ----------
     circuit : Circuit
         The circuit ``C``; every qubit starts in ``|0>``.
-    bits : str or sequence of int
+    bitstring : str or sequence of int
         The bitstring ``x``; character ``i`` is qubit ``i`` (leftmost is qubit 0).
-    dtype : numpy dtype
-        ``complex128`` (default) or ``complex64``.
+    dtype : numpy dtype, optional
+        ``complex128`` or ``complex64``; default the enclosing ``run_options``
+        block's, else ``complex128``.
     scaled : bool
         If true, return a :class:`~tnsim.network.scaled.Scaled` value whose
         ``log10_abs()`` and ``phase()`` stay exact where the amplitude itself
         underflows (very wide circuits).
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    memory_limit : int or str, optional
+        Bytes, or text such as ``"4GiB"``, for live intermediates; default the
+        enclosing ``run_options`` block's, else half of the available memory.
+        Plans are sliced to fit (:func:`~tnsim.execution.options.resolve_options`).
 
     Returns
     -------
     complex or Scaled
+        ``complex`` by default, :class:`~tnsim.network.scaled.Scaled` with ``scaled=True``.
 
     Examples
     --------
@@ -120,11 +159,13 @@ def amplitude(
     0.5
     >>> amplitude(bell, "01")
     0j
+    >>> round(amplitude(bell, "11", scaled=True).log10_abs(), 6)  # log10(2 ** -0.5)
+    -0.150515
     """
     check_circuit(circuit)
-    dt = check_dtype(dtype)
-    network = amplitude_network(circuit, bits, dtype=dt)
-    result = contract_network(network, memory_limit=memory_limit)
+    opts = resolve_options(memory_limit, dtype=dtype)
+    network = amplitude_network(circuit, bitstring, dtype=opts.dtype)
+    result = contract_network(network, opts)
     return result if scaled else complex(result)
 
 
@@ -132,10 +173,12 @@ def _varying(rows: np.ndarray) -> list[int]:
     return np.flatnonzero((rows != rows[:1]).any(axis=0)).tolist()
 
 
-def _open_block(circuit, rows, vary, dt, memory_limit) -> tuple[np.ndarray, np.ndarray]:
+def _open_block(
+    circuit: Circuit, rows: np.ndarray, vary: list[int], opts: QueryOptions
+) -> tuple[np.ndarray, np.ndarray]:
     """All rows differ only on ``vary``: one contraction with those legs open."""
-    network = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt)
-    result = contract_network(network, memory_limit=memory_limit)
+    network = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=opts.dtype)
+    result = contract_network(network, opts)
     weights = 1 << np.arange(len(vary) - 1, -1, -1)
     flat = rows[:, vary].astype(np.int64) @ weights if vary else np.zeros(len(rows), np.int64)
     mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(-1)[flat]
@@ -144,31 +187,32 @@ def _open_block(circuit, rows, vary, dt, memory_limit) -> tuple[np.ndarray, np.n
 
 def iter_amplitudes(
     circuit: Circuit,
-    rows: np.ndarray,
+    bitstrings: Bitstrings,
     *,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
     chunk: int = CHUNK,
 ) -> Iterator[tuple[int, np.ndarray, np.ndarray]]:
-    """Yield amplitudes of parsed bitstrings chunk by chunk, as they are computed.
+    """Yield amplitudes of several bitstrings chunk by chunk, as they are computed.
 
     Parameters
     ----------
     circuit : Circuit
         The circuit.
-    rows : numpy.ndarray
-        ``(count, num_qubits)`` array of 0/1 (see :func:`tnsim.circuits.bits.parse_many`).
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    bitstrings : iterable of str or sequence of int, or numpy.ndarray
+        The bitstrings (character ``i`` is qubit ``i``), or a ``(count,
+        num_qubits)`` array of 0/1 (see :func:`tnsim.circuits.bits.parse_many`).
+    dtype : numpy dtype, optional
+        Contraction dtype (as in :func:`amplitude`).
+    memory_limit : int or str, optional
+        Bytes or text such as ``"4GiB"`` (as in :func:`amplitude`).
     chunk : int
         Bitstrings per batched contraction.
 
     Yields
     ------
     start : int
-        Index of the chunk's first row.
+        Index of the chunk's first bitstring.
     mantissa : numpy.ndarray
         complex128 mantissas of the chunk's amplitudes.
     exponent : numpy.ndarray
@@ -176,26 +220,40 @@ def iter_amplitudes(
 
     Notes
     -----
-    If the rows differ on at most :data:`OPEN_LIMIT` qubits, one contraction
+    If the bitstrings differ on at most :data:`OPEN_LIMIT` qubits, one contraction
     leaves those output legs open and every amplitude is read from it.
     Otherwise the network is planned once with the differing output bits as a
     batch axis, everything that does not depend on them is contracted once and
     kept, and only the rest is redone per chunk.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> [(start, m.round(6).tolist()) for start, m, _ in iter_amplitudes(Circuit(1).h(0), ["1"])]
+    [(0, [(0.707107+0j)])]
     """
-    dt = check_dtype(dtype)
-    rows = np.asarray(rows, dtype=np.uint8)
+    check_circuit(circuit)
+    opts = resolve_options(memory_limit, dtype=dtype)
+    rows = parse_many(bitstrings, circuit.num_qubits)
+    return _iter_rows(circuit, rows, opts, chunk)
+
+
+def _iter_rows(
+    circuit: Circuit, rows: np.ndarray, opts: QueryOptions, chunk: int
+) -> Iterator[tuple[int, np.ndarray, np.ndarray]]:
+    """The amplitudes of parsed ``rows`` under resolved options (see :func:`iter_amplitudes`)."""
     if len(rows) == 0:
         return
     vary = _varying(rows)
     k = len(vary)
     if k <= OPEN_LIMIT or (k <= WIDE_OPEN_LIMIT and len(rows) << 12 >= 1 << k):
-        yield (0, *_open_block(circuit, rows, vary, dt, memory_limit))
+        yield (0, *_open_block(circuit, rows, vary, opts))
         return
+    dt = opts.dtype
     first = absorb_small(amplitude_network(circuit, rows[0], dtype=dt))
-    plan = fit_plan(first, memory_limit)
+    plan = fit_plan(first, opts)
     base = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt)
-    limit = memory_limit or default_memory_limit()
-    engine = fitted_engine(base, base.output, (), min(chunk, len(rows)), limit, runs=len(rows))
+    engine = fitted_engine(base, base.output, (), min(chunk, len(rows)), opts, runs=len(rows))
     chunk = engine.chunk
     runs = -(-len(rows) // chunk)
     rate = matmul_rate(dt)
@@ -204,7 +262,7 @@ def iter_amplitudes(
     # Row by row also rebuilds and simplifies the network each time (ROW_SECONDS per tensor).
     per_row = forecast_seconds(plan.flops, elements_written(plan), rate) + ROW_SECONDS * len(base)
     if batched > per_row * len(rows):
-        yield from _row_by_row(circuit, rows, dt, first, plan, memory_limit)
+        yield from _row_by_row(circuit, rows, first, plan, opts)
         return
     for start in range(0, len(rows), chunk):
         part = rows[start : start + chunk][:, vary]
@@ -214,25 +272,58 @@ def iter_amplitudes(
 
 
 def _row_by_row(
-    circuit, rows, dt, first, plan, memory_limit
+    circuit: Circuit, rows: np.ndarray, first: TensorGraph, plan: Plan, opts: QueryOptions
 ) -> Iterator[tuple[int, np.ndarray, np.ndarray]]:
     """One contraction per bitstring, all on the plan of the first (same network shape)."""
     for k, row in enumerate(rows):
-        small = first if k == 0 else absorb_small(amplitude_network(circuit, row, dtype=dt))
+        small = first if k == 0 else absorb_small(amplitude_network(circuit, row, dtype=opts.dtype))
         if tuple(small.indices) != tuple(plan.tree.inputs):
-            plan = fit_plan(small, memory_limit)
-        result = execute(small, plan.tree, plan.sliced)
+            plan = fit_plan(small, opts)
+        result = execute(small, plan.tree, plan.sliced, memory_limit=opts.memory_limit)
         mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(1)
         yield k, mantissa, np.array([result.exponent], dtype=np.int64)
 
 
+@overload
 def amplitudes(
     circuit: Circuit,
-    bitstrings: Iterable[str | Sequence[int]],
+    bitstrings: Bitstrings,
     *,
-    dtype: type | np.dtype = np.complex128,
+    dtype: DTypeLike | None = ...,
+    scaled: Literal[False] = ...,
+    memory_limit: MemoryLimit | None = ...,
+) -> np.ndarray: ...
+
+
+@overload
+def amplitudes(
+    circuit: Circuit,
+    bitstrings: Bitstrings,
+    *,
+    dtype: DTypeLike | None = ...,
+    scaled: Literal[True],
+    memory_limit: MemoryLimit | None = ...,
+) -> Scaled: ...
+
+
+@overload
+def amplitudes(
+    circuit: Circuit,
+    bitstrings: Bitstrings,
+    *,
+    dtype: DTypeLike | None = ...,
+    scaled: bool,
+    memory_limit: MemoryLimit | None = ...,
+) -> np.ndarray | Scaled: ...
+
+
+def amplitudes(
+    circuit: Circuit,
+    bitstrings: Bitstrings,
+    *,
+    dtype: DTypeLike | None = None,
     scaled: bool = False,
-    memory_limit: int | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> np.ndarray | Scaled:
     """Return the amplitudes ``<x|C|0...0>`` of several bitstrings.
 
@@ -244,20 +335,21 @@ def amplitudes(
     ----------
     circuit : Circuit
         The circuit.
-    bitstrings : iterable of str or sequence of int
-        Character ``i`` of each bitstring is qubit ``i``.
-    dtype : numpy dtype
-        ``complex128`` (default) or ``complex64``.
+    bitstrings : iterable of str or sequence of int, or numpy.ndarray
+        Character ``i`` of each bitstring is qubit ``i``; or a ``(count,
+        num_qubits)`` array of 0/1.
+    dtype : numpy dtype, optional
+        ``complex128`` or ``complex64`` (as in :func:`amplitude`).
     scaled : bool
         If true, return one :class:`~tnsim.network.scaled.Scaled` whose mantissa is
         the array of amplitudes (for circuits so wide they underflow).
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    memory_limit : int or str, optional
+        Bytes or text such as ``"4GiB"`` (as in :func:`amplitude`).
 
     Returns
     -------
     numpy.ndarray or Scaled
-        complex128 array, one entry per bitstring.
+        complex128 array, one entry per bitstring (a ``Scaled`` with ``scaled=True``).
 
     Examples
     --------
@@ -266,11 +358,11 @@ def amplitudes(
     array([0.707107+0.j, 0.707107+0.j])
     """
     check_circuit(circuit)
-    dt = check_dtype(dtype)
+    opts = resolve_options(memory_limit, dtype=dtype)
     rows = parse_many(bitstrings, circuit.num_qubits)
     mantissa = np.zeros(len(rows), dtype=np.complex128)
     exponent = np.zeros(len(rows), dtype=np.int64)
-    for start, m, e in iter_amplitudes(circuit, rows, dtype=dt, memory_limit=memory_limit):
+    for start, m, e in _iter_rows(circuit, rows, opts, CHUNK):
         mantissa[start : start + len(m)] = m
         exponent[start : start + len(m)] = e
     if scaled:

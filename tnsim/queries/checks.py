@@ -1,4 +1,7 @@
-"""Checks every query makes at the door: the circuit, the dtype, qubit lists.
+"""Checks every query makes at the door: the circuit and qubit lists.
+
+The run options (memory limit, dtype ...) are checked where they are resolved,
+:func:`tnsim.execution.options.resolve_options`.
 
 Input is validated here, once, with the project's own errors; the stages
 below trust what they are given.
@@ -9,29 +12,25 @@ from __future__ import annotations
 import numbers
 from collections.abc import Iterable, Sequence
 
-import numpy as np
-
 from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
 
-_DTYPES = {np.dtype(np.complex64), np.dtype(np.complex128)}
 
+def check_circuit(circuit: object) -> None:
+    """Refuse anything that is not a :class:`~tnsim.circuits.circuit.Circuit`.
 
-def check_dtype(dtype) -> np.dtype:
-    """The dtype of a contraction: complex64 or complex128, else an :class:`InputError`."""
-    try:
-        dt = np.dtype(dtype)
-    except TypeError:
-        dt = None
-    if dt not in _DTYPES:
-        raise InputError(f"dtype must be complex64 or complex128, got {dtype!r}")
-    return dt
-
-
-def check_circuit(circuit: Circuit) -> None:
-    """Refuse anything that is not a :class:`~tnsim.circuits.circuit.Circuit`."""
+    Examples
+    --------
+    >>> check_circuit("h q[0];")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    tnsim.errors.InputError: expected a tnsim.Circuit, got str; build one with ...
+    """
     if not isinstance(circuit, Circuit):
-        raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
+        raise InputError(
+            f"expected a tnsim.Circuit, got {type(circuit).__name__}; build one with "
+            "tnsim.Circuit(n) or read a file with tnsim.read_qasm(path)"
+        )
 
 
 def check_qubits(qubits: Sequence[int], n: int, what: str) -> list[int]:

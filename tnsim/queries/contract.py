@@ -2,16 +2,25 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numpy as np
+from numpy.typing import ArrayLike
 from opt_einsum.parser import parse_einsum_input
 
 from tnsim.errors import InputError
+from tnsim.execution.options import (
+    DTypeLike,
+    MemoryLimit,
+    check_dtype,
+    resolve_options,
+)
 from tnsim.execution.slices import execute
 from tnsim.network.graph import TensorGraph
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import make_plan
 
-__all__ = ["contract", "einsum_network"]
+__all__ = ["contract", "einsum_network", "operand_dtype"]
 
 
 def _parse(equation: str, arrays) -> tuple[list[str], str]:
@@ -30,11 +39,27 @@ def _parse(equation: str, arrays) -> tuple[list[str], str]:
     return terms, out
 
 
-def einsum_network(equation: str, *arrays) -> TensorGraph:
+def operand_dtype(arrays: Sequence[np.ndarray]) -> np.dtype:
+    """complex64 when every operand fits it (float32, complex64, small integers), else complex128.
+
+    Examples
+    --------
+    >>> operand_dtype([np.ones(2, np.float32)]), operand_dtype([np.ones(2)])
+    (dtype('complex64'), dtype('complex128'))
+    """
+    dt = np.result_type(np.complex64, *arrays)
+    return dt if dt == np.complex64 else np.dtype(np.complex128)
+
+
+def einsum_network(
+    equation: str, *arrays: ArrayLike, dtype: DTypeLike | None = None
+) -> TensorGraph:
     """Build a :class:`TensorGraph` from an einsum equation and its arrays.
 
     A letter repeated within one operand (``"ii->i"``) takes that operand's
     diagonal first; a label may appear in any number of operands (hyperedge).
+    The network's dtype is ``dtype``, else complex64 when every operand fits
+    it (float32, complex64, integers of at most 16 bits), else complex128.
 
     Raises
     ------
@@ -48,15 +73,13 @@ def einsum_network(equation: str, *arrays) -> TensorGraph:
     >>> tn.indices, tn.output, tn.size
     ([(0, 1), (1, 2)], (0, 2), {0: 2, 1: 3, 2: 4})
     """
-    arrays = [np.asarray(a) for a in arrays]
-    terms, out = _parse(equation, arrays)
+    operands = [np.asarray(a) for a in arrays]
+    terms, out = _parse(equation, operands)
     table: dict[str, int] = {}
     size: dict[int, int] = {}
-    dtype = np.result_type(np.complex64, *arrays)
-    if dtype not in (np.complex64, np.complex128):
-        dtype = np.dtype(np.complex128)
+    dt = operand_dtype(operands) if dtype is None else check_dtype(dtype)
     net_arrays, indices = [], []
-    for k, (term, arr) in enumerate(zip(terms, arrays)):
+    for k, (term, arr) in enumerate(zip(terms, operands)):
         if len(term) != arr.ndim:
             raise InputError(
                 f"operand {k} of {equation!r} is labelled {term!r} ({len(term)} axes) "
@@ -72,7 +95,7 @@ def einsum_network(equation: str, *arrays) -> TensorGraph:
         unique = "".join(dict.fromkeys(term))
         if unique != term:
             arr = np.einsum(f"{term}->{unique}", arr)
-        net_arrays.append(np.asarray(arr, dtype=dtype))
+        net_arrays.append(np.asarray(arr, dtype=dt))
         indices.append(tuple(table[c] for c in unique))
     if len(set(out)) != len(out):
         raise InputError(f"output {out!r} of {equation!r} repeats a letter")
@@ -80,13 +103,14 @@ def einsum_network(equation: str, *arrays) -> TensorGraph:
     if missing:
         raise InputError(f"output letter(s) {''.join(missing)!r} of {equation!r} are in no operand")
     output = tuple(table[c] for c in out)
-    return TensorGraph(net_arrays, indices, size, output, 0, np.dtype(dtype))
+    return TensorGraph(net_arrays, indices, size, output, 0, dt)
 
 
 def contract(
     equation: str,
-    *arrays,
-    memory_limit: int | str | None = None,
+    *arrays: ArrayLike,
+    memory_limit: MemoryLimit | None = None,
+    dtype: DTypeLike | None = None,
     time_budget: float | None = None,
     seed: int = 0,
 ) -> np.ndarray:
@@ -100,9 +124,13 @@ def contract(
     *arrays : array_like
         The operands.
     memory_limit : int or str, optional
-        Bytes (or text such as ``"4GiB"``) one slice's intermediates may use
-        (tnsim's cost model, inputs not counted); the contraction is sliced to
-        fit.  The executor applies its own default limit as well.
+        Bytes, or text such as ``"4GiB"``, for live intermediates (inputs not
+        counted); default the enclosing ``run_options`` block's, else half of
+        the available memory.  The contraction is sliced to fit.
+    dtype : numpy dtype, optional
+        complex64 or complex128 for the contraction; default the block's, else
+        complex64 when every operand fits it, else complex128.  Real operands
+        give a real result.
     time_budget : float, optional
         Seconds for the planner's search (default: automatic).
     seed : int
@@ -129,11 +157,13 @@ def contract(
     >>> contract("ii->i", np.eye(2) * 3)
     array([3., 3.])
     """
-    net = einsum_network(equation, *arrays)
-    real = not any(np.iscomplexobj(np.asarray(a)) for a in arrays)
+    operands = [np.asarray(a) for a in arrays]
+    opts = resolve_options(memory_limit, dtype=dtype, default_dtype=operand_dtype(operands))
+    net = einsum_network(equation, *operands, dtype=opts.dtype)
+    real = not any(np.iscomplexobj(a) for a in operands)
     small = absorb_small(net)
-    plan = make_plan(small, memory_limit=memory_limit, time_budget=time_budget, seed=seed)
-    result = execute(small, plan.tree, plan.sliced).value()
+    plan = make_plan(small, memory_limit=opts.slice_limit, time_budget=time_budget, seed=seed)
+    result = execute(small, plan.tree, plan.sliced, memory_limit=opts.memory_limit).value()
     result = np.asarray(result)
     if net.dtype == np.complex64:
         result = result.astype(np.complex64)

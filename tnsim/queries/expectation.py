@@ -10,16 +10,20 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 
+import networkx as nx
 import numpy as np
 
 from tnsim.circuits.circuit import Circuit
+from tnsim.circuits.families import qaoa_maxcut
 from tnsim.circuits.gates import gate_matrix
+from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
+from tnsim.fitted import NARROW
 from tnsim.network.builders import doubled_network
 from tnsim.network.lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
 from tnsim.queries.amplitudes import contract_simplified
-from tnsim.queries.checks import check_circuit, check_dtype
-from tnsim.queries.marginals import NARROW, all_amplitudes, deep_and_narrow
+from tnsim.queries.checks import check_circuit
+from tnsim.queries.marginals import all_amplitudes, deep_and_narrow
 from tnsim.queries.observables import Observable, parse_observable
 
 __all__ = ["TermCache", "expectation", "maxcut_energy"]
@@ -46,10 +50,11 @@ class TermCache:
     ----------
     circuit : Circuit
         The circuit.
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    dtype : numpy dtype, optional
+        Contraction dtype (default: the enclosing ``run_options`` block's, else complex128).
+    memory_limit : int or str, optional
+        Bytes or text such as ``"4GiB"`` for live intermediates (default: the
+        block's, else half of the available memory).
 
     Attributes
     ----------
@@ -57,17 +62,24 @@ class TermCache:
         Terms answered from the cache, and contractions run.
     """
 
-    def __init__(self, circuit: Circuit, dtype=np.complex128, memory_limit: int | None = None):
+    def __init__(
+        self,
+        circuit: Circuit,
+        dtype: DTypeLike | None = None,
+        memory_limit: MemoryLimit | None = None,
+    ):
+        check_circuit(circuit)
         self.index: CircuitIndex = index_circuit(circuit)
         self.circuit = circuit
         self._psi: np.ndarray | None = None
-        self.dtype = check_dtype(dtype)
-        self.memory_limit = memory_limit
+        self.options = resolve_options(memory_limit, dtype=dtype)
         self.values: dict[tuple, float] = {}
         self.hits = 0
         self.misses = 0
 
-    def _from_amplitudes(self, local: Circuit, letters: dict, paulis) -> float:
+    def _from_amplitudes(
+        self, local: Circuit, letters: dict[int, str], paulis: Sequence[tuple[int, str]]
+    ) -> float:
         """A deep, narrow cone's value from all amplitudes.
 
         Those of the whole circuit (computed once) when it is itself narrow,
@@ -75,11 +87,9 @@ class TermCache:
         """
         if self.circuit.num_qubits <= NARROW:
             if self._psi is None:
-                self._psi = all_amplitudes(
-                    self.circuit, dtype=self.dtype, memory_limit=self.memory_limit
-                )
+                self._psi = all_amplitudes(self.circuit, self.options)
             return _pauli_expectation(self._psi, dict(paulis))
-        psi = all_amplitudes(local, dtype=self.dtype, memory_limit=self.memory_limit)
+        psi = all_amplitudes(local, self.options)
         return _pauli_expectation(psi, letters)
 
     def value(self, paulis: Sequence[tuple[int, str]]) -> float:
@@ -94,11 +104,11 @@ class TermCache:
         self.misses += 1
         local = cone_circuit(self.index, gates, len(qubits))
         letters = {k: letter for k, (_, letter) in enumerate(paulis)}
-        small = absorb_small(doubled_network(local, paulis=letters, dtype=self.dtype))
+        small = absorb_small(doubled_network(local, paulis=letters, dtype=self.options.dtype))
         if deep_and_narrow(local, small):
             v = self._from_amplitudes(local, letters, paulis)
         else:
-            v = float(complex(contract_simplified(small, self.memory_limit)).real)
+            v = float(complex(contract_simplified(small, self.options)).real)
         self.values[key] = v
         return v
 
@@ -107,8 +117,8 @@ def expectation(
     circuit: Circuit,
     observable: str | Mapping[int, str] | Observable,
     *,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> float:
     """Return ``<0|C† H C|0>`` for a real-weighted sum ``H`` of Pauli strings.
 
@@ -119,10 +129,12 @@ def expectation(
     observable : str or mapping or Observable
         Text such as ``"0.5 Z0 Z1 - 1.2 X3 + 0.7"`` (see
         :mod:`tnsim.queries.observables`), or one Pauli string as ``{qubit: "X"|"Y"|"Z"}``.
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    dtype : numpy dtype, optional
+        Contraction dtype: complex128 or complex64; default the enclosing
+        ``run_options`` block's, else complex128.
+    memory_limit : int or str, optional
+        Bytes, or text such as ``"4GiB"``, for live intermediates; default the
+        enclosing ``run_options`` block's, else half of the available memory.
 
     Returns
     -------
@@ -138,17 +150,18 @@ def expectation(
     -1.0
     """
     check_circuit(circuit)
-    obs = parse_observable(observable, circuit.num_qubits)
     cache = TermCache(circuit, dtype, memory_limit)
+    obs = parse_observable(observable, circuit.num_qubits)
     return float(sum(t.coefficient * cache.value(t.paulis) for t in obs.terms))
 
 
 def maxcut_energy(
-    graph,
+    graph: nx.Graph,
     gammas: Sequence[float],
     betas: Sequence[float],
     *,
-    dtype: type | np.dtype = np.complex128,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> float:
     """Expected cut size of the QAOA state for MaxCut on ``graph``.
 
@@ -162,8 +175,10 @@ def maxcut_energy(
         The graph (nodes are relabelled ``0..n-1`` in sorted order).
     gammas, betas : sequence of float
         The QAOA angles, one of each per layer.
-    dtype : numpy dtype
-        Contraction dtype.
+    dtype : numpy dtype, optional
+        Contraction dtype (as in :func:`expectation`).
+    memory_limit : int or str, optional
+        Bytes or text such as ``"4GiB"`` (as in :func:`expectation`).
 
     Returns
     -------
@@ -175,10 +190,9 @@ def maxcut_energy(
     >>> round(maxcut_energy(nx.cycle_graph(8), [0.0], [0.0]), 12)  # |+...+>: half of 8 edges
     4.0
     """
-    from tnsim.circuits.families import qaoa_maxcut
-
+    options = resolve_options(memory_limit, dtype=dtype)
     circuit, g = qaoa_maxcut(graph, list(gammas), list(betas))
-    cache = TermCache(circuit, dtype)
+    cache = TermCache(circuit, options.dtype, options.memory_limit)
     total = 0.0
     for u, v in g.edges():
         total += 0.5 * (1.0 - cache.value(((u, "Z"), (v, "Z")) if u < v else ((v, "Z"), (u, "Z"))))

@@ -8,20 +8,19 @@ rate and the fitted cost per element written (:mod:`tnsim.execution.timemodel`).
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 
-import numpy as np
 import opt_einsum
 
+from tnsim.circuits.bits import Bitstring
 from tnsim.circuits.circuit import Circuit
-from tnsim.errors import InputError
+from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.execution.rate import matmul_rate
 from tnsim.execution.timemodel import forecast_seconds
 from tnsim.network.builders import amplitude_network
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import Plan, make_plan
-from tnsim.units import parse_memory
+from tnsim.queries.checks import check_circuit
 
 __all__ = ["ForecastReport", "forecast", "opt_einsum_cost"]
 
@@ -51,10 +50,12 @@ class ForecastReport:
         Number of sliced labels.
     overhead : float
         ``flops / unsliced_flops``.
-    memory_limit : int or None
-        The limit planned for, in bytes.
+    memory_limit : int
+        The limit planned for: bytes one slice's intermediates may use (the
+        run's memory limit divided among local worker processes,
+        :func:`tnsim.execution.options.resolve_options`).
     fits_unsliced : bool
-        Whether the unsliced tree fits ``memory_limit`` (True without a limit).
+        Whether the unsliced tree fits ``memory_limit``.
     itemsize : int
         Bytes per element (16: complex128).
     written : int
@@ -64,7 +65,7 @@ class ForecastReport:
     seconds : float
         Forecast run time ``(flops + WRITE_FLOPS * written) / flop_rate``: the
         FLOPs at the matmul rate plus a fitted cost per element written
-        (:data:`tnsim.plan.search.WRITE_FLOPS`).
+        (:data:`tnsim.fitted.WRITE_FLOPS`).
     planning_seconds : float
         Time spent planning.
     method : str
@@ -86,7 +87,7 @@ class ForecastReport:
     num_slices: int
     sliced_labels: int
     overhead: float
-    memory_limit: int | None
+    memory_limit: int
     fits_unsliced: bool
     itemsize: int
     written: int
@@ -119,12 +120,12 @@ def opt_einsum_cost(p: Plan) -> float:
 
 def forecast(
     circuit: Circuit,
-    bits: str | Sequence[int] | None = None,
+    bitstring: Bitstring | None = None,
     *,
-    memory_limit: int | str | None = None,
+    memory_limit: MemoryLimit | None = None,
     time_budget: float | None = None,
     seed: int = 0,
-    dtype=np.complex128,
+    dtype: DTypeLike | None = None,
     objective: str = "runtime",
 ) -> ForecastReport:
     """Plan the amplitude ``<x|C|0...0>`` of ``circuit`` and forecast its cost (no big arrays).
@@ -133,16 +134,20 @@ def forecast(
     ----------
     circuit : Circuit
         The circuit.
-    bits : str or sequence of int, optional
+    bitstring : str or sequence of int, optional
         The bitstring ``x`` (character i is qubit i); default all zeros.
     memory_limit : int or str, optional
-        Bytes (or ``"4GiB"``) one slice's intermediates may use; the plan is sliced to fit.
+        Bytes, or text such as ``"4GiB"``, as a query takes it: default the
+        enclosing ``run_options`` block's, else half of the available memory;
+        divided among local workers, it is what one slice may use, and the plan
+        is sliced to fit -- the plan the query itself would run.
     time_budget : float, optional
         Seconds of planner search (default: automatic).
     seed : int
         Seed of the planner.
-    dtype : numpy dtype
-        complex128 (default) or complex64, for the byte figures and the rate.
+    dtype : numpy dtype, optional
+        complex128 or complex64, for the byte figures and the rate; default the
+        block's, else complex128.
     objective : {"runtime", "operations"}
         What the planner minimises (see :func:`tnsim.plan.driver.make_plan`).
 
@@ -162,21 +167,21 @@ def forecast(
     >>> r.num_slices, r.flops >= 0
     (1, True)
     """
-    if not isinstance(circuit, Circuit):
-        raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
-    dt = np.dtype(dtype)
-    if bits is None:
-        bits = "0" * circuit.num_qubits
-    network = amplitude_network(circuit, bits, dtype=dt)
+    check_circuit(circuit)
+    opts = resolve_options(memory_limit, dtype=dtype)
+    dt = opts.dtype
+    limit = opts.slice_limit
+    if bitstring is None:
+        bitstring = "0" * circuit.num_qubits
+    network = amplitude_network(circuit, bitstring, dtype=dt)
     small = absorb_small(network)
     p = make_plan(
-        small, memory_limit=memory_limit, time_budget=time_budget, seed=seed, objective=objective
+        small, memory_limit=limit, time_budget=time_budget, seed=seed, objective=objective
     )
     rate = matmul_rate(dt)
     unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
     sizes = p.tree.intermediate_sizes(p.sliced)
     written = sum(sizes) * p.num_slices
-    limit = None if memory_limit is None else parse_memory(memory_limit)
     return ForecastReport(
         num_qubits=circuit.num_qubits,
         num_tensors=len(network),
@@ -192,7 +197,7 @@ def forecast(
         sliced_labels=len(p.sliced),
         overhead=p.overhead,
         memory_limit=limit,
-        fits_unsliced=limit is None or p.unsliced_peak_bytes <= limit,
+        fits_unsliced=p.unsliced_peak_bytes <= limit,
         itemsize=p.itemsize,
         written=written,
         flop_rate=rate,

@@ -42,10 +42,10 @@ import numpy as np
 
 from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.errors import ResourceLimitError
-from tnsim.execution.batch import BATCH_ELEMENTS
 from tnsim.execution.livetree import LiveTree
-from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import QueryOptions, resolve_options
 from tnsim.execution.timemodel import plan_for_runs
+from tnsim.fitted import BATCH_ELEMENTS, LIVE_PASSES
 from tnsim.network.builders import amplitude_network, gate_tensor
 from tnsim.network.graph import TensorGraph
 from tnsim.network.simplify import absorb_small
@@ -213,18 +213,18 @@ def sample_by_gates(
     circuit: Circuit,
     shots: int,
     rng: np.random.Generator,
+    options: QueryOptions | None = None,
     *,
-    dtype=np.complex128,
     chunk: int = 256,
-    memory_limit: int | None = None,
 ) -> np.ndarray:
     """Draw ``shots`` exact samples of ``circuit`` gate step by gate step.
 
     The arguments are those of :func:`tnsim.queries.sampling.sample` (which calls this
-    with ``method="gates"``), with ``rng`` the generator; ``chunk`` is the
-    number of shots taken through a layer together, shrunk to fit
-    ``memory_limit``.  The samples do not depend on ``chunk`` or the limit.
-    Returns ``(shots, num_qubits)`` ``uint8``.
+    with ``method="gates"``), with ``rng`` the generator and ``options`` the
+    resolved dtype and memory limit (default: the enclosing ``run_options``
+    block's); ``chunk`` is the number of shots taken through a layer together,
+    shrunk to fit ``options.memory_limit``.  The samples do not depend on
+    ``chunk`` or the limit.  Returns ``(shots, num_qubits)`` ``uint8``.
 
     Examples
     --------
@@ -233,16 +233,17 @@ def sample_by_gates(
     >>> sorted({"".join(map(str, row)) for row in s})
     ['000', '111']
     """
+    opts = resolve_options() if options is None else options
     out = np.zeros((shots, circuit.num_qubits), dtype=np.uint8)
     steps = gate_steps(circuit)
-    limit = memory_limit or default_memory_limit()
+    limit = opts.memory_limit
     t = 0
     while t < len(steps):
         end = t
         while end < len(steps) and steps[end].layer == steps[t].layer:
             end += 1
         uniform = rng.random((end - t, shots))
-        layer = _layer_network(steps, t, end, dtype)
+        layer = _layer_network(steps, t, end, opts.dtype)
         bits = list(layer.bit_leaf.values())
         plan = plan_vectors_first(
             layer.network, bits, lambda net: plan_for_runs(net, LIVE_PASSES * shots)
@@ -308,7 +309,7 @@ def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
 
     A shot keeps the value and the environment of every node above a bit
     vector; three copies of the largest such node are left for a step's work.
-    The largest node of a batch is kept within :data:`BATCH_ELEMENTS`.
+    The largest node of a batch is kept within :data:`~tnsim.fitted.BATCH_ELEMENTS`.
     """
     tree, _ = _batch_tree(layer, plan, 1)
     sizes = [1] * tree.num_leaves + tree.intermediate_sizes()
@@ -321,9 +322,3 @@ def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
             "raise the memory limit"
         )
     return max(1, min(chunk, limit // need, BATCH_ELEMENTS // max(per_shot)))
-
-
-LIVE_PASSES = 5
-"""Run time per shot and layer, in forecasts of one contraction of the layer's tree, for the
-plan search (values are computed about twice and environments once, well below the matmul
-rate; 4.7 to 7.5 measured on 7x7 grid circuits)."""

@@ -13,13 +13,15 @@ from collections.abc import Sequence
 import numpy as np
 
 from tnsim.circuits.circuit import Circuit
+from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
+from tnsim.fitted import NARROW
 from tnsim.network.builders import amplitude_network, doubled_network
 from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import greedy_tree
 from tnsim.queries.amplitudes import contract_network, contract_simplified
-from tnsim.queries.checks import check_circuit, check_dtype, check_qubits
+from tnsim.queries.checks import check_circuit, check_qubits
 
 __all__ = ["marginal"]
 
@@ -28,8 +30,8 @@ def marginal(
     circuit: Circuit,
     qubits: Sequence[int],
     *,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> np.ndarray:
     """Return the outcome probabilities of a few qubits, summed over all others.
 
@@ -44,10 +46,12 @@ def marginal(
     qubits : sequence of int
         The measured qubits; the first is the most significant bit of the
         result's index.
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    dtype : numpy dtype, optional
+        Contraction dtype: complex128 or complex64; default the enclosing
+        ``run_options`` block's, else complex128.
+    memory_limit : int or str, optional
+        Bytes, or text such as ``"4GiB"``, for live intermediates; default the
+        enclosing ``run_options`` block's, else half of the available memory.
 
     Returns
     -------
@@ -62,24 +66,18 @@ def marginal(
     [0.0, 0.0, 0.5, 0.5]
     """
     check_circuit(circuit)
-    dt = check_dtype(dtype)
+    opts = resolve_options(memory_limit, dtype=dtype)
     qs = check_qubits(qubits, circuit.num_qubits, "marginal")
     index = index_circuit(circuit)
     _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qs])
     local = cone_circuit(index, gates, len(local_qubits))
-    small = absorb_small(doubled_network(local, open_qubits=range(len(qs)), dtype=dt))
+    small = absorb_small(doubled_network(local, open_qubits=range(len(qs)), dtype=opts.dtype))
     if deep_and_narrow(local, small):
-        every = all_probabilities(local, dtype=dt, memory_limit=memory_limit)
+        every = all_probabilities(local, opts)
         return every.reshape(1 << len(qs), -1).sum(axis=1)
-    result = contract_simplified(small, memory_limit)
+    result = contract_simplified(small, opts)
     probs = result.value().real.reshape(-1)
     return np.clip(probs, 0.0, None)
-
-
-NARROW = 20
-
-
-"""Light cones of at most this many qubits may be answered from all ``2**m`` amplitudes."""
 
 
 def _greedy_flops(small: TensorGraph) -> int:
@@ -87,13 +85,12 @@ def _greedy_flops(small: TensorGraph) -> int:
     return greedy_tree(small.indices, small.output, small.size).cost().flops
 
 
-def all_amplitudes(
-    circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
-) -> np.ndarray:
+def all_amplitudes(circuit: Circuit, options: QueryOptions | None = None) -> np.ndarray:
     """Return ``<x|C|0...0>`` for all ``2**n`` bitstrings (narrow circuits only).
 
     One contraction with every output leg open; index ``k`` is the bitstring
-    whose qubit 0 is the most significant bit of ``k``.
+    whose qubit 0 is the most significant bit of ``k``; ``options`` as resolved
+    by :func:`~tnsim.execution.options.resolve_options` (default: the block's).
 
     Examples
     --------
@@ -101,16 +98,15 @@ def all_amplitudes(
     >>> (abs(all_amplitudes(Circuit(2).h(0).cx(0, 1))) ** 2).round(6).tolist()
     [0.5, 0.0, 0.0, 0.5]
     """
+    opts = resolve_options() if options is None else options
     n = circuit.num_qubits
-    network = amplitude_network(circuit, None, open_qubits=range(n), dtype=check_dtype(dtype))
-    return contract_network(network, memory_limit=memory_limit).value().reshape(-1)
+    network = amplitude_network(circuit, None, open_qubits=range(n), dtype=opts.dtype)
+    return contract_network(network, opts).value().reshape(-1)
 
 
-def all_probabilities(
-    circuit: Circuit, *, dtype: type | np.dtype = np.complex128, memory_limit: int | None = None
-) -> np.ndarray:
+def all_probabilities(circuit: Circuit, options: QueryOptions | None = None) -> np.ndarray:
     """Return ``|<x|C|0...0>|²`` for all ``2**n`` bitstrings (see :func:`all_amplitudes`)."""
-    return np.abs(all_amplitudes(circuit, dtype=dtype, memory_limit=memory_limit)) ** 2
+    return np.abs(all_amplitudes(circuit, options)) ** 2
 
 
 def deep_and_narrow(local: Circuit, small: TensorGraph) -> bool:

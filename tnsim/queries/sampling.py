@@ -12,11 +12,11 @@ estimated FLOPs within the memory limit.  Shots
 that share ``x_A`` share the conditional distribution: the distinct
 prefixes are one batch (:class:`tnsim.execution.batch.BatchContraction`), so the part of
 the network that does not depend on ``x_A`` is contracted once per block.
-Circuits of at most :data:`DIRECT_WIDTH` qubits skip the chain rule: every
+Circuits of at most :data:`~tnsim.fitted.DIRECT_WIDTH` qubits skip the chain rule: every
 amplitude is contracted once, with all output legs open.  ``method="gates"``
 samples gate by gate from amplitudes instead (:mod:`tnsim.queries.gatewise`): no
 doubled networks and no conditionals on growing prefixes; it is the default
-(``method="auto"``) for circuits of more than :data:`DIRECT_WIDTH` qubits.
+(``method="auto"``) for circuits of more than :data:`~tnsim.fitted.DIRECT_WIDTH` qubits.
 """
 
 from __future__ import annotations
@@ -29,23 +29,19 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError, ResourceLimitError
 from tnsim.execution.batch import BatchContraction, fitted_engine
 from tnsim.execution.budget import fit_plan
-from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.execution.slices import execute
 from tnsim.execution.steps import compile_tree, count_flops, largest_intermediate
+from tnsim.fitted import AMPLITUDE_WIDTH, DIRECT_WIDTH
 from tnsim.network.builders import amplitude_network, doubled_network
 from tnsim.network.graph import TensorGraph
-from tnsim.network.lightcone import canonical_cone, cone_circuit, index_circuit
+from tnsim.network.lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
+from tnsim.queries.checks import check_circuit
 from tnsim.queries.gatewise import sample_by_gates
+from tnsim.queries.marginals import all_probabilities
 
 __all__ = ["sample", "sample_blocks"]
-
-AMPLITUDE_WIDTH = 20
-"""Largest ``|B ∪ D|`` for which amplitudes with open legs are considered (``2**20`` outputs)."""
-
-
-DIRECT_WIDTH = 20
-"""Circuits of at most this many qubits are sampled from all ``2**n`` amplitudes at once."""
 
 
 def sample_blocks(num_qubits: int, block: int) -> list[list[int]]:
@@ -66,23 +62,25 @@ def _engine_cost(engine: BatchContraction, prefixes: int) -> tuple[int, int]:
     return fixed + per_run * runs, largest_intermediate(engine.steps)
 
 
-def _planned(network: TensorGraph, limit: int):
+def _planned(network: TensorGraph, opts: QueryOptions) -> tuple[int, int, tuple]:
     """Simplify and plan a network; return (cost, peak elements, runner)."""
     small = absorb_small(network)
-    plan = fit_plan(small, limit)
+    plan = fit_plan(small, opts)
     steps = compile_tree(plan.tree, plan.sliced)
     cost = count_flops(steps) << len(plan.sliced)
     return cost, largest_intermediate(steps), (small, plan)
 
 
-def _batched(network: TensorGraph, a: int, prefixes: int, chunk: int, limit: int):
-    """A batch engine over the first ``a`` output legs, its chunk shrunk to fit ``limit``."""
+def _batched(
+    network: TensorGraph, a: int, prefixes: int, chunk: int, opts: QueryOptions
+) -> tuple[int, int, BatchContraction]:
+    """A batch engine over the first ``a`` output legs, its chunk shrunk to fit the limit."""
     out = network.output
-    engine = fitted_engine(network, out[:a], out[a:], min(chunk, prefixes), limit)
+    engine = fitted_engine(network, out[:a], out[a:], min(chunk, prefixes), opts)
     return (*_engine_cost(engine, prefixes), engine)
 
 
-def _candidates(local, a: int, b: int, dtype):
+def _candidates(local: Circuit, a: int, b: int, dtype: np.dtype) -> list[tuple[str, TensorGraph]]:
     """Ways to get ``p(x_B | x_A)``: ``(kind, network)`` pairs.
 
     ``"all"``: every amplitude of the cone, once (small cones); ``"amp"``:
@@ -100,24 +98,31 @@ def _candidates(local, a: int, b: int, dtype):
     return out
 
 
-def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> np.ndarray:
+def _conditional(
+    index: CircuitIndex,
+    prior: list[int],
+    block: list[int],
+    prefixes: np.ndarray,
+    chunk: int,
+    opts: QueryOptions,
+) -> np.ndarray:
     """``p(x_block | x_prior)`` for each row of ``prefixes``: shape ``(rows, 2**len(block))``.
 
     Of the networks that give it (:func:`_candidates`), the one with the fewest
-    estimated FLOPs whose largest intermediate fits ``memory_limit`` is contracted.
+    estimated FLOPs whose largest intermediate fits ``opts.memory_limit`` is contracted.
     """
     targets = [(q, "P") for q in prior + block]
     _, gates, qubits = canonical_cone(index, targets)
     local = cone_circuit(index, gates, len(qubits))
     a, b = len(prior), len(block)
-    limit = memory_limit or default_memory_limit()
-    itemsize = np.dtype(dtype).itemsize
+    limit = opts.memory_limit
+    itemsize = opts.dtype.itemsize
     best = None
-    for kind, network in _candidates(local, a, b, dtype):
+    for kind, network in _candidates(local, a, b, opts.dtype):
         if kind == "all" or a == 0:
-            cost, peak, runner = _planned(network, limit)
+            cost, peak, runner = _planned(network, opts)
         else:
-            cost, peak, runner = _batched(network, a, len(prefixes), chunk, limit)
+            cost, peak, runner = _batched(network, a, len(prefixes), chunk, opts)
         if peak * itemsize * 3 <= limit and (best is None or cost < best[0]):
             best = (cost, kind, runner)
     if best is None:
@@ -129,7 +134,7 @@ def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> n
     _, kind, runner = best
     if kind == "all" or a == 0:
         small, plan = runner
-        values = execute(small, plan.tree, plan.sliced).value()
+        values = execute(small, plan.tree, plan.sliced, memory_limit=limit).value()
         if kind == "dbl":
             table = np.clip(values.real.reshape(1, -1), 0.0, None)
         else:
@@ -152,12 +157,12 @@ def _conditional(index, prior, block, prefixes, dtype, chunk, memory_limit) -> n
     return table / totals
 
 
-def _sample_from_all(circuit, shots, rng, dtype, memory_limit) -> np.ndarray:
+def _sample_from_all(
+    circuit: Circuit, shots: int, rng: np.random.Generator, opts: QueryOptions
+) -> np.ndarray:
     """Narrow circuits: contract every amplitude once (all output legs open) and draw from them."""
-    from tnsim.queries.marginals import all_probabilities
-
     n = circuit.num_qubits
-    probs = all_probabilities(circuit, dtype=dtype, memory_limit=memory_limit)
+    probs = all_probabilities(circuit, opts)
     cum = np.cumsum(probs / probs.sum())
     cum[-1] = 1.0
     index = np.searchsorted(cum, rng.random(shots), side="right")
@@ -171,9 +176,9 @@ def sample(
     *,
     seed: int | np.random.Generator | None = 0,
     block: int = 5,
-    dtype: type | np.dtype = np.complex128,
+    dtype: DTypeLike | None = None,
     chunk: int = 64,
-    memory_limit: int | None = None,
+    memory_limit: MemoryLimit | None = None,
     method: str = "auto",
 ) -> np.ndarray:
     """Draw exact samples from ``p(x) = |<x|C|0...0>|²``.
@@ -188,16 +193,18 @@ def sample(
         Source of randomness (same seed, same samples).
     block : int
         Qubits sampled together per chain-rule step (``2**block`` outcomes).
-    dtype : numpy dtype
-        Contraction dtype.
+    dtype : numpy dtype, optional
+        Contraction dtype: complex128 or complex64; default the enclosing
+        ``run_options`` block's, else complex128.
     chunk : int
         Distinct prefixes contracted together.
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    memory_limit : int or str, optional
+        Bytes, or text such as ``"4GiB"``, for live intermediates; default the
+        enclosing ``run_options`` block's, else half of the available memory.
     method : {"auto", "gates", "marginals"}
         ``"gates"``: gate by gate from amplitudes (:mod:`tnsim.queries.gatewise`;
         ``block`` is not used); ``"marginals"``: the chain rule over light
-        cones; ``"auto"`` (default): circuits of at most :data:`DIRECT_WIDTH`
+        cones; ``"auto"`` (default): circuits of at most :data:`~tnsim.fitted.DIRECT_WIDTH`
         qubits from all their amplitudes at once, wider ones gate by gate.
         Measured side by side (``benchmarks/queries.py --only routes,sampling``),
         gate by gate was 3-77x faster on brickwork, IQP and QAOA circuits of
@@ -217,8 +224,8 @@ def sample(
     >>> sorted({"".join(map(str, row)) for row in s})
     ['000', '111']
     """
-    if not isinstance(circuit, Circuit):
-        raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
+    check_circuit(circuit)
+    opts = resolve_options(memory_limit, dtype=dtype)
     if isinstance(shots, bool) or not isinstance(shots, numbers.Integral) or shots < 0:
         raise InputError(f"shots must be a non-negative integer, got {shots!r}")
     if isinstance(block, bool) or not isinstance(block, numbers.Integral) or not 1 <= block <= 16:
@@ -230,9 +237,9 @@ def sample(
     if shots == 0:
         return np.zeros((0, n), dtype=np.uint8)
     if method == "gates" or (method == "auto" and n > DIRECT_WIDTH):
-        return sample_by_gates(circuit, shots, rng, dtype=dtype, memory_limit=memory_limit)
+        return sample_by_gates(circuit, shots, rng, opts)
     if n <= DIRECT_WIDTH:
-        return _sample_from_all(circuit, shots, rng, dtype, memory_limit)
+        return _sample_from_all(circuit, shots, rng, opts)
     out = np.zeros((shots, n), dtype=np.uint8)
     index = index_circuit(circuit)
     prior: list[int] = []
@@ -242,7 +249,7 @@ def sample(
             group = group.reshape(-1)
         else:
             prefixes, group = np.zeros((1, 0), np.uint8), np.zeros(shots, np.intp)
-        table = _conditional(index, prior, qs, prefixes, dtype, chunk, memory_limit)
+        table = _conditional(index, prior, qs, prefixes, chunk, opts)
         cum = np.cumsum(table, axis=1)
         cum[:, -1] = 1.0
         u = rng.random(shots)

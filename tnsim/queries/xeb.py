@@ -11,15 +11,16 @@ range of ``2**n`` are fine.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
-from tnsim.circuits.bits import parse_many
+from tnsim.circuits.bits import Bitstrings, parse_many
 from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
+from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.queries.amplitudes import iter_amplitudes
+from tnsim.queries.checks import check_circuit
 
 __all__ = ["XebResult", "scaled_probabilities", "xeb"]
 
@@ -44,9 +45,13 @@ class XebResult:
 
 
 def scaled_probabilities(
-    circuit: Circuit, rows: np.ndarray, *, dtype: type | np.dtype = np.complex128
+    circuit: Circuit,
+    bitstrings: Bitstrings,
+    *,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> np.ndarray:
-    """Return ``2**n * |<x|C|0>|²`` for each row of a ``(m, n)`` 0/1 array.
+    """Return ``2**n * |<x|C|0>|²`` for each bitstring (or row of a ``(m, n)`` 0/1 array).
 
     Examples
     --------
@@ -54,9 +59,12 @@ def scaled_probabilities(
     >>> scaled_probabilities(c, np.array([[0, 1], [1, 1]])).round(12).tolist()
     [1.0, 1.0]
     """
+    check_circuit(circuit)
     n = circuit.num_qubits
+    rows = parse_many(bitstrings, n)
     out = np.zeros(len(rows), dtype=np.float64)
-    for start, mantissa, exponent in iter_amplitudes(circuit, rows, dtype=dtype):
+    parts = iter_amplitudes(circuit, rows, dtype=dtype, memory_limit=memory_limit)
+    for start, mantissa, exponent in parts:
         with np.errstate(divide="ignore"):
             log2 = n + 2.0 * (np.log2(np.abs(mantissa)) + exponent)
         out[start : start + len(mantissa)] = np.exp2(log2)
@@ -65,9 +73,10 @@ def scaled_probabilities(
 
 def xeb(
     circuit: Circuit,
-    bitstrings: Iterable[str | Sequence[int]] | np.ndarray,
+    bitstrings: Bitstrings,
     *,
-    dtype: type | np.dtype = np.complex128,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> XebResult:
     """Estimate the linear XEB fidelity of ``bitstrings`` for ``circuit``.
 
@@ -77,8 +86,12 @@ def xeb(
         The ideal circuit.
     bitstrings : iterable of str or sequence of int, or (m, n) array
         Samples; character ``i`` is qubit ``i``.
-    dtype : numpy dtype
-        Contraction dtype.
+    dtype : numpy dtype, optional
+        Contraction dtype: complex128 or complex64; default the enclosing
+        ``run_options`` block's, else complex128.
+    memory_limit : int or str, optional
+        Bytes, or text such as ``"4GiB"``, for live intermediates; default the
+        enclosing ``run_options`` block's, else half of the available memory.
 
     Returns
     -------
@@ -91,21 +104,13 @@ def xeb(
     >>> r.fidelity, r.standard_error, r.num_samples
     (1.0, 0.0, 4)
     """
-    if not isinstance(circuit, Circuit):
-        raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
-    if isinstance(bitstrings, np.ndarray) and bitstrings.ndim == 2:
-        rows = np.asarray(bitstrings, dtype=np.uint8)
-        if rows.shape[1] != circuit.num_qubits or not np.isin(rows, (0, 1)).all():
-            raise InputError(
-                f"bitstring array must be (m, {circuit.num_qubits}) of 0s and 1s, "
-                f"got shape {rows.shape}"
-            )
-    else:
-        rows = parse_many(bitstrings, circuit.num_qubits)
+    check_circuit(circuit)
+    opts = resolve_options(memory_limit, dtype=dtype)
+    rows = parse_many(bitstrings, circuit.num_qubits)
     m = len(rows)
     if m < 2:
         raise InputError(f"XEB needs at least 2 bitstrings, got {m}")
-    values = scaled_probabilities(circuit, rows, dtype=dtype)
+    values = scaled_probabilities(circuit, rows, dtype=opts.dtype, memory_limit=opts.memory_limit)
     fidelity = float(values.mean() - 1.0)
     error = float(values.std(ddof=1) / math.sqrt(m))
     return XebResult(fidelity, error, m)
