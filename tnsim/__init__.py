@@ -4,6 +4,22 @@ The pipeline, one folder per stage: :mod:`tnsim.circuits` → :mod:`tnsim.networ
 → :mod:`tnsim.plan` → :mod:`tnsim.execution` → :mod:`tnsim.queries`, with the
 command line in :mod:`tnsim.cli`.  The names below are the public API; each is
 imported on first use, so ``import tnsim`` stays quick.
+
+Queries: :func:`amplitude`, :func:`amplitudes`, :func:`iter_amplitudes`,
+:func:`marginal`, :func:`expectation`, :func:`maxcut_energy`, :func:`sample`,
+:func:`xeb`, :func:`contract` (any einsum) and :func:`forecast` (cost before a
+run).  Each takes ``memory_limit`` (bytes or text such as ``"4GiB"``) and
+``dtype``, or the enclosing :func:`run_options` block's.
+
+What they return, besides numbers and numpy arrays:
+
+* :class:`Scaled` -- ``mantissa * 2**exponent`` (``scaled=True``), exact where
+  the value underflows;
+* :class:`XebResult` -- fidelity, standard error and sample count of :func:`xeb`;
+* :class:`ForecastReport` -- FLOPs, memory, slices and seconds of :func:`forecast`;
+* :class:`Plan` -- tree, sliced labels and cost of :func:`make_plan`;
+* :class:`ContractionRecord` -- what each contraction of a ``run_options(log=[...])``
+  block ran; :class:`RunOptions` -- the options a block holds.
 """
 
 from __future__ import annotations
@@ -39,6 +55,8 @@ _PUBLIC = {
     "make_plan": "tnsim.plan.driver",
     "Planner": "tnsim.plan.optimizer",
     "run_options": "tnsim.execution.options",
+    "RunOptions": "tnsim.execution.options",
+    "ContractionRecord": "tnsim.execution.options",
     "amplitude": "tnsim.queries.amplitudes",
     "amplitudes": "tnsim.queries.amplitudes",
     "iter_amplitudes": "tnsim.queries.amplitudes",
@@ -85,7 +103,7 @@ def __dir__() -> list[str]:
 if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.circuits.circuit import Circuit, Operation
     from tnsim.circuits.qasm import read_qasm, write_qasm
-    from tnsim.execution.options import run_options
+    from tnsim.execution.options import ContractionRecord, RunOptions, run_options
     from tnsim.network.graph import TensorGraph
     from tnsim.network.scaled import Scaled
     from tnsim.plan.driver import Plan, make_plan

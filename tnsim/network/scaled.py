@@ -30,6 +30,12 @@ class Scaled:
         Array (0-d for a scalar) whose largest component is below 1 in magnitude.
     exponent : int
         Power of two.
+
+    Examples
+    --------
+    >>> a = Scaled(np.array(0.5 + 0.5j), -2000)  # far below the smallest double
+    >>> complex(a), round(a.log10_abs(), 3), round(a.phase(), 6)
+    (0j, -602.21, 0.785398)
     """
 
     mantissa: np.ndarray
