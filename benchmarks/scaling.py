@@ -24,7 +24,7 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     A 10 x 10 qubit, 12-cycle grid amplitude under ``memory_limit=2GiB``: its
     plan (``tnsim.execution.budget.fit_plan``) and forecast seconds (FLOPs, plus
     ``WRITE_FLOPS`` per element written, over the measured matmul rate, as
-    ``tnsim.plan`` forecasts); run only if it is short.  Then a 7 x 7, 12-cycle
+    ``tnsim.forecast`` gives them); run only if it is short.  Then a 7 x 7, 12-cycle
     amplitude sliced to fit 64 MiB, run: forecast against measured time.
 
 The machine's load average is printed before and after: other processes on the
@@ -169,6 +169,7 @@ def _grid_run(rows, cols, cycles, limit, run: bool) -> None:
 
     from tnsim.circuits.families import grid_circuit
     from tnsim.execution.budget import fit_plan
+    from tnsim.execution.options import resolve_options
     from tnsim.execution.slices import execute
     from tnsim.network.builders import amplitude_network
     from tnsim.network.simplify import absorb_small
@@ -177,10 +178,10 @@ def _grid_run(rows, cols, cycles, limit, run: bool) -> None:
     circuit = grid_circuit(rows, cols, cycles, seed=1)
     network = absorb_small(amplitude_network(circuit, "0" * (rows * cols), dtype=np.complex64))
     start = time.perf_counter()
-    plan = fit_plan(network, limit)
+    plan = fit_plan(network, resolve_options(limit))
     planning = time.perf_counter() - start
     rate, source = _forecast_rate(np.complex64)
-    # tnsim's forecast (as tnsim.plan gives it): FLOPs plus the fitted cost per element written.
+    # tnsim's forecast (as tnsim.forecast gives it): FLOPs plus the fitted cost per element written.
     from tnsim.execution.timemodel import elements_written, forecast_seconds
 
     forecast = forecast_seconds(plan.flops, elements_written(plan), rate)
