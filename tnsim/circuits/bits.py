@@ -123,7 +123,7 @@ def read_bits_file(path: str | os.PathLike, num_qubits: int) -> np.ndarray:
     return np.stack(rows)
 
 
-def format_bits(row: Sequence[int]) -> str:
+def format_bits(row: Sequence[int] | np.ndarray) -> str:
     """Return the bitstring text of a 0/1 row (character i is qubit i).
 
     Examples

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import numbers
-from collections.abc import Iterable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -50,10 +51,10 @@ class Operation:
         return GATES[self.name].diagonal
 
 
-def _builder(name: str):
+def _builder(name: str) -> Callable[..., Circuit]:
     spec = GATES[name]
 
-    def method(self: Circuit, *args: float) -> Circuit:
+    def method(self: Circuit, *args: Any) -> Circuit:
         if len(args) != spec.num_qubits + spec.num_params:
             raise InputError(
                 f"{name} takes {spec.num_params} parameter(s) then {spec.num_qubits} "
@@ -95,14 +96,14 @@ class Circuit:
             raise InputError(f"num_qubits must be an integer, got {num_qubits!r}")
         if num_qubits < 1:
             raise InputError(f"num_qubits must be at least 1, got {num_qubits}")
-        self.num_qubits = int(num_qubits)
+        self.num_qubits: int = int(num_qubits)
         self.ops: list[Operation] = []
         self.measurements: dict[int, int] = {}
         """Classical bit -> the qubit read into it (``measure`` statements), final values."""
 
-    for _name in GATES:
-        locals()[_name] = _builder(_name)
-    del _name
+    if TYPE_CHECKING:  # the gate builders, added below for every gate of GATES
+
+        def __getattr__(self, name: str) -> Callable[..., Circuit]: ...
 
     def _check_qubits(self, name: str, qubits: Iterable[int], arity: int) -> tuple[int, ...]:
         qs = tuple(qubits)
@@ -208,13 +209,12 @@ class Circuit:
             raise InputError(f"operation {k}: expected (name, qubits[, params]), got {op!r}")
         if not isinstance(name, str) or qubits is None:
             raise InputError(f"operation {k}: needs a name and qubits, got {op!r}")
-        if isinstance(qubits, numbers.Integral):
-            qubits = (qubits,)
+        targets: Sequence[Any] = (qubits,) if isinstance(qubits, numbers.Integral) else qubits
         try:
             if matrix is not None:
-                self.unitary(matrix, qubits, name)
+                self.unitary(matrix, targets, name)
             else:
-                self.append(name.lower(), qubits, params)
+                self.append(name.lower(), targets, params)
         except InputError as exc:
             raise InputError(f"operation {k}: {exc}") from None
 
@@ -261,3 +261,8 @@ class Circuit:
 
     def __repr__(self) -> str:
         return f"Circuit(num_qubits={self.num_qubits}, ops={len(self.ops)})"
+
+
+for _name in GATES:
+    setattr(Circuit, _name, _builder(_name))
+del _name

@@ -25,6 +25,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from tnsim.errors import InputError
 
@@ -94,9 +95,9 @@ def _fsim(theta: float, phi: float) -> np.ndarray:
     )
 
 
-def _const(matrix: np.ndarray) -> Callable[[], np.ndarray]:
-    matrix = np.asarray(matrix, dtype=complex)
-    return lambda: matrix
+def _const(matrix: ArrayLike) -> Callable[[], np.ndarray]:
+    fixed = np.asarray(matrix, dtype=complex)
+    return lambda: fixed
 
 
 def _swap_matrix() -> np.ndarray:
@@ -171,7 +172,12 @@ def _specs() -> dict[str, GateSpec]:
         GateSpec("cz", 2, 0, _const(controlled(_Z)), True),
         GateSpec("ch", 2, 0, _const(controlled(_H))),
         GateSpec("swap", 2, 0, _const(_swap_matrix())),
-        GateSpec("iswap", 2, 0, _const([[1, 0, 0, 0], [0, 0, 1j, 0], [0, 1j, 0, 0], [0, 0, 0, 1]])),
+        GateSpec(
+            "iswap",
+            2,
+            0,
+            _const(np.array([[1, 0, 0, 0], [0, 0, 1j, 0], [0, 1j, 0, 0], [0, 0, 0, 1]])),
+        ),
         GateSpec("cp", 2, 1, lambda lam: controlled(phase(lam)), True),
         GateSpec("cu1", 2, 1, lambda lam: controlled(phase(lam)), True),
         GateSpec("crx", 2, 1, lambda t: controlled(rx(t))),

@@ -9,6 +9,7 @@ import argparse
 import json
 import os
 import sys
+from typing import Any
 
 import numpy as np
 
@@ -85,7 +86,7 @@ def _cmd_expect(args: argparse.Namespace) -> int:
     circuit = load_circuit(args.circuit)
     obs = parse_observable(_read_observable(args), circuit.num_qubits)
     cache = TermCache(circuit)
-    rows = []
+    rows: list[dict[str, Any]] = []
     for term in obs.terms:
         value = cache.value(term.paulis)
         pauli = " ".join(f"{p}{q}" for q, p in term.paulis) or "I"

@@ -138,7 +138,7 @@ class BatchContraction:
         varying = zip(self.steps, self.varying[n:])
         return sum(math.prod(s.out_shape) for s, v in varying if v)
 
-    def _contract_fixed(self) -> None:
+    def _contract_fixed(self) -> dict[int, tuple[np.ndarray, int]]:
         """Contract every step that no batch leaf feeds; keep what later steps need."""
         tree = self.tree
         n = tree.num_leaves
@@ -151,6 +151,7 @@ class BatchContraction:
                 c, e = normalize_owned(apply_step(step, a, b), SLACK)
                 nodes[n + k] = (c, ea + eb + e)
         self.cached = nodes
+        return nodes
 
     def _leaves(self, values: np.ndarray) -> list[np.ndarray]:
         eye = np.eye(2, dtype=self.dtype)
@@ -191,11 +192,10 @@ class BatchContraction:
         return self._run_cached(leaves, count)
 
     def _run_cached(self, leaves: list[np.ndarray], count: int) -> Scaled:
-        if self.cached is None:
-            self._contract_fixed()
+        cached = self._contract_fixed() if self.cached is None else self.cached
         tree = self.tree
         n = tree.num_leaves
-        nodes = dict(self.cached)
+        nodes = dict(cached)
         for k, leaf in enumerate(leaves):
             nodes[self.num_fixed + k] = (leaf, 0)
         labels = list(tree.inputs)

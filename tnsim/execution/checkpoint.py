@@ -31,6 +31,7 @@ import os
 import zipfile
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -59,7 +60,7 @@ class OrderedSum:
 
     num_chunks: int
     prefix_count: int = 0
-    prefix: object = None
+    prefix: Any = None
     pending: dict = field(default_factory=dict)
 
     def add(self, index: int, value) -> None:

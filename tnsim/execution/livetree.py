@@ -86,7 +86,8 @@ class LiveTree:
         self.steps = compile_tree(tree)
         self.labels: list[tuple[int, ...]] = [tuple(ix) for ix in tree.inputs]
         self.labels += [step.out_labels for step in self.steps]
-        self.children: list[tuple[int, int] | None] = [None] * n + list(tree.path)
+        # children of each node; leaves (ids below n) have none: (-1, -1)
+        self.children: list[tuple[int, int]] = [(-1, -1)] * n + [(x, y) for x, y in tree.path]
         self.parent = [-1] * len(self.children)
         for k, (x, y) in enumerate(tree.path):
             self.parent[x] = self.parent[y] = n + k

@@ -39,7 +39,7 @@ def _slice_arrays(
     arrays: Sequence[np.ndarray],
     indices: Sequence[Sequence[int]],
     sliced: Sequence[int],
-    values: Sequence[int],
+    values: Sequence[int | np.integer],
 ) -> list[np.ndarray]:
     fixed = dict(zip(sliced, values))
     out = []
@@ -104,6 +104,8 @@ def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
         except Exception as exc:
             raise SliceError(f"{job.describe(k)} failed: {type(exc).__name__}: {exc}") from exc
         total = part if total is None else total + part
+    if total is None:
+        raise SliceError(f"empty chunk of slices {start}..{stop - 1}")
     return total
 
 
@@ -259,7 +261,7 @@ def execute(
     if executor is None and workers is None:
         big = slice_flops * num_slices >= 1e11 and len(bounds) > 1
         workers = min(local_workers(), len(bounds), max(1, limit // max(need, 1))) if big else 1
-    pool = 1 if executor is not None else max(1, int(workers))
+    pool = 1 if executor is not None else max(1, int(workers or 1))
     _check_memory(need, limit, pool)
     if checkpoint is not None:
         store = Checkpoint(checkpoint, _fingerprint(network, job, bounds), len(bounds), Scaled)

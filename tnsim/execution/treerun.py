@@ -91,7 +91,10 @@ def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
     finally:
         if current != full:
             set_blas_threads(full)
-    return nodes[-1], exponent
+    root = nodes[-1]
+    if root is None:  # every step's result is appended: the last node is never cleared
+        raise AssertionError("the contraction lost its root")
+    return root, exponent
 
 
 def _run_other(ops: ArrayBackend, arrays, tree, steps, labels) -> tuple[np.ndarray, int]:

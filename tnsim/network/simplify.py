@@ -55,6 +55,13 @@ class _Graph:
             i for i in union if i in out or len(where[i]) > (t in where[i]) + (u in where[i])
         )
 
+    def array(self, t: int) -> np.ndarray:
+        """The array of live tensor ``t`` (a contracted tensor has none)."""
+        a = self.arrays[t]
+        if a is None:
+            raise AssertionError(f"tensor {t} was contracted away")
+        return a
+
     def neighbours(self, t: int) -> list[int]:
         return sorted({u for i in self.labels[t] for u in self.where[i]} - {t})
 
@@ -62,7 +69,7 @@ class _Graph:
         """Replace ``t`` and ``u`` by their contraction; return the new id."""
         lt, lu = self.labels[t], self.labels[u]
         out_labels = self.result_labels(t, u)
-        c, e = normalize(_einsum_pair(self.arrays[t], lt, self.arrays[u], lu, out_labels))
+        c, e = normalize(_einsum_pair(self.array(t), lt, self.array(u), lu, out_labels))
         self.exponent += e
         new = len(self.arrays)
         self.arrays.append(c)
@@ -111,11 +118,12 @@ def absorb_small(network: TensorGraph) -> TensorGraph:
     work = deque(range(len(g.arrays)))
     while work:
         t = work.popleft()
-        if g.arrays[t] is None:
+        a = g.arrays[t]
+        if a is None:
             continue
-        own = g.arrays[t].size
+        own = a.size
         for u in g.neighbours(t):
-            limit = max(own, g.arrays[u].size)
+            limit = max(own, g.array(u).size)
             if g.numel(g.result_labels(t, u)) <= limit:
                 work.append(g.contract(t, u))
                 break
@@ -125,13 +133,13 @@ def absorb_small(network: TensorGraph) -> TensorGraph:
 def _fold_scalars(g: _Graph, network: TensorGraph) -> TensorGraph:
     """Collect the live tensors, merging rank-0 ones into the first other tensor."""
     alive = g.alive()
-    scalars = [t for t in alive if g.arrays[t].ndim == 0]
-    rest = [t for t in alive if g.arrays[t].ndim > 0]
+    scalars = [t for t in alive if g.array(t).ndim == 0]
+    rest = [t for t in alive if g.array(t).ndim > 0]
     factor = np.ones((), dtype=network.dtype)
     for t in scalars:
-        factor, e = normalize(factor * g.arrays[t])
+        factor, e = normalize(factor * g.array(t))
         g.exponent += e
-    arrays = [g.arrays[t] for t in rest]
+    arrays = [g.array(t) for t in rest]
     indices = [g.labels[t] for t in rest]
     if arrays:
         arrays[0] = arrays[0] * factor

@@ -317,7 +317,7 @@ def linear_to_ssa(linear: Sequence[Sequence[int]], n: int) -> tuple[tuple[int, i
     """
     ids = list(range(n))
     nxt = n
-    out = []
+    out: list[tuple[int, int]] = []
     for step in linear:
         pos = sorted(step, reverse=True)
         picked = [ids[p] for p in sorted(step)]
@@ -368,10 +368,10 @@ def memory_order(
     """
     n = len(inputs)
     if len(path) < 2:
-        return tuple(tuple(p) for p in path)
+        return tuple((int(x), int(y)) for x, y in path)
     labels = step_labels(inputs, output, path)
     numel = [0] * n + [_numel(ls, size) for ls in labels[n:]]
-    children = {n + s: tuple(p) for s, p in enumerate(path)}
+    children = {n + s: (int(p[0]), int(p[1])) for s, p in enumerate(path)}
     need = [0] * n + [0] * len(path)
     first: dict[int, tuple[int, int]] = {}
     for v in range(n, n + len(path)):

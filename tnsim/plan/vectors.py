@@ -87,7 +87,8 @@ def plan_vectors_first(
     ids = [node[k] for k in kept]
     start = len(ins) + len(path)
     for x, y in plan.tree.path:
-        path.append(tuple(ids[i] if i < len(kept) else start + i - len(kept) for i in (x, y)))
+        a, b = (ids[i] if i < len(kept) else start + i - len(kept) for i in (x, y))
+        path.append((a, b))
     tree = PairTree(tuple(ins), tuple(network.output), dict(network.size), tuple(path))
     extended = tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops
     merged = plan.tree.cost(sliced=plan.sliced, itemsize=plan.itemsize).flops

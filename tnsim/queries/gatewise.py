@@ -89,10 +89,11 @@ def gate_steps(circuit: Circuit) -> list[GateStep]:
             pending[q], depth[q], last[q] = [], layer + 1, len(groups)
         groups.append((tuple(op.qubits), [*before, op], layer))
     for q in range(n):
-        if pending[q] and last[q] is None:
+        previous = last[q]
+        if pending[q] and previous is None:
             groups.append(((q,), pending[q], 0))
-        elif pending[q]:
-            groups[last[q]][1].extend(pending[q])
+        elif pending[q] and previous is not None:
+            groups[previous][1].extend(pending[q])
     order = sorted(range(len(groups)), key=lambda k: (groups[k][2], k))
     return [GateStep(groups[k][0], tuple(groups[k][1]), groups[k][2]) for k in order]
 

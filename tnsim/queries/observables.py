@@ -86,7 +86,8 @@ def _tokens(text: str) -> list[tuple[str, str, int]]:
         m = _TOKEN.match(text, pos)
         if m is None or m.end() == pos:
             break
-        kind = m.lastgroup if m.lastgroup != "qubit" else "pauli"
+        group = m.lastgroup or "bad"  # one of the alternatives matched: never None
+        kind = group if group != "qubit" else "pauli"
         col = m.start(kind) + 1
         if kind == "bad":
             raise _error(text, col, f"unexpected character {m.group('bad')!r}")

@@ -37,6 +37,7 @@ from tnsim.network.builders import amplitude_network, doubled_network
 from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import Plan
 from tnsim.queries.checks import check_circuit
 from tnsim.queries.gatewise import sample_by_gates
 from tnsim.queries.marginals import all_probabilities
@@ -62,7 +63,7 @@ def _engine_cost(engine: BatchContraction, prefixes: int) -> tuple[int, int]:
     return fixed + per_run * runs, largest_intermediate(engine.steps)
 
 
-def _planned(network: TensorGraph, opts: QueryOptions) -> tuple[int, int, tuple]:
+def _planned(network: TensorGraph, opts: QueryOptions) -> tuple[int, int, tuple[TensorGraph, Plan]]:
     """Simplify and plan a network; return (cost, peak elements, runner)."""
     small = absorb_small(network)
     plan = fit_plan(small, opts)
@@ -117,7 +118,8 @@ def _conditional(
     a, b = len(prior), len(block)
     limit = opts.memory_limit
     itemsize = opts.dtype.itemsize
-    best = None
+    best: tuple[int, str, tuple[TensorGraph, Plan] | BatchContraction] | None = None
+    runner: tuple[TensorGraph, Plan] | BatchContraction
     for kind, network in _candidates(local, a, b, opts.dtype):
         if kind == "all" or a == 0:
             cost, peak, runner = _planned(network, opts)
@@ -132,7 +134,7 @@ def _conditional(
             "use a smaller --block or raise the limit"
         )
     _, kind, runner = best
-    if kind == "all" or a == 0:
+    if not isinstance(runner, BatchContraction):  # kind "all", or no prefix yet
         small, plan = runner
         values = execute(small, plan.tree, plan.sliced, memory_limit=limit).value()
         if kind == "dbl":

@@ -9,6 +9,7 @@ steps, ``where`` being the ``(Source, offset)`` reported if the step fails.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 from tnsim.circuits.qasm.lexer import Source, describe
 from tnsim.errors import QasmError
@@ -39,7 +40,10 @@ _BINARY = {"+": (1, False), "-": (1, False), "*": (2, False), "/": (2, False), "
 _UNARY_PREC = 3
 
 Where = tuple[Source, int]
-Code = tuple[tuple[int, object, Where], ...]
+Instruction = tuple[int, Any, Where]
+"""One postfix instruction: its kind (NUM, ARG, NEG, BIN, FN), then by kind a number, an
+argument index, nothing, an operator or a function name, then where it was written."""
+Code = tuple[Instruction, ...]
 
 
 class MathError(Exception):
@@ -122,7 +126,8 @@ class _ExpressionParser:
     """Precedence climbing over the token stream of ``parser`` (see :func:`parse_expression`)."""
 
     def __init__(self, parser, env: dict[str, int] | None):
-        self.p, self.env, self.code, self.depth = parser, env, [], 0
+        self.p, self.env, self.depth = parser, env, 0
+        self.code: list[Instruction] = []
 
     def where(self, tok) -> Where:
         return (self.p.source, tok.offset)

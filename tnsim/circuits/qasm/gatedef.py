@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from tnsim.circuits.qasm.definitions import EXTENSION_TOKENS, MAX_GATE_DEPTH, SIZE_CAP, Call, Gate
 from tnsim.circuits.qasm.header import KEYWORDS, UNITARY_ONLY
 from tnsim.circuits.qasm.lexer import Token, describe
 from tnsim.circuits.qasm.parser import TokenParser
+from tnsim.errors import QasmError
 
 __all__ = ["DefinitionParser"]
 
@@ -13,8 +16,15 @@ __all__ = ["DefinitionParser"]
 class DefinitionParser(TokenParser):
     """The token parser, with ``gate name(params) qubits { body }`` definitions.
 
-    Extends :class:`~tnsim.circuits.qasm.parser.TokenParser`.
+    Extends :class:`~tnsim.circuits.qasm.parser.TokenParser`; the reader that
+    uses it supplies :meth:`unsupported`.
     """
+
+    if TYPE_CHECKING:
+
+        def unsupported(self, tok: Token) -> QasmError:
+            """The error for a statement tnsim does not simulate (``reset``, ``if`` ...)."""
+            ...
 
     def gate_definition(self) -> None:
         """Parse one ``gate`` or ``opaque`` definition and record the gate."""

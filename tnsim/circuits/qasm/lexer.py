@@ -88,7 +88,9 @@ class Lexer:
 
     def seek(self, pos: int) -> None:
         """Continue reading at offset ``pos``."""
-        self._end, self._scan = pos, _TOKEN_RE.scanner(self._text, pos).match
+        # Pattern.scanner: CPython's undocumented incremental matcher (no typeshed stub)
+        scanner = _TOKEN_RE.scanner(self._text, pos)  # type: ignore[attr-defined]
+        self._end, self._scan = pos, scanner.match
 
     def next(self) -> Token:
         """Return the next token (an ``eof`` token at the end, again and again)."""
@@ -97,7 +99,8 @@ class Lexer:
             if self._end == len(self._text):  # the scanner stops after matching the end
                 self.seek(self._end)
                 return self.next()
-            raise self._bad_character(_SKIP_RE.match(self._text, self._end).end())
+            skipped = _SKIP_RE.match(self._text, self._end)  # matches the empty string too
+            raise self._bad_character(skipped.end() if skipped else self._end)
         self._end = match.end()
         group = match.lastindex
         return _new_token(Token, (_KINDS[group], match.group(group), match.start(group)))
