@@ -346,15 +346,21 @@ def test_plans_are_reused_for_the_same_network_and_options():
     assert make_plan(tn, memory_limit=10**6) is not make_plan(tn)
 
 
-def test_search_stops_once_it_has_spent_the_best_trees_contraction_time():
+def test_search_stops_once_it_has_spent_the_best_trees_contraction_time(monkeypatch):
+    from tnsim.plan import search
     from tnsim.plan.random_networks import random_network
     from tnsim.plan.search import METHODS, search_path
 
     inputs, output, size = random_network(30, seed=4)
-    # At 1e15 FLOP/s every tree here contracts in far under a microsecond: the search
-    # must stop right after each planner has had its trial, long before the 30 s budget.
+    # A fast-forwarded clock (each reading 1 ms after the last) in place of the wall clock:
+    # at 1e15 FLOP/s every tree here contracts in far under a microsecond, so the search
+    # must stop right after each planner has had its trial -- counted in trials, on a clock
+    # that no machine load can slow, long before the 30 s budget.
+    clock = itertools.count(0.0, 1e-3)
+    monkeypatch.setattr(search.time, "perf_counter", lambda: next(clock))
     r = search_path(inputs, output, size, time_budget=30.0, seed=1, stop_rate=1e15)
-    assert r.trials == len(METHODS) and r.seconds < 30.0
+    assert r.trials == len(METHODS)
+    assert r.seconds < 1.0  # clock readings: under a thousand were taken
 
 
 def test_sweep_crosses_a_grid_along_its_long_side():
@@ -487,11 +493,9 @@ def test_time_objective_weighs_elements_written():
     assert {runs["operations"].method, runs["runtime"].method} == {"sweep", "bisection"}
 
 
-def test_same_seed_and_trial_budget_give_the_same_sliced_plan():
+def test_same_seed_and_trial_budget_give_the_same_sliced_plan(monkeypatch):
     # Bug found: with max_trials but no time_budget, make_plan still gave the search a default
     # time budget and timed sub-tree re-planning, so a loaded machine could change the plan.
-    import time as _time
-
     import tnsim.plan.driver as plan_module
     from tnsim.circuits.families import grid_circuit
     from tnsim.network.builders import amplitude_network
@@ -501,15 +505,14 @@ def test_same_seed_and_trial_budget_give_the_same_sliced_plan():
     net = absorb_small(amplitude_network(grid_circuit(6, 6, 8, seed=0), "0" * 36))
     limit = make_plan(net, max_trials=6).peak_bytes // 8
     plans = []
-    real = _time.perf_counter
     for slow in (False, True):
         plan_module._PLAN_CACHE.clear()
         if slow:  # every clock reading 10 s later than the last: any time limit would bind
-            reopt_module.time.perf_counter = itertools.count(0.0, 10.0).__next__
-        try:
-            plans.append(make_plan(net, max_trials=6, memory_limit=limit, seed=3))
-        finally:
-            reopt_module.time.perf_counter = real
+            monkeypatch.setattr(
+                reopt_module.time, "perf_counter", itertools.count(0.0, 10.0).__next__
+            )
+        plans.append(make_plan(net, max_trials=6, memory_limit=limit, seed=3))
+        monkeypatch.undo()
     assert plans[0].tree.path == plans[1].tree.path and plans[0].sliced == plans[1].sliced
 
 
