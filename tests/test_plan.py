@@ -432,7 +432,7 @@ def test_capped_reoptimization_keeps_intermediates_under_the_cap():
 
 
 @pytest.mark.parametrize("seed", range(4))
-def test_slice_and_replan_fits_and_keeps_the_value(seed):
+def test_slice_with_replanning_fits_and_keeps_the_value(seed):
     inputs, output, size = random_network(16, max_size=3, num_open=1, hyper=0.3, seed=seed)
     arrays = random_arrays(inputs, size, seed=seed)
     path = random_greedy_path(inputs, output, size, seed=seed)

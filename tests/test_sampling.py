@@ -284,7 +284,7 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     # batched runs of write-heavy trees are far slower than their FLOPs at the matmul rate,
     # so plans ~10x too costly were kept and 7x7x8 sampling time varied 6x between runs.
     # The decision now lives in plan_for_runs (used for every layer).
-    import tnsim.execution.timemodel as forecast
+    import tnsim.execution.timemodel as timemodel
     import tnsim.queries.gatewise as gatewise
     from tnsim.fitted import WRITE_FLOPS
     from tnsim.plan.driver import make_plan
@@ -298,14 +298,14 @@ def test_layer_plan_search_counts_elements_written(monkeypatch):
     assert WRITE_FLOPS * written > 4 * flops  # a write-heavy plan, as on grid circuits
     # A rate at which the FLOPs alone forecast a search of half the floor.
     runs = 16
-    rate = forecast.PLAN_SHARE * runs * flops / (forecast.MIN_PLAN_SECONDS / 2)
-    monkeypatch.setattr(forecast, "matmul_rate", lambda dtype: rate)
+    rate = timemodel.PLAN_SHARE * runs * flops / (timemodel.MIN_PLAN_SECONDS / 2)
+    monkeypatch.setattr(timemodel, "matmul_rate", lambda dtype: rate)
     budgets = []
 
     def spy(network, **kwargs):
         budgets.append(kwargs.get("time_budget"))
         return make_plan(network, **kwargs)
 
-    monkeypatch.setattr(forecast, "make_plan", spy)
-    forecast.plan_for_runs(layer.network, runs)
-    assert budgets[-1] is not None and budgets[-1] > forecast.MIN_PLAN_SECONDS
+    monkeypatch.setattr(timemodel, "make_plan", spy)
+    timemodel.plan_for_runs(layer.network, runs)
+    assert budgets[-1] is not None and budgets[-1] > timemodel.MIN_PLAN_SECONDS
