@@ -9,7 +9,7 @@ model, and the engines that contract one network many times (:mod:`.batch`,
 :mod:`.livetree`).
 """
 
-from tnsim.execution.options import RunOptions, run_options
+from tnsim.execution.options import QueryOptions, RunOptions, resolve_options, run_options
 from tnsim.execution.slices import execute
 
-__all__ = ["RunOptions", "execute", "run_options"]
+__all__ = ["QueryOptions", "RunOptions", "execute", "resolve_options", "run_options"]
