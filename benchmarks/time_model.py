@@ -107,8 +107,8 @@ def objectives(grids, budget: float) -> None:
                 flush=True,
             )
         print(
-            f"{r}x{c}x{d:<6} flops-plan seconds / time-plan seconds: "
-            f"{times['flops'] / times['time']:.2f}"
+            f"{r}x{c}x{d:<6} operations-plan seconds / runtime-plan seconds: "
+            f"{times['operations'] / times['runtime']:.2f}"
         )
 
 

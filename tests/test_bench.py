@@ -287,3 +287,12 @@ def test_crossover_is_first_size_after_the_last_loss():
     rows.append({"qubits": 26, "speedup": None})  # dense not run: ignored
     assert crossover.crossover(rows) == 16
     assert crossover.crossover([{"qubits": 9, "speedup": 0.5}]) is None
+
+
+def test_time_model_compares_the_planners_own_objectives(capsys):
+    # Bug found: after the objectives were renamed, the script's comparison still looked up
+    # "flops" and "time" and its quick run stopped with a KeyError.
+    time_model = _load("time_model")
+    time_model.objectives([(4, 4, 4)], 0.1)
+    out = capsys.readouterr().out
+    assert "operations-plan seconds / runtime-plan seconds" in out
