@@ -70,7 +70,7 @@ def check_dtype(dtype: Any) -> np.dtype:
     """
     try:
         dt = np.dtype(dtype)
-    except TypeError:
+    except (TypeError, ValueError):
         dt = None
     if dt not in _DTYPES:
         raise InputError(
@@ -333,10 +333,11 @@ def resolve_options(
     if executor is None and workers is None:
         executor, workers = block.executor, block.workers
     workers = _check_workers(workers)
-    local = executor is None and workers is not None and workers > 1
+    # slices running at once on local worker processes share the limit
+    share = workers if executor is None and workers is not None and workers > 1 else 1
     return QueryOptions(
         memory_limit=limit,
-        slice_limit=max(1, limit // workers) if local and workers else limit,
+        slice_limit=max(1, limit // share),
         dtype=dt,
         executor=executor,
         workers=workers,
