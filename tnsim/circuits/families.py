@@ -25,6 +25,7 @@ from tnsim.errors import InputError
 
 __all__ = [
     "FAMILIES",
+    "GRID_SEQUENCES",
     "SQRT_W_U3",
     "Family",
     "Param",
@@ -32,12 +33,15 @@ __all__ = [
     "ghz",
     "grid_circuit",
     "grid_edge_layer",
+    "grid_layer_pairs",
     "hardware_efficient",
     "iqp",
     "ising_trotter",
+    "layout_2018",
     "make_family",
     "qaoa_maxcut",
     "qft",
+    "staggered_edge_layer",
 ]
 
 
@@ -89,6 +93,102 @@ def grid_edge_layer(rows: int, cols: int, layer: int) -> list[tuple[int, int]]:
     ]
 
 
+def staggered_edge_layer(
+    rows: int, cols: int, vertical: bool, offset: int
+) -> list[tuple[int, int]]:
+    """Return one staggered nearest-neighbour layer of a grid: every other edge, shifted by row.
+
+    A vertical layer holds the pairs ``(r, c)``-``(r + 1, c)`` with
+    ``r + c + offset`` even; a horizontal one the pairs ``(r, c)``-``(r, c + 1)``
+    with ``r + c + offset`` even.  Qubit ``r * cols + c`` sits at row ``r``,
+    column ``c``; no qubit appears twice.
+
+    Examples
+    --------
+    >>> staggered_edge_layer(2, 3, False, 0)
+    [(0, 1), (4, 5)]
+    >>> staggered_edge_layer(3, 2, True, 1)
+    [(1, 3), (2, 4)]
+    """
+    pairs = []
+    for r in range(rows - int(vertical)):
+        for c in range(cols - int(not vertical)):
+            if (r + c + offset) % 2 == 0:
+                b = (r + 1) * cols + c if vertical else r * cols + c + 1
+                pairs.append((r * cols + c, b))
+    return pairs
+
+
+def layout_2018(rows: int, cols: int, k: int) -> list[tuple[int, int]]:
+    """Return layout ``k % 8`` of the eight CZ layouts of the 2018 supremacy proposal.
+
+    Each layout holds one edge in four along one direction, staggered from row
+    to row (or column to column), so that a layer touches at most half of the
+    qubits.  Edge ``(r, c)``-``(r, c + 1)`` is in layout ``2c + 4 (r mod 2)``
+    (mod 8); edge ``(r, c)``-``(r + 1, c)`` in layout ``3 - 2r + 4 (c mod 2)``
+    (mod 8): even layouts are horizontal, odd ones vertical, and the eight
+    together hold every edge once.  (Boixo et al., "Characterizing quantum
+    supremacy in near-term devices", Nature Physics 14, 595, 2018, Fig. 6 and
+    its circuit recipe; the layout numbering is recalled from memory.)
+
+    Examples
+    --------
+    >>> layout_2018(2, 5, 0)
+    [(0, 1), (7, 8)]
+    >>> layout_2018(4, 4, 1)
+    [(4, 8), (6, 10)]
+    """
+    k %= 8
+    pairs = []
+    for r in range(rows):
+        for c in range(cols - 1):
+            if (2 * c + 4 * (r % 2)) % 8 == k:
+                pairs.append((r * cols + c, r * cols + c + 1))
+    for r in range(rows - 1):
+        for c in range(cols):
+            if (3 - 2 * r + 4 * (c % 2)) % 8 == k:
+                pairs.append((r * cols + c, (r + 1) * cols + c))
+    return sorted(pairs)
+
+
+GRID_SEQUENCES = ("rotation", "abcdcdab", "layouts2018")
+"""Two-qubit layer sequences of :func:`grid_circuit`.
+
+``"rotation"``: the four aligned layers of :func:`grid_edge_layer` in turn (0, 1, 2, 3);
+``"abcdcdab"``: the four staggered patterns A, B, C, D of a grid processor in the
+order A B C D C D A B, repeated (Arute et al., "Quantum supremacy using a
+programmable superconducting processor", Nature 574, 505, 2019; patterns A and B
+vertical, C and D horizontal, recalled from memory), see :func:`staggered_edge_layer`;
+``"layouts2018"``: the eight layouts of :func:`layout_2018` in turn.
+"""
+
+# Pattern A, B, C, D of the staggered sequence as (vertical, offset) of staggered_edge_layer.
+_PATTERNS = {"A": (True, 0), "B": (True, 1), "C": (False, 1), "D": (False, 0)}
+
+
+def grid_layer_pairs(
+    rows: int, cols: int, cycle: int, sequence: str = "rotation"
+) -> list[tuple[int, int]]:
+    """Return the qubit pairs of the two-qubit layer of ``cycle`` in a layer ``sequence``.
+
+    See :data:`GRID_SEQUENCES`.
+
+    Examples
+    --------
+    >>> grid_layer_pairs(2, 2, 0, "abcdcdab")
+    [(0, 2)]
+    >>> grid_layer_pairs(2, 2, 2, "abcdcdab")
+    [(2, 3)]
+    """
+    if sequence == "rotation":
+        return grid_edge_layer(rows, cols, cycle)
+    if sequence == "abcdcdab":
+        return staggered_edge_layer(rows, cols, *_PATTERNS["ABCDCDAB"[cycle % 8]])
+    if sequence == "layouts2018":
+        return layout_2018(rows, cols, cycle)
+    raise InputError(f"unknown grid sequence {sequence!r}; use one of {', '.join(GRID_SEQUENCES)}")
+
+
 def _grid_single(c: Circuit, kind: int, q: int) -> None:
     if kind == 0:
         c.sx(q)
@@ -99,13 +199,20 @@ def _grid_single(c: Circuit, kind: int, q: int) -> None:
 
 
 def grid_circuit(
-    rows: int, cols: int, cycles: int, *, two_qubit: str = "cz", seed: int = 0
+    rows: int,
+    cols: int,
+    cycles: int,
+    *,
+    two_qubit: str = "cz",
+    seed: int = 0,
+    sequence: str = "rotation",
 ) -> Circuit:
     """Random circuit on a 2D grid of qubits (the random-circuit-sampling pattern).
 
     Each cycle applies a random single-qubit gate to every qubit, then a
-    two-qubit gate to every pair of one edge layer (:func:`grid_edge_layer`,
-    layers in rotation 0, 1, 2, 3, 0, ...).  Single-qubit gates are drawn
+    two-qubit gate to every pair of one edge layer, the layers following
+    ``sequence`` (:data:`GRID_SEQUENCES`; by default the aligned layers of
+    :func:`grid_edge_layer` in rotation 0, 1, 2, 3, 0, ...).  Single-qubit gates are drawn
     from {√X, √Y, √W}, never the same gate on a qubit in two consecutive
     cycles:
 
@@ -124,6 +231,8 @@ def grid_circuit(
         ``cz``, or ``fsim(π/2, π/6)``.
     seed : int
         Seed of the single-qubit gate choices.
+    sequence : {"rotation", "abcdcdab", "layouts2018"}
+        Sequence of two-qubit layers (:data:`GRID_SEQUENCES`).
 
     Returns
     -------
@@ -141,6 +250,8 @@ def grid_circuit(
     cycles = _positive("cycles", cycles, 0)
     if two_qubit not in ("cz", "fsim"):
         raise InputError(f"two_qubit must be 'cz' or 'fsim', got {two_qubit!r}")
+    if sequence not in GRID_SEQUENCES:
+        raise InputError(f"sequence must be one of {', '.join(GRID_SEQUENCES)}, got {sequence!r}")
     rng = np.random.default_rng(seed)
     n = rows * cols
     c = Circuit(n)
@@ -153,7 +264,7 @@ def grid_circuit(
         for q in range(n):
             _grid_single(c, int(kinds[q]), q)
         last = kinds
-        for a, b in grid_edge_layer(rows, cols, cycle):
+        for a, b in grid_layer_pairs(rows, cols, cycle, sequence):
             if two_qubit == "cz":
                 c.cz(a, b)
             else:
@@ -525,8 +636,8 @@ FAMILIES: dict[str, Family] = {
     for f in [
         Family(
             "grid",
-            lambda rows, cols, cycles, two_qubit, seed: grid_circuit(
-                rows, cols, cycles, two_qubit=two_qubit, seed=seed
+            lambda rows, cols, cycles, two_qubit, seed, sequence: grid_circuit(
+                rows, cols, cycles, two_qubit=two_qubit, seed=seed, sequence=sequence
             ),
             (
                 Param("rows", int, 4, "grid rows"),
@@ -534,6 +645,12 @@ FAMILIES: dict[str, Family] = {
                 Param("cycles", int, 8, "cycles (single-qubit layer + one edge layer)"),
                 Param("two_qubit", str, "cz", "two-qubit gate: cz or fsim"),
                 _SEED,
+                Param(
+                    "sequence",
+                    str,
+                    "rotation",
+                    "two-qubit layer sequence: rotation, abcdcdab or layouts2018",
+                ),
             ),
             ("rows", "cols"),
             "cycles",
