@@ -50,11 +50,11 @@ class TreeProfile:
     --------
     >>> ins, size = [(0, 1), (1, 2), (2, 0)], {0: 4, 1: 4, 2: 4}
     >>> prof = TreeProfile(ins, (), size, [(0, 1), (2, 3)])
-    >>> prof.cost()
-    (768.0, 1280.0, 20.0, 16.0)
-    >>> flops, peak, written, largest = prof.cost_with([0, 1])
+    >>> prof.cost()  # flops, peak bytes, elements written, largest intermediate
+    (640.0, 768.0, 17.0, 16.0)
+    >>> flops, peak, written, largest = prof.cost_with([0, 1])  # label 0 or label 1 sliced
     >>> flops.tolist(), peak.tolist()
-    [[224.0, 224.0], [384.0, 384.0]]
+    ([160.0, 256.0], [384.0, 768.0])
     """
 
     def __init__(
