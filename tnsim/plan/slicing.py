@@ -7,7 +7,11 @@ least 1 for a fixed tree; re-planning can find a cheaper tree) while the peak
 memory shrinks.  Labels are chosen greedily: each time, among
 the labels of the largest intermediates, the one with the smallest growth of
 total FLOPs per unit of peak reduction (both in log) is added, until the peak
-fits.  :func:`choose_slices` slices a fixed tree; :func:`slice_with_replanning`
+fits (:func:`slice_profile`: all candidates of a step are costed at once by
+:class:`~tnsim.plan.slicecost.TreeProfile`; the candidates are the labels of
+the largest intermediates, so labels alive across many of the biggest
+intermediates, which remove the most width along the whole tree, win).
+:func:`choose_slices` slices a fixed tree; :func:`slice_with_replanning`
 re-plans the tree's sub-trees after each label, so the tree and the slices
 adapt to each other (slicing interleaved with local re-planning, as in Huang
 et al., "Efficient parallelization of tensor network contraction for
@@ -19,11 +23,105 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 
+import numpy as np
+
 from tnsim.errors import ResourceLimitError
 from tnsim.plan.reoptimize import reoptimize_path
+from tnsim.plan.slicecost import TreeProfile
 from tnsim.plan.tree import TreeCost, memory_order, step_labels, tree_cost, without_labels
 
-__all__ = ["choose_slices", "slice_with_replanning"]
+__all__ = ["SlicedFigures", "choose_slices", "slice_profile", "slice_with_replanning"]
+
+
+class SlicedFigures(tuple):
+    """``(flops, peak_bytes, written, num_slices)`` of a sliced tree, all slices for FLOPs and
+    elements written, one slice for the peak (floats)."""
+
+    __slots__ = ()
+
+    def __new__(cls, flops: float, peak_bytes: float, written: float, num_slices: float):
+        return super().__new__(cls, (flops, peak_bytes, written, num_slices))
+
+    @property
+    def flops(self) -> float:
+        """Real FLOPs of all slices."""
+        return self[0]
+
+    @property
+    def peak_bytes(self) -> float:
+        """Bytes of live intermediates of one slice."""
+        return self[1]
+
+    @property
+    def written(self) -> float:
+        """Elements written, all slices."""
+        return self[2]
+
+    @property
+    def num_slices(self) -> float:
+        """Number of slices."""
+        return self[3]
+
+
+def slice_profile(
+    profile: TreeProfile,
+    memory_limit: float,
+    *,
+    write_flops: float = 0.0,
+    candidates: int = 32,
+) -> SlicedFigures:
+    """Slice labels greedily (added to ``profile``) until one slice fits ``memory_limit`` bytes.
+
+    Each time, the labels of the largest intermediates (at least ``candidates``
+    of them) are costed at once, and the one adding the least cost (FLOPs plus
+    ``write_flops`` per element written, all slices) per unit of peak removed
+    (both in log) is sliced.  Labels sliced in ``profile`` before stay.
+
+    Returns
+    -------
+    SlicedFigures
+        The figures of the sliced tree (floats).
+
+    Raises
+    ------
+    ResourceLimitError
+        If the peak is over the limit with every non-output label sliced (the
+        message gives that peak: the smallest limit slicing this tree can meet).
+
+    Examples
+    --------
+    >>> prof = TreeProfile([(0, 1), (1, 2), (2, 0)], (), {0: 4, 1: 4, 2: 4}, [(0, 1), (2, 3)])
+    >>> fig = slice_profile(prof, 16 * 24)
+    >>> prof.sliced, fig.num_slices, fig.peak_bytes <= 16 * 24
+    ([0], 4.0, True)
+    """
+    flops, peak, written, _ = profile.cost()
+    num = float(math.prod(profile.size[i] for i in profile.sliced))
+    while peak > memory_limit:
+        cands = profile.labels_of_largest(candidates)
+        if not cands:
+            raise ResourceLimitError(
+                f"the intermediates need {peak:.0f} bytes even with every non-output label "
+                f"sliced ({len(profile.sliced)} labels); the memory limit is "
+                f"{memory_limit:.0f} bytes: give at least {peak:.0f} bytes"
+            )
+        f, p, w, _ = profile.cost_with(cands)
+        dims = np.array([profile.size[i] for i in cands], dtype=float)
+        base = max((flops + write_flops * written) * num, 1.0)
+        total = (f + write_flops * w) * num * dims
+        gain = np.log(peak / np.maximum(p, 1.0))
+        growth = np.maximum(np.log(np.maximum(total, 1.0) / base), 1e-9)
+        ratio = np.where(gain > 1e-12, growth / np.where(gain > 1e-12, gain, 1.0), np.inf)
+        j = int(np.argmin(ratio))
+        if not np.isfinite(ratio[j]):
+            # No single label lowers the peak (equal peaks elsewhere): slice the label of
+            # the largest intermediate that adds the least cost, and go on.
+            first = [cands.index(i) for i in profile.labels_of_largest(1)] or range(len(cands))
+            j = min(first, key=lambda k: growth[k])
+        profile.add(cands[j])
+        num *= float(dims[j])
+        flops, peak, written = float(f[j]), float(p[j]), float(w[j])
+    return SlicedFigures(flops * num, peak, written * num, num)
 
 
 def _candidates(inputs, output, size, path, sliced: set[int], top: int) -> list[int]:
@@ -51,7 +149,7 @@ def choose_slices(
     memory_limit: int,
     *,
     itemsize: int = 16,
-    candidates: int = 24,
+    candidates: int = 32,
 ) -> tuple[tuple[int, ...], TreeCost, int]:
     """Choose labels to slice so one slice's intermediates fit ``memory_limit`` bytes.
 
@@ -77,9 +175,11 @@ def choose_slices(
     >>> len(sliced), cost.peak_bytes <= 16 * 24, k
     (1, True, 4)
     """
-    sliced: list[int] = []
-    cost = tree_cost(inputs, output, size, path, itemsize=itemsize)
-    while cost.peak_bytes > memory_limit:
+    profile = TreeProfile(inputs, output, size, path, itemsize=itemsize)
+    slice_profile(profile, memory_limit, candidates=candidates)
+    sliced = list(profile.sliced)
+    cost = tree_cost(inputs, output, size, path, sliced=sliced, itemsize=itemsize)
+    while cost.peak_bytes > memory_limit:  # rounding in the float figures: finish exactly
         i, cost = _next_label(
             inputs, output, size, path, sliced, cost, itemsize, candidates, memory_limit
         )
