@@ -14,19 +14,22 @@ from __future__ import annotations
 
 import heapq
 import math
-import time
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 import opt_einsum.paths as oe_paths
 
+from tnsim.errors import ResourceLimitError
 from tnsim.fitted import WRITE_FLOPS
 from tnsim.plan.builder import plan_coarse
+from tnsim.plan.clock import Deadline, TimeLog, now
 from tnsim.plan.elimination import elimination_path
 from tnsim.plan.partition import bisection_path, sweep_path
 from tnsim.plan.reoptimize import reoptimize_path
-from tnsim.plan.tree import TreeCost, join_pairwise, tree_cost
+from tnsim.plan.slicecost import TreeProfile
+from tnsim.plan.slicing import slice_profile
+from tnsim.plan.tree import TreeCost, join_pairwise, memory_order, tree_cost, without_labels
 
 __all__ = [
     "OBJECTIVES",
@@ -57,7 +60,10 @@ class SearchResult:
         Wall time spent.
     alternatives : tuple of (path, str)
         The best tree of each other planner that had a trial, best first (a
-        tree of a different shape may slice better than the winner).
+        tree of a different shape may slice better than the winner); under a
+        memory limit, the best tree before slicing first.
+    sliced : tuple of int
+        Labels to slice (under a memory limit); ``cost`` is then one slice's.
     """
 
     path: tuple[tuple[int, int], ...]
@@ -66,6 +72,7 @@ class SearchResult:
     trials: int
     seconds: float
     alternatives: tuple[tuple[tuple[tuple[int, int], ...], str], ...] = ()
+    sliced: tuple[int, ...] = ()
 
 
 def score(cost: TreeCost, objective: str = "operations", memory_limit: int | None = None) -> float:
@@ -164,11 +171,11 @@ def _pairs(ssa, n: int) -> tuple[tuple[int, int], ...]:
     return tuple(out)
 
 
-def _trial(method: str, inputs, output, size, rng: np.random.Generator):
+def _planner(method: str, inputs, output, size, rng: np.random.Generator):
     if method != "greedy" and len(inputs) > 30 and rng.random() < 0.25:
         max_size = int(2 ** rng.integers(6, 13))
         return plan_coarse(
-            inputs, output, size, max_size, lambda i, o, s: _trial(method, i, o, s, rng)
+            inputs, output, size, max_size, lambda i, o, s: _planner(method, i, o, s, rng)
         )
     if method == "greedy":
         return random_greedy_path(inputs, output, size, temperature=0.0, seed=rng)
@@ -211,6 +218,28 @@ def _trial(method: str, inputs, output, size, rng: np.random.Generator):
 METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep")
 
 
+def _trial(method: str, inputs, output, size, rng: np.random.Generator):
+    """One planner run on a randomly re-presented network (tensor order and label names).
+
+    Planners break ties by position and label number; drawing a new order and new
+    names for every trial keeps the search from depending on how the network was
+    written.  (Sweeps keep the given presentation: their spectral embedding is
+    computed once per network and reused, and their keys seldom tie.)
+    """
+    n = len(inputs)
+    if method == "sweep" or n < 3:
+        return _planner(method, inputs, output, size, rng)
+    order = rng.permutation(n)
+    labels = sorted({i for ix in inputs for i in ix} | set(output))
+    names = dict(zip(labels, rng.permutation(len(labels)).tolist()))
+    ins = [tuple(names[i] for i in inputs[t]) for t in order.tolist()]
+    sub = _planner(
+        method, ins, tuple(names[i] for i in output), {names[i]: size[i] for i in labels}, rng
+    )
+    back = order.tolist() + list(range(n, 2 * n))
+    return tuple((back[x], back[y]) for x, y in sub)
+
+
 def search_path(
     inputs: Sequence[Sequence[int]],
     output: Sequence[int],
@@ -226,6 +255,8 @@ def search_path(
     reoptimize: bool = True,
     progress: bool = False,
     stop_rate: float | None = None,
+    deadline: Deadline | None = None,
+    log: TimeLog | None = None,
 ) -> SearchResult:
     """Search for a good contraction tree with seeded random trials.
 
@@ -240,17 +271,24 @@ def search_path(
     max_trials : int, optional
         Stop after this many trials.
     seed : int
-        Seeds the single numpy generator behind every random choice.
+        Seeds the numpy generators behind every random choice.
     objective : {"operations", "runtime", "footprint"}
         See :func:`score`.
     memory_limit : int, optional
-        Bytes; trees whose peak exceeds it are charged their slicing overhead.
+        Bytes one slice's intermediates may use.  Every tree over it is sliced
+        to fit (:func:`~tnsim.plan.slicing.slice_profile`) and scored by its
+        sliced cost, all slices together; between trials, trees are also
+        planned on the network with the best slicing's labels removed, and the
+        finalists are re-planned locally with those labels sliced.  The best
+        tree *before* slicing is kept too (as the first alternative), re-planned
+        as without a limit: so with the same seed and trial budget the result is
+        never costlier than that tree sliced afterwards.
     itemsize : int
         Bytes per element.
     methods : sequence of str
         Planners to draw from (subset of ``METHODS``).
     reoptimize : bool
-        Re-plan sub-trees of the best tree exactly afterwards.
+        Re-plan sub-trees of the best trees exactly afterwards.
     progress : bool
         Show a tqdm progress bar of the trials.
     stop_rate : float, optional
@@ -258,6 +296,10 @@ def search_path(
         time spent exceeds what the best tree so far would take to contract at
         this rate (searching longer than the contraction itself cannot pay off);
         the sub-tree re-planning then gets about as long again.
+    deadline : Deadline, optional
+        A deadline of the caller's that the search never passes (besides ``time_budget``).
+    log : TimeLog, optional
+        Gets the seconds spent on trials (``"search"``) and re-planning (``"re-planning"``).
 
     Returns
     -------
@@ -271,13 +313,19 @@ def search_path(
     """
     if objective not in OBJECTIVES:
         raise ValueError(f"unknown objective {objective!r}; use one of {OBJECTIVES}")
-    start = time.perf_counter()
+    start = now()
+    log = TimeLog() if log is None else log
+    outer = Deadline(None) if deadline is None else deadline
+    total = Deadline(time_budget, start=start)
+    if outer.end < total.end:
+        total = outer
     rng = np.random.default_rng(seed)
-    if time_budget is None and max_trials is None:
+    if not total.timed and max_trials is None:
         max_trials = 16
-    trial_time = math.inf if time_budget is None else (0.7 if reoptimize else 1.0) * time_budget
-    best: tuple[float, tuple, TreeCost, str] | None = None
-    per_method: dict[str, tuple[float, tuple, TreeCost, str]] = {}
+    state = _State(inputs, output, size, objective, memory_limit, itemsize)
+    trial_end = Deadline(None)
+    if total.timed:
+        trial_end.end = start + (0.7 if reoptimize else 1.0) * (total.end - start)
     trials = 0
     bar = None
     if progress:
@@ -285,72 +333,197 @@ def search_path(
 
         bar = tqdm(total=max_trials, desc="planning", unit="trial", leave=False)
     methods = list(methods)
+    # Trials on the network with the best slicing's labels removed draw from their own
+    # generator: the main sequence of trials stays the one a search without a limit runs.
+    around = np.random.default_rng([seed, 1])
+    longest = 0.0
     try:
-        while True:
-            if trials >= len(methods):
-                # Half the trials go to the planner of the best tree so far, half to any.
-                pool = [m for m in methods if m != "greedy"] or methods
-                if best[3] in pool and rng.random() < 0.5:
-                    method = best[3]
+        with log.stage("search"):
+            while True:
+                if trials >= len(methods):
+                    # Half the trials go to the planner of the best tree so far, half to any.
+                    pool = [m for m in methods if m != "greedy"] or methods
+                    lead = state.lead_method()
+                    draw = lead in pool and rng.random() < 0.5
+                    method = lead if draw else str(rng.choice(pool))
                 else:
-                    method = str(rng.choice(pool))
-            else:
-                method = methods[trials]
-            path = _trial(method, inputs, output, size, rng)
-            cost = tree_cost(inputs, output, size, path, itemsize=itemsize)
-            key = score(cost, objective, memory_limit)
-            if best is None or key < best[0]:
-                best = (key, path, cost, method)
-            if method not in per_method or key < per_method[method][0]:
-                per_method[method] = (key, path, cost, method)
-            trials += 1
-            if bar is not None:
-                bar.update(1)
-                bar.set_postfix(log10_flops=f"{math.log10(max(best[2].flops, 1)):.2f}")
-            if max_trials is not None and trials >= max_trials:
-                break
-            elapsed = time.perf_counter() - start
-            if elapsed > trial_time:
-                break
-            if stop_rate and trials >= len(methods) and elapsed > best[2].flops / stop_rate:
-                break
+                    method = methods[trials]
+                began = now()
+                state.consider(_trial(method, inputs, output, size, rng), method)
+                trials += 1
+                if state.limit is not None and trials % 3 == 0 and state.sliced_best():
+                    state.plan_around(around, [m for m in methods if m != "greedy"] or methods)
+                longest = max(longest, now() - began)
+                if bar is not None:
+                    bar.update(1)
+                    bar.set_postfix(log10_flops=f"{math.log10(max(state.best_flops(), 1)):.2f}")
+                if max_trials is not None and trials >= max_trials:
+                    break
+                elapsed = now() - start
+                # Stop before a trial as long as the longest so far would end past the deadline.
+                if trial_end.timed and now() + longest > trial_end.end:
+                    break
+                if (
+                    stop_rate
+                    and trials >= len(methods)
+                    and elapsed > state.best_flops() / stop_rate
+                ):
+                    break
     finally:
         if bar is not None:
             bar.close()
-    _, path, cost, method = best
-    if stop_rate and time_budget is not None:
-        spent = time.perf_counter() - start
-        time_budget = min(time_budget, 2 * max(spent, cost.flops / stop_rate))
-    if reoptimize and len(path) > 2:
-        # Re-plan the best tree of each of the (up to) three best planners: sub-tree
-        # re-planning helps some planners' trees (sweeps) far more than others.
-        finalists = sorted(per_method.values(), key=lambda r: r[0])[:3]
-        for k, (_, cand, _, name) in enumerate(finalists):
+    if stop_rate and total.timed:
+        spent = now() - start
+        cap = start + 2 * max(spent, state.best_flops() / stop_rate)
+        total.end = min(total.end, cap)
+    if reoptimize:
+        with log.stage("re-planning"):
+            state.reoptimize(total, total.end - start)
+    return state.result(trials, now() - start)
+
+
+class _State:
+    """The search's best trees: per planner, overall, before and after slicing."""
+
+    def __init__(self, inputs, output, size, objective, limit, itemsize):
+        self.inputs, self.output, self.size = inputs, output, size
+        self.objective, self.limit, self.itemsize = objective, limit, itemsize
+        self.write = WRITE_FLOPS if objective == "runtime" else 0.0
+        # Rows: (key, path, method, sliced labels); per planner by unsliced key, and by sliced key.
+        self.plain: dict[str, tuple] = {}
+        self.cut: dict[str, tuple] = {}
+
+    # -- scoring ---------------------------------------------------------------------------------
+
+    def _key(self, flops: float, written: float, largest: float) -> float:
+        if self.objective == "footprint":
+            return largest * 1e30 + flops
+        return flops + self.write * written
+
+    def _sliced(self, path, preset=()):
+        """Slice a (memory-ordered) tree to the limit; ``(key, path, sliced)`` or ``None``."""
+        prof = TreeProfile(self.inputs, self.output, self.size, path, itemsize=self.itemsize)
+        for i in preset:
+            prof.add(i)
+        try:
+            fig = slice_profile(prof, self.limit, write_flops=self.write)
+        except ResourceLimitError:
+            return None
+        largest = prof.cost()[3]
+        return self._key(fig.flops, fig.written, largest), path, tuple(prof.sliced)
+
+    def consider(self, path, method: str, preset=()) -> None:
+        """Score a trial's tree; keep it where it is a planner's best."""
+        path = tuple(tuple(p) for p in path)
+        if not preset:
+            cost = tree_cost(self.inputs, self.output, self.size, path, itemsize=self.itemsize)
+            key = self._key(cost.flops, cost.written, cost.largest)
+            row = (key, path, method, ())
+            if method not in self.plain or key < self.plain[method][0]:
+                self.plain[method] = row
+            if self.limit is None:
+                return
+            best = self.sliced_best()
+            if cost.peak_bytes <= self.limit:
+                self._keep(row)
+                return
+            if best is not None and key >= best[0]:
+                return  # slicing never makes a tree cheaper: it cannot win
+        ordered = memory_order(self.inputs, self.output, self.size, path)
+        got = self._sliced(ordered, preset)
+        if got is not None:
+            self._keep((got[0], got[1], method, got[2]))
+
+    def _keep(self, row) -> None:
+        method = row[2]
+        if method not in self.cut or row[0] < self.cut[method][0]:
+            self.cut[method] = row
+
+    def sliced_best(self):
+        """The best row after slicing (``None`` before the first, or without a limit)."""
+        return min(self.cut.values(), key=lambda r: r[0]) if self.cut else None
+
+    def lead_method(self) -> str:
+        """Planner of the best tree before slicing (it steers which planner runs next)."""
+        return min(self.plain.values(), key=lambda r: r[0])[2]
+
+    def best_flops(self) -> float:
+        """The objective value of the best tree so far (after slicing under a limit)."""
+        rows = self.cut if self.limit is not None and self.cut else self.plain
+        return min(r[0] for r in rows.values())
+
+    # -- trees planned around the slices --------------------------------------------------------
+
+    def plan_around(self, rng: np.random.Generator, pool) -> None:
+        """Plan a tree on the network without (a prefix of) the best slicing's labels."""
+        best = self.sliced_best()
+        labels = best[3]
+        if not labels:
+            return
+        keep = labels[: int(rng.integers(max(1, len(labels) // 2), len(labels) + 1))]
+        ins, out = without_labels(self.inputs, self.output, keep)
+        method = str(rng.choice(pool))
+        path = _trial(method, ins, out, self.size, rng)
+        self.consider(path, f"{method}", preset=keep)
+
+    # -- local re-planning ----------------------------------------------------------------------
+
+    def reoptimize(self, total: Deadline, span: float) -> None:
+        """Re-plan sub-trees of the finalists exactly, within ``total`` (``span`` s in all)."""
+        finalists = sorted(self.plain.values(), key=lambda r: r[0])[:3]
+        cut = sorted(self.cut.values(), key=lambda r: r[0])[:3] if self.limit is not None else []
+        jobs = [("plain", r) for r in finalists] + [("cut", r) for r in cut]
+        for k, (kind, row) in enumerate(jobs):
+            if len(row[1]) <= 2:
+                continue
             left = None
-            if time_budget is not None:
-                spent = time.perf_counter() - start
-                left = max(0.05 * time_budget, (time_budget - spent) / (len(finalists) - k))
-            new = reoptimize_path(inputs, output, size, cand, time_budget=left)
-            new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
-            new_key = score(new_cost, objective, memory_limit)
-            if new_key < per_method[name][0]:
-                per_method[name] = (new_key, new, new_cost, name)
-            if new_key < score(cost, objective, memory_limit):
-                path, cost, method = new, new_cost, name
+            if total.timed:
+                left = max(0.05 * (total.end - now()), total.left() / (len(jobs) - k))
+                if total.passed():
+                    break
+            if kind == "plain":
+                new = reoptimize_path(self.inputs, self.output, self.size, row[1], time_budget=left)
+                self.consider(new, row[2])
+            else:
+                ins, out = without_labels(self.inputs, self.output, row[3])
+                cap = max(self.limit // self.itemsize // 3, 1)
+                new = reoptimize_path(
+                    ins, out, self.size, row[1], passes=3, time_budget=left, max_numel=cap
+                )
+                self.consider(memory_order(ins, out, self.size, new), row[2], preset=row[3])
+        if self.limit is not None or not total.timed:
+            return
         # Time left over: re-plan larger sub-trees of the winner (10 leaves, then 12).
         for leaves in (10, 12):
-            left = None if time_budget is None else time_budget - (time.perf_counter() - start)
-            if left is None or left <= 0.1 * time_budget or len(path) <= leaves:
+            _, path, method, _ = min(self.plain.values(), key=lambda r: r[0])
+            if total.left() <= 0.1 * span or len(path) <= leaves:
                 break
             new = reoptimize_path(
-                inputs, output, size, path, max_leaves=leaves, passes=4, time_budget=left
+                self.inputs,
+                self.output,
+                self.size,
+                path,
+                max_leaves=leaves,
+                passes=4,
+                time_budget=total.left(),
             )
-            new_cost = tree_cost(inputs, output, size, new, itemsize=itemsize)
-            if score(new_cost, objective, memory_limit) < score(cost, objective, memory_limit):
-                path, cost = new, new_cost
-    others = tuple(
-        (tuple(p), name)
-        for _, p, _, name in sorted(per_method.values(), key=lambda r: r[0])
-        if name != method
-    )
-    return SearchResult(tuple(path), cost, method, trials, time.perf_counter() - start, others)
+            self.consider(new, method)
+
+    # -- result ------------------------------------------------------------------------------------
+
+    def result(self, trials: int, seconds: float) -> SearchResult:
+        """The search's outcome."""
+        plain = sorted(self.plain.values(), key=lambda r: r[0])
+        if self.limit is None or not self.cut:
+            _, path, method, _ = plain[0]
+            others = tuple((p, name) for _, p, name, _ in plain[1:])
+            sliced: tuple[int, ...] = ()
+        else:
+            _, path, method, sliced = self.sliced_best()
+            cut = sorted(self.cut.values(), key=lambda r: r[0])
+            # The best tree before slicing first, then the other planners' sliced bests.
+            others = tuple([(plain[0][1], plain[0][2])] + [(p, n) for _, p, n, _ in cut[1:]])
+        cost = tree_cost(
+            self.inputs, self.output, self.size, path, sliced=sliced, itemsize=self.itemsize
+        )
+        return SearchResult(path, cost, method, trials, seconds, others, sliced)
