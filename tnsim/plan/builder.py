@@ -7,12 +7,13 @@ which labels each live node still carries.
 
 from __future__ import annotations
 
+import heapq
 import math
 from collections.abc import Iterable, Mapping, Sequence
 
 import opt_einsum.paths as oe_paths
 
-__all__ = ["PathBuilder", "coarsen", "plan_coarse"]
+__all__ = ["Absorbed", "PathBuilder", "absorb", "coarsen", "plan_coarse"]
 
 
 class PathBuilder:
@@ -181,3 +182,67 @@ def plan_coarse(
         for x, y in sub:
             ids.append(b.join(ids[x], ids[y]))
     return b.finish_greedy()
+
+
+class Absorbed:
+    """A network with some tensors joined first, and the way back to the original leaves.
+
+    Made by :func:`absorb`.  :meth:`network` is the smaller network (one leaf per
+    live node); :meth:`extend` turns a path over it into a path over the original
+    leaves that starts with the joins already made.
+    """
+
+    def __init__(self, builder: PathBuilder):
+        self.builder = builder
+        self.nodes = sorted(builder.alive)
+
+    def network(self) -> tuple[list[tuple[int, ...]], tuple[int, ...], Mapping[int, int]]:
+        """``(inputs, output, size)`` of the smaller network."""
+        b = self.builder
+        return [tuple(sorted(b.labels[t])) for t in self.nodes], tuple(sorted(b.out)), b.size
+
+    def extend(self, path: Sequence[tuple[int, int]]) -> tuple[tuple[int, int], ...]:
+        """An SSA path over the smaller network as a path over the original leaves."""
+        b = self.builder
+        first = b.n + len(b.path)
+        ids = [*self.nodes, *range(first, first + len(path))]
+        return tuple(b.path) + tuple((ids[x], ids[y]) for x, y in path)
+
+
+def absorb(
+    inputs: Sequence[Iterable[int]], output: Iterable[int], size: Mapping[int, int]
+) -> Absorbed:
+    """Join every tensor into a neighbour while the result is no larger than the neighbour.
+
+    Vectors and matrices on a wire (initial states, single-qubit gates, a
+    diagonal gate written as a matrix on its wires) disappear into their
+    neighbours this way, whatever order the tensors come in: planners then see
+    the same network however a circuit was written down.  Smallest tensors are
+    joined first; of their neighbours, the one giving the smallest result
+    (lowest id on a tie).
+
+    Examples
+    --------
+    >>> a = absorb([(0,), (0, 1), (1, 2), (2, 3)], (3,), {i: 2 for i in range(4)})
+    >>> a.network()[0], a.extend([])
+    ([(3,)], ((1, 0), (2, 4), (3, 5)))
+    """
+    b = PathBuilder(inputs, output, size)
+    heap = [(b.numel(b.labels[t]), t) for t in range(b.n)]
+    heapq.heapify(heap)
+    while heap:
+        _, t = heapq.heappop(heap)
+        if t not in b.alive:
+            continue
+        best = None
+        for i in b.labels[t]:
+            for u in b.holders[i]:
+                if u == t:
+                    continue
+                merged = b.numel(b.merged(t, u))
+                if merged <= b.numel(b.labels[u]) and (best is None or (merged, u) < best):
+                    best = (merged, u)
+        if best is not None:
+            new = b.join(best[1], t)
+            heapq.heappush(heap, (best[0], new))
+    return Absorbed(b)

@@ -8,8 +8,8 @@ sliced (:mod:`tnsim.plan.slicing`) and the cheapest sliced plan is kept.
 
 from __future__ import annotations
 
+import dataclasses
 import math
-import time
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -17,9 +17,11 @@ import opt_einsum.paths as oe_paths
 
 from tnsim.errors import ResourceLimitError
 from tnsim.network.graph import TensorGraph
+from tnsim.plan.builder import absorb
+from tnsim.plan.clock import Deadline, TimeLog, now
 from tnsim.plan.greedy import greedy_tree
 from tnsim.plan.reoptimize import reoptimize_path
-from tnsim.plan.search import score, search_path
+from tnsim.plan.search import WRITE_FLOPS, SearchResult, score, search_path
 from tnsim.plan.slicing import choose_slices, slice_with_replanning
 from tnsim.plan.tree import PairTree, linear_to_ssa, memory_order, tree_cost, without_labels
 from tnsim.units import parse_memory
@@ -69,6 +71,11 @@ class Plan:
         Planner that produced the tree.
     seconds : float
         Planning time.
+    timings : tuple of (str, float)
+        Seconds spent per planning stage: ``"search"`` (planner trials, each
+        tree sliced and scored under a limit), ``"re-planning"`` (exact
+        re-planning of sub-trees), ``"slicing"`` (the final choice of labels,
+        with re-planning around them).
     """
 
     tree: PairTree
@@ -83,6 +90,7 @@ class Plan:
     itemsize: int = 16
     method: str = ""
     seconds: float = 0.0
+    timings: tuple[tuple[str, float], ...] = ()
 
     @property
     def largest_bytes(self) -> int:
@@ -165,32 +173,69 @@ def plan_candidates(
     :data:`SEARCH_THRESHOLD_FLOPS` (unless a ``time_budget`` is given), and the
     search driver runs for ``time_budget`` seconds (default: grows with the
     greedy cost, 0.3 to 30 s) and keeps the best tree by ``objective`` (see
-    :func:`tnsim.plan.search.score`).  The alternatives are the best trees of
-    the search's other planners: a tree of another shape may slice better.
+    :func:`tnsim.plan.search.score`).  Tensors that add no size to a neighbour
+    are joined to it first (:func:`tnsim.plan.builder.absorb`).  The
+    alternatives are the best trees of the search's other planners: a tree of
+    another shape may slice better.  With ``memory_limit``, trees are scored by
+    their cost once sliced to it (the labels are not returned here; see
+    :func:`make_plan`).
 
     Examples
     --------
     >>> plan_candidates([(0, 1), (1, 2), (2,)], (0,), {0: 2, 1: 2, 2: 2})
     [(((1, 2), (0, 3)), 'exact')]
     """
+    found = _candidates(
+        inputs,
+        output,
+        size,
+        time_budget=time_budget,
+        seed=seed,
+        memory_limit=memory_limit,
+        itemsize=itemsize,
+        max_trials=max_trials,
+        progress=progress,
+        objective=objective,
+    )
+    return [(path, name) for path, name, _ in found]
+
+
+def _candidates(
+    inputs,
+    output,
+    size,
+    *,
+    time_budget,
+    seed,
+    memory_limit,
+    itemsize,
+    max_trials,
+    progress,
+    objective,
+    deadline: Deadline | None = None,
+    log: TimeLog | None = None,
+) -> list[tuple[tuple[tuple[int, int], ...], str, tuple[int, ...]]]:
+    """:func:`plan_candidates` with each tree's sliced labels (empty without a limit)."""
     n = len(inputs)
     if n <= 1:
-        return [((), "trivial")]
+        return [((), "trivial", ())]
     if n <= EXACT_MAX_TENSORS and time_budget is None:
-        return [(_exact_path(inputs, output, size), "exact")]
+        return [(_exact_path(inputs, output, size), "exact", ())]
     greedy = greedy_tree(inputs, output, size).path
     cost = tree_cost(inputs, output, size, greedy, itemsize=itemsize)
     fits = memory_limit is None or cost.peak_bytes <= memory_limit
     if time_budget is None and max_trials is None and cost.flops < SEARCH_THRESHOLD_FLOPS and fits:
-        return [(greedy, "greedy")]
+        return [(greedy, "greedy", ())]
     untimed = _untimed(time_budget, max_trials)
     budget = _default_budget(cost.flops) if time_budget is None else time_budget
     if untimed:
         budget = None
+    merged = absorb(inputs, output, size)
+    if len(merged.nodes) < 3:
+        ins, out, _ = merged.network()
+        return [(merged.extend(greedy_tree(ins, out, size).path), "greedy", ())]
     result = search_path(
-        inputs,
-        output,
-        size,
+        *merged.network(),
         time_budget=budget,
         max_trials=max_trials,
         seed=seed,
@@ -199,8 +244,18 @@ def plan_candidates(
         progress=progress,
         stop_rate=STOP_RATE if time_budget is None and not untimed else None,
         objective=objective,
+        deadline=deadline,
+        log=log,
     )
-    return [(result.path, result.method), *result.alternatives]
+    return _extend(merged, result)
+
+
+def _extend(merged, result: SearchResult):
+    """The search's trees over the absorbed network, extended to the original leaves."""
+    rows = [(merged.extend(result.path), result.method, result.sliced)]
+    cuts = result.alternative_sliced or ((),) * len(result.alternatives)
+    rows += [(merged.extend(p), name, c) for (p, name), c in zip(result.alternatives, cuts)]
+    return rows
 
 
 def make_plan(
@@ -256,7 +311,7 @@ def make_plan(
     >>> p.tree.path, p.flops, p.num_slices
     (((1, 2), (0, 3)), 96, 1)
     """
-    start = time.perf_counter()
+    start = now()
     limit = None if memory_limit is None else parse_memory(memory_limit)
     itemsize = int(network.dtype.itemsize)
     inputs = tuple(tuple(ix) for ix in network.indices)
@@ -274,37 +329,57 @@ def make_plan(
     )
     if key in _PLAN_CACHE:
         return _PLAN_CACHE[key]
-    # Plan for FLOPs; the memory limit is met by slicing (and re-planning) below.
-    candidates = plan_candidates(
+    log = TimeLog()
+    # The whole of planning ends within the budget: the search gets most of it, the
+    # final slicing and re-planning the rest (a share kept back for the exact costs).
+    whole = Deadline(time_budget, start=start)
+    search_end = whole.part(SEARCH_SHARE if limit is not None else 1.0 - FINISH_RESERVE)
+    candidates = _candidates(
         inputs,
         network.output,
         size,
         time_budget=time_budget,
         seed=seed,
+        memory_limit=limit,
         itemsize=itemsize,
         max_trials=max_trials,
         progress=progress,
         objective=objective,
+        deadline=search_end,
+        log=log,
     )
-    trees = [PairTree(inputs, tuple(network.output), size, tuple(p)) for p, _ in candidates]
     search = {
         "time_budget": time_budget,
         "seed": seed,
         "max_trials": max_trials,
         "objective": objective,
     }
-    plan = _finish(trees, [name for _, name in candidates], limit, itemsize, start, search)
+    finish_end = Deadline(None)
+    if whole.timed:
+        finish_end.end = whole.end - FINISH_RESERVE * (whole.end - start)
+    elif not _untimed(time_budget, max_trials):
+        # Default budget: the final slicing gets half as long as the search took (1 s at least).
+        finish_end = Deadline(max(1.0, 0.5 * (now() - start)))
+    with log.stage("slicing"):
+        plan = _finish(network, candidates, limit, itemsize, start, search, finish_end)
+    plan = dataclasses.replace(plan, seconds=now() - start, timings=log.items())
     if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
         _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))
     _PLAN_CACHE[key] = plan
     return plan
 
 
-SLICING_SHARE = 0.25
+SEARCH_SHARE = 0.8
 
 
-"""Under a time budget, candidate trees after the first are re-sliced with re-planning
-only while the slicing has taken less than this share of the budget."""
+"""Under a time budget and a memory limit, the search (trials, each tree sliced and scored,
+and its re-planning) ends by this share of the budget; the final slicing uses the rest."""
+
+
+FINISH_RESERVE = 0.03
+
+
+"""Share of a time budget kept back for the exact costs of the chosen plan."""
 
 
 PLAN_CACHE_SIZE = 64
@@ -316,36 +391,35 @@ PLAN_CACHE_SIZE = 64
 _PLAN_CACHE: dict[tuple, Plan] = {}
 
 
-def _finish(
-    trees: list[PairTree],
-    methods: list[str],
-    limit: int | None,
-    itemsize: int,
-    start: float,
-    search: dict,
-) -> Plan:
-    """Slice the best tree (or an alternative that slices cheaper) to fit ``limit``; fill in costs.
+def _finish(network, candidates, limit, itemsize, start, search, deadline: Deadline) -> Plan:
+    """Fit the best candidate (or another that slices cheaper) to ``limit``; fill in its costs.
 
-    ``methods`` names each tree's planner; the overhead is counted against the
-    best unsliced tree, ``trees[0]``; ``search`` holds the search's options
-    (``time_budget``, ``seed``, ``max_trials``, ``objective``) for re-planning.
+    ``candidates`` are ``(path, planner, sliced labels)`` rows, the search's best
+    first; the overhead is counted against the best tree before slicing (the
+    first unsliced candidate).  ``search`` holds the search's options.
     """
     objective = search["objective"]
-    tree, method = trees[0], methods[0]
-    full = tree.cost(itemsize=itemsize)
-    sliced: tuple[int, ...] = ()
-    cost, num = full, 1
-    if limit is not None and full.peak_bytes > limit:
-        untimed = _untimed(search["time_budget"], search["max_trials"])
-        ordered = [PairTree(*_args(t), memory_order(*_args(t), t.path)) for t in trees]
-        full = ordered[0].cost(itemsize=itemsize)
-        budget = None if untimed else search["time_budget"] or _default_budget(full.flops)
-        best = _slice_candidates(ordered, methods, limit, itemsize, objective, budget)
+    write = WRITE_FLOPS if objective == "runtime" else 0.0
+    args = (tuple(tuple(ix) for ix in network.indices), tuple(network.output), dict(network.size))
+    trees = [(PairTree(*args, tuple(p)), name, tuple(cut)) for p, name, cut in candidates]
+    plain = next((t for t, _, cut in trees if not cut), trees[0][0])
+    full = plain.cost(itemsize=itemsize)
+    tree, method, sliced = trees[0]
+    cost, num = tree.cost(sliced=sliced, itemsize=itemsize), math.prod(tree.size[i] for i in sliced)
+    if limit is not None and (sliced or cost.peak_bytes > limit):
+        best = _slice_candidates(trees, limit, itemsize, objective, write, deadline)
         _, tree, method, (sliced, cost, num) = best
-        if num > 1:
-            seconds = None if untimed else 2.0
-            tree, cost = _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds)
-            tree, cost = _replan_sliced(tree, sliced, cost, limit, itemsize, **search)
+        if num > 1 and not deadline.passed():
+            seconds = deadline.seconds()
+            tree, cost = _reoptimize_sliced(
+                tree,
+                sliced,
+                cost,
+                limit,
+                itemsize,
+                objective,
+                None if seconds is None else min(2.0, seconds),
+            )
     out_numel = math.prod(tree.size[i] for i in tree.output)
     flops = cost.flops * num + 2 * out_numel * (num - 1)
     return Plan(
@@ -360,39 +434,49 @@ def _finish(
         unsliced_peak_bytes=full.peak_bytes,
         itemsize=itemsize,
         method=method,
-        seconds=time.perf_counter() - start,
+        seconds=now() - start,
     )
 
 
-def _slice_candidates(trees, methods, limit, itemsize, objective, budget):
-    """The cheapest way found to slice one of ``trees`` (memory-ordered) to fit ``limit``.
+def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadline):
+    """The cheapest way found to slice one of ``trees`` to fit ``limit``.
 
-    Every tree is first sliced as it is (:func:`choose_slices`); then, from
-    the cheapest of those on, trees are sliced again with re-planning along the
-    way (:func:`slice_with_replanning`; neither way wins everywhere) -- all of them
-    without a time ``budget``, else while the slicing has taken less than
-    :data:`SLICING_SHARE` of it (at least one).  Returns ``(score, tree,
-    method, (sliced, cost, num_slices))``.
+    Each candidate keeps the labels the search chose for it and gets more where
+    its exact peak is still over the limit (:func:`choose_slices`; a tree
+    without labels is put in memory order first); then, cheapest first and
+    while ``deadline`` allows (at least one), candidates are sliced again one
+    label at a time with their sub-trees re-planned after each label
+    (:func:`slice_with_replanning`; neither way wins everywhere).  Returns
+    ``(score, tree, method, (sliced, cost, num_slices))``.
     """
-    began = time.perf_counter()
     fixed, error = [], None
-    for cand, name in zip(trees, methods):
+    for cand, name, cut in trees:
+        path = cand.path if cut else memory_order(*_args(cand), cand.path)
         try:
-            sliced, cost, num = choose_slices(*_args(cand), cand.path, limit, itemsize=itemsize)
+            sliced, cost, num = choose_slices(
+                *_args(cand), path, limit, itemsize=itemsize, write_flops=write, preset=cut
+            )
         except ResourceLimitError as exc:
             error = error or exc
             continue
-        fixed.append((score(cost, objective) * num, cand, name, (sliced, cost, num)))
+        tree = PairTree(*_args(cand), path)
+        fixed.append((score(cost, objective) * num, tree, name, (sliced, cost, num)))
     if not fixed:
         raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
     fixed.sort(key=lambda row: row[0])
     best = fixed[0]
     for rank, (_, cand, name, _) in enumerate(fixed):
-        if rank and budget is not None and time.perf_counter() - began > SLICING_SHARE * budget:
+        if rank and deadline.passed():
             break
-        seconds = None if budget is None else 1.0
+        left = deadline.seconds()
+        seconds = None if left is None else max(0.05, min(1.0, left / 8))
         sliced, path, cost, num = slice_with_replanning(
-            *_args(cand), cand.path, limit, itemsize=itemsize, time_budget=seconds
+            *_args(cand),
+            cand.path,
+            limit,
+            itemsize=itemsize,
+            time_budget=seconds,
+            write_flops=write,
         )
         total = score(cost, objective) * num
         if total < best[0]:
@@ -414,32 +498,4 @@ def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds):
     new_cost = tree_cost(ins, out, tree.size, new, itemsize=itemsize)
     if score(new_cost, objective) < score(cost, objective) and new_cost.peak_bytes <= limit:
         return PairTree(tree.inputs, tree.output, tree.size, new), new_cost
-    return tree, cost
-
-
-def _replan_sliced(
-    tree, sliced, cost, limit, itemsize, *, time_budget, seed, max_trials, objective
-):
-    """Search again on the network with the sliced labels removed; keep a cheaper tree that fits."""
-    if len(tree.path) < 3:
-        return tree, cost
-    ins, out = without_labels(tree.inputs, tree.output, sliced)
-    budget = 0.5 * time_budget if time_budget is not None else _default_budget(cost.flops)
-    if _untimed(time_budget, max_trials):
-        budget = None
-    result = search_path(
-        ins,
-        out,
-        tree.size,
-        time_budget=budget,
-        max_trials=max_trials,
-        seed=seed,
-        memory_limit=limit,
-        itemsize=itemsize,
-        objective=objective,
-    )
-    path = memory_order(ins, out, tree.size, result.path)
-    new_cost = tree_cost(ins, out, tree.size, path, itemsize=itemsize)
-    if score(new_cost, objective) < score(cost, objective) and new_cost.peak_bytes <= limit:
-        return PairTree(tree.inputs, tree.output, tree.size, path), new_cost
     return tree, cost

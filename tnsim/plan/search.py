@@ -64,6 +64,8 @@ class SearchResult:
         memory limit, the best tree before slicing first.
     sliced : tuple of int
         Labels to slice (under a memory limit); ``cost`` is then one slice's.
+    alternative_sliced : tuple of tuple of int
+        The labels the search sliced in each alternative (empty: none), where it did.
     """
 
     path: tuple[tuple[int, int], ...]
@@ -73,6 +75,7 @@ class SearchResult:
     seconds: float
     alternatives: tuple[tuple[tuple[tuple[int, int], ...], str], ...] = ()
     sliced: tuple[int, ...] = ()
+    alternative_sliced: tuple[tuple[int, ...], ...] = ()
 
 
 def score(cost: TreeCost, objective: str = "operations", memory_limit: int | None = None) -> float:
@@ -518,12 +521,19 @@ class _State:
             _, path, method, _ = plain[0]
             others = tuple((p, name) for _, p, name, _ in plain[1:])
             sliced: tuple[int, ...] = ()
+            cuts: tuple[tuple[int, ...], ...] = ()
         else:
             _, path, method, sliced = self.sliced_best()
             cut = sorted(self.cut.values(), key=lambda r: r[0])
-            # The best tree before slicing first, then the other planners' sliced bests.
-            others = tuple([(plain[0][1], plain[0][2])] + [(p, n) for _, p, n, _ in cut[1:]])
+            # The best tree before slicing first, the other planners' sliced bests, then
+            # their best trees before slicing.
+            others = tuple(
+                [(plain[0][1], plain[0][2])]
+                + [(p, n) for _, p, n, _ in cut[1:]]
+                + [(p, n) for _, p, n, _ in plain[1:]]
+            )
+            cuts = tuple([()] + [c for *_, c in cut[1:]] + [()] * (len(plain) - 1))
         cost = tree_cost(
             self.inputs, self.output, self.size, path, sliced=sliced, itemsize=self.itemsize
         )
-        return SearchResult(path, cost, method, trials, seconds, others, sliced)
+        return SearchResult(path, cost, method, trials, seconds, others, sliced, cuts)

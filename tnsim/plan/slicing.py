@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
+from typing import NamedTuple
 
 import numpy as np
 
@@ -33,34 +34,17 @@ from tnsim.plan.tree import TreeCost, memory_order, step_labels, tree_cost, with
 __all__ = ["SlicedFigures", "choose_slices", "slice_profile", "slice_with_replanning"]
 
 
-class SlicedFigures(tuple):
-    """``(flops, peak_bytes, written, num_slices)`` of a sliced tree, all slices for FLOPs and
-    elements written, one slice for the peak (floats)."""
+class SlicedFigures(NamedTuple):
+    """Figures of a sliced tree (floats)."""
 
-    __slots__ = ()
-
-    def __new__(cls, flops: float, peak_bytes: float, written: float, num_slices: float):
-        return super().__new__(cls, (flops, peak_bytes, written, num_slices))
-
-    @property
-    def flops(self) -> float:
-        """Real FLOPs of all slices."""
-        return self[0]
-
-    @property
-    def peak_bytes(self) -> float:
-        """Bytes of live intermediates of one slice."""
-        return self[1]
-
-    @property
-    def written(self) -> float:
-        """Elements written, all slices."""
-        return self[2]
-
-    @property
-    def num_slices(self) -> float:
-        """Number of slices."""
-        return self[3]
+    flops: float
+    """Real FLOPs of all slices."""
+    peak_bytes: float
+    """Bytes of live intermediates of one slice."""
+    written: float
+    """Elements written, all slices."""
+    num_slices: float
+    """Number of slices."""
 
 
 def slice_profile(
@@ -98,47 +82,35 @@ def slice_profile(
     flops, peak, written, _ = profile.cost()
     num = float(math.prod(profile.size[i] for i in profile.sliced))
     while peak > memory_limit:
-        cands = profile.labels_of_largest(candidates)
-        if not cands:
-            raise ResourceLimitError(
-                f"the intermediates need {peak:.0f} bytes even with every non-output label "
-                f"sliced ({len(profile.sliced)} labels); the memory limit is "
-                f"{memory_limit:.0f} bytes: give at least {peak:.0f} bytes"
-            )
-        f, p, w, _ = profile.cost_with(cands)
-        dims = np.array([profile.size[i] for i in cands], dtype=float)
-        base = max((flops + write_flops * written) * num, 1.0)
-        total = (f + write_flops * w) * num * dims
-        gain = np.log(peak / np.maximum(p, 1.0))
-        growth = np.maximum(np.log(np.maximum(total, 1.0) / base), 1e-9)
-        ratio = np.where(gain > 1e-12, growth / np.where(gain > 1e-12, gain, 1.0), np.inf)
-        j = int(np.argmin(ratio))
-        if not np.isfinite(ratio[j]):
-            # No single label lowers the peak (equal peaks elsewhere): slice the label of
-            # the largest intermediate that adds the least cost, and go on.
-            first = [cands.index(i) for i in profile.labels_of_largest(1)] or range(len(cands))
-            j = min(first, key=lambda k: growth[k])
-        profile.add(cands[j])
-        num *= float(dims[j])
-        flops, peak, written = float(f[j]), float(p[j]), float(w[j])
+        label, (flops, peak, written) = _pick(profile, memory_limit, write_flops, candidates, peak)
+        profile.add(label)
+        num *= float(profile.size[label])
     return SlicedFigures(flops * num, peak, written * num, num)
 
 
-def _candidates(inputs, output, size, path, sliced: set[int], top: int) -> list[int]:
-    labels = step_labels(inputs, output, path, sliced)[len(inputs) :]
-    if not labels:
-        labels = [frozenset(ix) - sliced for ix in inputs]
-    sizes = [math.prod(size[i] for i in ls) for ls in labels]
-    order = sorted(range(len(labels)), key=lambda k: -sizes[k])
-    out = set(output)
-    seen: list[int] = []
-    for k in order:
-        for i in sorted(labels[k]):
-            if i not in out and i not in sliced and i not in seen:
-                seen.append(i)
-        if len(seen) >= top:
-            break
-    return seen
+def _pick(profile: TreeProfile, limit: float, write_flops: float, candidates: int, peak: float):
+    """The next label to slice in ``profile`` and the figures of one slice with it sliced too."""
+    flops, _, written, _ = profile.cost()
+    cands = profile.labels_of_largest(candidates)
+    if not cands:
+        raise ResourceLimitError(
+            f"the intermediates need {peak:.0f} bytes even with every non-output label "
+            f"sliced ({len(profile.sliced)} labels); the memory limit is "
+            f"{limit:.0f} bytes: give at least {peak:.0f} bytes"
+        )
+    f, p, w, _ = profile.cost_with(cands)
+    dims = np.array([profile.size[i] for i in cands], dtype=float)
+    base = max(flops + write_flops * written, 1.0)
+    growth = np.maximum(np.log(np.maximum((f + write_flops * w) * dims, 1.0) / base), 1e-9)
+    gain = np.log(peak / np.maximum(p, 1.0))
+    ratio = np.where(gain > 1e-12, growth / np.where(gain > 1e-12, gain, 1.0), np.inf)
+    j = int(np.argmin(ratio))
+    if not np.isfinite(ratio[j]):
+        # No single label lowers the peak (equal peaks elsewhere): slice the label of the
+        # largest intermediate that adds the least cost, and go on.
+        first = [cands.index(i) for i in profile.labels_of_largest(1)] or range(len(cands))
+        j = min(first, key=lambda k: growth[k])
+    return cands[j], (float(f[j]), float(p[j]), float(w[j]))
 
 
 def choose_slices(
@@ -150,8 +122,13 @@ def choose_slices(
     *,
     itemsize: int = 16,
     candidates: int = 32,
+    write_flops: float = 0.0,
+    preset: Sequence[int] = (),
 ) -> tuple[tuple[int, ...], TreeCost, int]:
     """Choose labels to slice so one slice's intermediates fit ``memory_limit`` bytes.
+
+    Labels are picked by :func:`slice_profile` (``write_flops``: the cost of an
+    element written, in FLOPs), after the ``preset`` ones.
 
     Returns
     -------
@@ -175,8 +152,8 @@ def choose_slices(
     >>> len(sliced), cost.peak_bytes <= 16 * 24, k
     (1, True, 4)
     """
-    profile = TreeProfile(inputs, output, size, path, itemsize=itemsize)
-    slice_profile(profile, memory_limit, candidates=candidates)
+    profile = _profile(inputs, output, size, path, preset, itemsize)
+    slice_profile(profile, memory_limit, candidates=candidates, write_flops=write_flops)
     sliced = list(profile.sliced)
     cost = tree_cost(inputs, output, size, path, sliced=sliced, itemsize=itemsize)
     while cost.peak_bytes > memory_limit:  # rounding in the float figures: finish exactly
@@ -185,6 +162,23 @@ def choose_slices(
         )
         sliced.append(i)
     return tuple(sliced), cost, math.prod(size[j] for j in sliced)
+
+
+def _candidates(inputs, output, size, path, sliced: set[int], top: int) -> list[int]:
+    labels = step_labels(inputs, output, path, sliced)[len(inputs) :]
+    if not labels:
+        labels = [frozenset(ix) - sliced for ix in inputs]
+    sizes = [math.prod(size[i] for i in ls) for ls in labels]
+    order = sorted(range(len(labels)), key=lambda k: -sizes[k])
+    out = set(output)
+    seen: list[int] = []
+    for k in order:
+        for i in sorted(labels[k]):
+            if i not in out and i not in sliced and i not in seen:
+                seen.append(i)
+        if len(seen) >= top:
+            break
+    return seen
 
 
 def _next_label(inputs, output, size, path, sliced, cost, itemsize, candidates, limit):
@@ -228,6 +222,8 @@ def slice_with_replanning(
     max_leaves: int = 8,
     passes: int = 3,
     time_budget: float | None = None,
+    write_flops: float = 0.0,
+    preset: Sequence[int] = (),
 ) -> tuple[tuple[int, ...], tuple[tuple[int, int], ...], TreeCost, int]:
     """Slice one label at a time, re-planning the tree's sub-trees after each.
 
@@ -239,7 +235,9 @@ def slice_with_replanning(
     on the adapted tree.  On 8-cycle grid circuits at 1/16 of the peak this
     often slices far cheaper than :func:`choose_slices` on the fixed tree,
     but not always (``benchmarks/planners.py --slicing``).
-    ``time_budget`` bounds each re-planning (seconds; none by default).
+    ``time_budget`` bounds each re-planning (seconds; none by default).  Labels
+    are picked as by :func:`slice_profile` (``write_flops``: the cost of an element
+    written, in FLOPs); ``preset`` labels are sliced from the start.
 
     Returns
     -------
@@ -266,12 +264,11 @@ def slice_with_replanning(
     """
     path = memory_order(inputs, output, size, path)
     cap = max(memory_limit // itemsize // 3, 1)
-    sliced: list[int] = []
-    cost = tree_cost(inputs, output, size, path, itemsize=itemsize)
-    while cost.peak_bytes > memory_limit:
-        i, _ = _next_label(
-            inputs, output, size, path, sliced, cost, itemsize, candidates, memory_limit
-        )
+    sliced: list[int] = list(preset)
+    profile = _profile(inputs, output, size, path, sliced, itemsize)
+    peak = profile.cost()[1]
+    while peak > memory_limit:
+        i, _ = _pick(profile, memory_limit, write_flops, candidates, peak)
         sliced.append(i)
         ins, out = without_labels(inputs, output, sliced)
         new = reoptimize_path(
@@ -285,5 +282,19 @@ def slice_with_replanning(
             max_numel=cap,
         )
         path = memory_order(ins, out, size, new)
-        cost = tree_cost(ins, out, size, path, itemsize=itemsize)
+        profile = _profile(inputs, output, size, path, sliced, itemsize)
+        peak = profile.cost()[1]
+    cost = tree_cost(inputs, output, size, path, sliced=sliced, itemsize=itemsize)
+    while cost.peak_bytes > memory_limit:  # rounding in the float figures: finish exactly
+        i, cost = _next_label(
+            inputs, output, size, path, sliced, cost, itemsize, candidates, memory_limit
+        )
+        sliced.append(i)
     return tuple(sliced), path, cost, math.prod(size[j] for j in sliced)
+
+
+def _profile(inputs, output, size, path, sliced, itemsize) -> TreeProfile:
+    profile = TreeProfile(inputs, output, size, path, itemsize=itemsize)
+    for i in sliced:
+        profile.add(i)
+    return profile
