@@ -38,7 +38,9 @@ def _spectral(n: int, rows, cols, vals, rng: np.random.Generator, k: int) -> np.
     w = w + w.T
     deg = np.asarray(w.sum(axis=1)).ravel()
     lap = sp.diags(deg) - w
-    if n <= 600:
+    if n <= 40:
+        # Dense only for small graphs: a multi-threaded LAPACK on a busy machine took
+        # seconds on a few hundred nodes, where ARPACK's shift-invert takes milliseconds.
         _, vecs = np.linalg.eigh(lap.toarray())
         return vecs[:, 1 : k + 1]
     v0 = rng.standard_normal(n)
