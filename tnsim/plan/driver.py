@@ -469,7 +469,8 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
         if rank and deadline.passed():
             break
         left = deadline.seconds()
-        seconds = None if left is None else max(0.05, min(1.0, left / 8))
+        seconds = None if left is None else max(0.02, min(1.0, left / 8))
+        # From scratch: the adapted tree may want other labels than the search's.
         sliced, path, cost, num = slice_with_replanning(
             *_args(cand),
             cand.path,
@@ -477,6 +478,7 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
             itemsize=itemsize,
             time_budget=seconds,
             write_flops=write,
+            total_budget=left,
         )
         total = score(cost, objective) * num
         if total < best[0]:

@@ -27,6 +27,7 @@ from typing import NamedTuple
 import numpy as np
 
 from tnsim.errors import ResourceLimitError
+from tnsim.plan.clock import now
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.slicecost import TreeProfile
 from tnsim.plan.tree import TreeCost, memory_order, step_labels, tree_cost, without_labels
@@ -224,6 +225,7 @@ def slice_with_replanning(
     time_budget: float | None = None,
     write_flops: float = 0.0,
     preset: Sequence[int] = (),
+    total_budget: float | None = None,
 ) -> tuple[tuple[int, ...], tuple[tuple[int, int], ...], TreeCost, int]:
     """Slice one label at a time, re-planning the tree's sub-trees after each.
 
@@ -235,7 +237,9 @@ def slice_with_replanning(
     on the adapted tree.  On 8-cycle grid circuits at 1/16 of the peak this
     often slices far cheaper than :func:`choose_slices` on the fixed tree,
     but not always (``benchmarks/planners.py --slicing``).
-    ``time_budget`` bounds each re-planning (seconds; none by default).  Labels
+    ``time_budget`` bounds each re-planning (seconds; none by default),
+    ``total_budget`` all of them together (labels chosen once it is spent are
+    sliced without re-planning).  Labels
     are picked as by :func:`slice_profile` (``write_flops``: the cost of an element
     written, in FLOPs); ``preset`` labels are sliced from the start.
 
@@ -267,21 +271,26 @@ def slice_with_replanning(
     sliced: list[int] = list(preset)
     profile = _profile(inputs, output, size, path, sliced, itemsize)
     peak = profile.cost()[1]
+    end = None if total_budget is None else now() + total_budget
     while peak > memory_limit:
         i, _ = _pick(profile, memory_limit, write_flops, candidates, peak)
         sliced.append(i)
         ins, out = without_labels(inputs, output, sliced)
-        new = reoptimize_path(
-            ins,
-            out,
-            size,
-            path,
-            max_leaves=max_leaves,
-            passes=passes,
-            time_budget=time_budget,
-            max_numel=cap,
-        )
-        path = memory_order(ins, out, size, new)
+        seconds = time_budget
+        if end is not None:
+            seconds = min(seconds if seconds is not None else math.inf, end - now())
+        if seconds is None or seconds > 0:
+            path = reoptimize_path(
+                ins,
+                out,
+                size,
+                path,
+                max_leaves=max_leaves,
+                passes=passes,
+                time_budget=seconds,
+                max_numel=cap,
+            )
+        path = memory_order(ins, out, size, path)
         profile = _profile(inputs, output, size, path, sliced, itemsize)
         peak = profile.cost()[1]
     cost = tree_cost(inputs, output, size, path, sliced=sliced, itemsize=itemsize)
