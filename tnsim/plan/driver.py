@@ -17,8 +17,9 @@ import opt_einsum.paths as oe_paths
 
 from tnsim.errors import ResourceLimitError
 from tnsim.network.graph import TensorGraph
+from tnsim.plan import clock
 from tnsim.plan.builder import absorb
-from tnsim.plan.clock import Deadline, TimeLog, now
+from tnsim.plan.clock import Deadline, TimeLog
 from tnsim.plan.greedy import greedy_tree
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.search import WRITE_FLOPS, SearchResult, score, search_path
@@ -311,7 +312,7 @@ def make_plan(
     >>> p.tree.path, p.flops, p.num_slices
     (((1, 2), (0, 3)), 96, 1)
     """
-    start = now()
+    start = clock.now()
     limit = None if memory_limit is None else parse_memory(memory_limit)
     itemsize = int(network.dtype.itemsize)
     inputs = tuple(tuple(ix) for ix in network.indices)
@@ -359,10 +360,10 @@ def make_plan(
         finish_end.end = whole.end - FINISH_RESERVE * (whole.end - start)
     elif not _untimed(time_budget, max_trials):
         # Default budget: the final slicing gets half as long as the search took (1 s at least).
-        finish_end = Deadline(max(1.0, 0.5 * (now() - start)))
+        finish_end = Deadline(max(1.0, 0.5 * (clock.now() - start)))
     with log.stage("slicing"):
         plan = _finish(network, candidates, limit, itemsize, start, search, finish_end)
-    plan = dataclasses.replace(plan, seconds=now() - start, timings=log.items())
+    plan = dataclasses.replace(plan, seconds=clock.now() - start, timings=log.items())
     if len(_PLAN_CACHE) >= PLAN_CACHE_SIZE:
         _PLAN_CACHE.pop(next(iter(_PLAN_CACHE)))
     _PLAN_CACHE[key] = plan
@@ -434,7 +435,7 @@ def _finish(network, candidates, limit, itemsize, start, search, deadline: Deadl
         unsliced_peak_bytes=full.peak_bytes,
         itemsize=itemsize,
         method=method,
-        seconds=now() - start,
+        seconds=clock.now() - start,
     )
 
 

@@ -13,11 +13,11 @@ re-planning never makes a sliced tree need more memory than the cap allows.
 from __future__ import annotations
 
 import math
-import time
 from collections.abc import Mapping, Sequence
 
 import opt_einsum.paths as oe_paths
 
+from tnsim.plan import clock
 from tnsim.plan.tree import linear_to_ssa, step_flops, step_labels, tree_cost
 
 __all__ = ["reoptimize_path"]
@@ -146,7 +146,7 @@ def reoptimize_path(
     path = tuple(tuple(p) for p in path)
     if len(path) < 2:
         return path
-    start = time.perf_counter()
+    start = clock.now()
     t = _Tree(inputs, output, size, path)
     for _ in range(passes):
         improved = False
@@ -154,7 +154,7 @@ def reoptimize_path(
         for v in sorted(t.children, key=lambda u: -t.flops[u]):
             if t.flops.get(v, 0) < floor:
                 break
-            if time_budget is not None and time.perf_counter() - start > time_budget:
+            if time_budget is not None and clock.now() - start > time_budget:
                 break
             if v not in t.children:
                 continue

@@ -22,8 +22,9 @@ import opt_einsum.paths as oe_paths
 
 from tnsim.errors import ResourceLimitError
 from tnsim.fitted import WRITE_FLOPS
+from tnsim.plan import clock
 from tnsim.plan.builder import plan_coarse
-from tnsim.plan.clock import Deadline, TimeLog, now
+from tnsim.plan.clock import Deadline, TimeLog
 from tnsim.plan.elimination import elimination_path
 from tnsim.plan.partition import bisection_path, sweep_path
 from tnsim.plan.reoptimize import reoptimize_path
@@ -316,7 +317,7 @@ def search_path(
     """
     if objective not in OBJECTIVES:
         raise ValueError(f"unknown objective {objective!r}; use one of {OBJECTIVES}")
-    start = now()
+    start = clock.now()
     log = TimeLog() if log is None else log
     outer = Deadline(None) if deadline is None else deadline
     total = Deadline(time_budget, start=start)
@@ -351,20 +352,20 @@ def search_path(
                     method = lead if draw else str(rng.choice(pool))
                 else:
                     method = methods[trials]
-                began = now()
+                began = clock.now()
                 state.consider(_trial(method, inputs, output, size, rng), method)
                 trials += 1
                 if state.limit is not None and trials % 3 == 0 and state.sliced_best():
                     state.plan_around(around, [m for m in methods if m != "greedy"] or methods)
-                longest = max(longest, now() - began)
+                longest = max(longest, clock.now() - began)
                 if bar is not None:
                     bar.update(1)
                     bar.set_postfix(log10_flops=f"{math.log10(max(state.best_flops(), 1)):.2f}")
                 if max_trials is not None and trials >= max_trials:
                     break
-                elapsed = now() - start
+                elapsed = clock.now() - start
                 # Stop before a trial as long as the longest so far would end past the deadline.
-                if trial_end.timed and now() + longest > trial_end.end:
+                if trial_end.timed and clock.now() + longest > trial_end.end:
                     break
                 if (
                     stop_rate
@@ -376,13 +377,13 @@ def search_path(
         if bar is not None:
             bar.close()
     if stop_rate and total.timed:
-        spent = now() - start
+        spent = clock.now() - start
         cap = start + 2 * max(spent, state.best_flops() / stop_rate)
         total.end = min(total.end, cap)
     if reoptimize:
         with log.stage("re-planning"):
             state.reoptimize(total, total.end - start)
-    return state.result(trials, now() - start)
+    return state.result(trials, clock.now() - start)
 
 
 class _State:
@@ -481,7 +482,7 @@ class _State:
                 continue
             left = None
             if total.timed:
-                left = max(0.05 * (total.end - now()), total.left() / (len(jobs) - k))
+                left = max(0.05 * (total.end - clock.now()), total.left() / (len(jobs) - k))
                 if total.passed():
                     break
             if kind == "plain":

@@ -27,7 +27,7 @@ from typing import NamedTuple
 import numpy as np
 
 from tnsim.errors import ResourceLimitError
-from tnsim.plan.clock import now
+from tnsim.plan import clock
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.slicecost import TreeProfile
 from tnsim.plan.tree import TreeCost, memory_order, step_labels, tree_cost, without_labels
@@ -271,14 +271,14 @@ def slice_with_replanning(
     sliced: list[int] = list(preset)
     profile = _profile(inputs, output, size, path, sliced, itemsize)
     peak = profile.cost()[1]
-    end = None if total_budget is None else now() + total_budget
+    end = None if total_budget is None else clock.now() + total_budget
     while peak > memory_limit:
         i, _ = _pick(profile, memory_limit, write_flops, candidates, peak)
         sliced.append(i)
         ins, out = without_labels(inputs, output, sliced)
         seconds = time_budget
         if end is not None:
-            seconds = min(seconds if seconds is not None else math.inf, end - now())
+            seconds = min(seconds if seconds is not None else math.inf, end - clock.now())
         if seconds is None or seconds > 0:
             path = reoptimize_path(
                 ins,
