@@ -450,8 +450,10 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
     (:func:`slice_with_replanning`; neither way wins everywhere).  Returns
     ``(score, tree, method, (sliced, cost, num_slices))``.
     """
-    fixed, error = [], None
+    fixed, error, plain_best = [], None, None
     for cand, name, cut in trees:
+        if fixed and deadline.passed():
+            break
         path = cand.path if cut else memory_order(*_args(cand), cand.path)
         try:
             sliced, cost, num = choose_slices(
@@ -462,12 +464,18 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
             continue
         tree = PairTree(*_args(cand), path)
         fixed.append((score(cost, objective) * num, tree, name, (sliced, cost, num)))
+        if not cut and plain_best is None:
+            plain_best = fixed[-1]
     if not fixed:
         raise ResourceLimitError(f"no plan fits a memory limit of {limit} bytes: {error}")
+    plain_best = plain_best or fixed[0]  # the best tree before slicing
     fixed.sort(key=lambda row: row[0])
     best = fixed[0]
-    for rank, (_, cand, name, _) in enumerate(fixed):
-        if rank and deadline.passed():
+    # Re-planned while the deadline allows: the best tree before slicing, then the rest
+    # cheapest first; without a deadline, the first REPLANNED of them.
+    order = [plain_best] + [row for row in fixed if row is not plain_best]
+    for rank, (_, cand, name, _) in enumerate(order):
+        if deadline.passed() or (not deadline.timed and rank >= REPLANNED):
             break
         left = deadline.seconds()
         seconds = None if left is None else max(0.02, min(1.0, left / 8))
@@ -485,6 +493,12 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
         if total < best[0]:
             best = (total, PairTree(*_args(cand), path), name, (sliced, cost, num))
     return best
+
+
+REPLANNED = 3
+
+
+"""Without a time budget, how many candidate trees the final slicing re-plans label by label."""
 
 
 def _args(tree: PairTree):
