@@ -19,9 +19,11 @@ from tnsim.circuits.families import (
     hardware_efficient,
     iqp,
     ising_trotter,
+    layout_2018,
     make_family,
     qaoa_maxcut,
     qft,
+    staggered_edge_layer,
 )
 from tnsim.circuits.gates import gate_matrix
 from tnsim.circuits.qasm import read_qasm, write_qasm
@@ -292,3 +294,77 @@ def test_qaoa_registry_layers():
 def test_bad_input_raises(call):
     with pytest.raises(InputError):
         call()
+
+
+def _pairs_of(circuit, n):
+    """Two-qubit pairs of each cycle of a grid circuit (n single-qubit gates start a cycle)."""
+    ops, layers, pos = list(circuit), [], 0
+    while pos < len(ops):
+        pos += n
+        layer = []
+        while pos < len(ops) and len(ops[pos].qubits) == 2:
+            layer.append(ops[pos].qubits)
+            pos += 1
+        layers.append(layer)
+    return layers
+
+
+def test_abcdcdab_sequence_follows_the_published_order():
+    # Arute et al., "Quantum supremacy using a programmable superconducting processor",
+    # Nature 574, 505 (2019): cycles apply the coupler patterns in the order
+    # A B C D C D A B, repeated; A and B activate couplers of one orientation, C and D
+    # the other, each pattern every other coupler, staggered from line to line (the
+    # orientation of each pattern on a square grid is recalled from memory).
+    rows, cols = 4, 5
+    c = grid_circuit(rows, cols, 16, seed=1, sequence="abcdcdab")
+    layers = _pairs_of(c, rows * cols)
+    patterns = {
+        p: staggered_edge_layer(rows, cols, vertical, offset)
+        for p, (vertical, offset) in {"A": (1, 0), "B": (1, 1), "C": (0, 1), "D": (0, 0)}.items()
+    }
+    assert [layers[k] for k in range(16)] == [patterns[p] for p in "ABCDCDAB" * 2]
+    for p, pairs in patterns.items():
+        for a, b in pairs:
+            (ra, ca), (rb, cb) = divmod(a, cols), divmod(b, cols)
+            assert (rb - ra, cb - ca) == ((1, 0) if p in "AB" else (0, 1))
+    # A and B together hold every vertical edge once, C and D every horizontal edge once.
+    vertical = sorted(patterns["A"] + patterns["B"])
+    assert vertical == sorted(
+        (r * cols + k, (r + 1) * cols + k) for r in range(rows - 1) for k in range(cols)
+    )
+    horizontal = sorted(patterns["C"] + patterns["D"])
+    assert horizontal == sorted(
+        (r * cols + k, r * cols + k + 1) for r in range(rows) for k in range(cols - 1)
+    )
+    # Staggered: a pattern's horizontal pairs start on even columns in one row, odd in the next.
+    assert {a % cols % 2 for a, _ in patterns["D"] if a // cols == 0} == {0}
+    assert {a % cols % 2 for a, _ in patterns["D"] if a // cols == 1} == {1}
+
+
+def test_layouts_2018_follow_the_published_recipe():
+    # Boixo et al., "Characterizing quantum supremacy in near-term devices", Nature Physics
+    # 14, 595 (2018), Fig. 6: eight CZ layouts used in turn, alternating horizontal and
+    # vertical, each holding one edge in four of its orientation, shifted by two from one
+    # line to the next, so that no qubit has two CZs in a cycle and every edge of the grid
+    # is used once per eight cycles (layout numbering recalled from memory).
+    rows, cols = 6, 6
+    layouts = [layout_2018(rows, cols, k) for k in range(8)]
+    c = grid_circuit(rows, cols, 9, seed=2, sequence="layouts2018")
+    assert _pairs_of(c, rows * cols) == [*layouts, layouts[0]]
+    every = sorted(p for lay in layouts for p in lay)
+    edges = [(r * cols + k, r * cols + k + 1) for r in range(rows) for k in range(cols - 1)]
+    edges += [(r * cols + k, (r + 1) * cols + k) for r in range(rows - 1) for k in range(cols)]
+    assert every == sorted(edges)
+    for k, lay in enumerate(layouts):
+        qubits = [q for p in lay for q in p]
+        assert len(qubits) == len(set(qubits)) <= rows * cols // 2
+        assert all((b - a == 1) == (k % 2 == 0) for a, b in lay)
+    # Layout 0 on the first two rows: pairs starting at columns 0 and 4, then at column 2.
+    assert [p for p in layouts[0] if p[0] < 2 * cols] == [(0, 1), (4, 5), (8, 9)]
+
+
+def test_grid_sequence_is_a_family_parameter_and_is_checked():
+    c = make_family("grid", rows=3, cols=3, cycles=3, sequence="abcdcdab", seed=0)
+    assert _ops(c) == _ops(grid_circuit(3, 3, 3, seed=0, sequence="abcdcdab"))
+    with pytest.raises(InputError, match="sequence"):
+        grid_circuit(3, 3, 2, sequence="zigzag")
