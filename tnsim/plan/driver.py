@@ -16,13 +16,14 @@ from dataclasses import dataclass
 import opt_einsum.paths as oe_paths
 
 from tnsim.errors import ResourceLimitError
+from tnsim.fitted import WRITE_FLOPS
 from tnsim.network.graph import TensorGraph
 from tnsim.plan import clock
 from tnsim.plan.builder import absorb
 from tnsim.plan.clock import Deadline, TimeLog
 from tnsim.plan.greedy import greedy_tree
 from tnsim.plan.reoptimize import reoptimize_path
-from tnsim.plan.search import WRITE_FLOPS, SearchResult, score, search_path
+from tnsim.plan.search import SearchResult, score, search_path
 from tnsim.plan.slicing import choose_slices, slice_with_replanning
 from tnsim.plan.tree import PairTree, linear_to_ssa, memory_order, tree_cost, without_labels
 from tnsim.units import parse_memory
