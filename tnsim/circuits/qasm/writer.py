@@ -21,6 +21,11 @@ def _format_op(index: int, op: Operation) -> str:
     if op.name not in QELIB1_GATES and op.name not in EXTENSION_DEFINITIONS:
         raise InputError(f"operation {index}: tnsim cannot write gate '{op.name}' as OpenQASM")
     params = ""
+    if op.symbolic:
+        raise InputError(
+            f"operation {index} ('{op.name}' on qubits {op.qubits}) has a named angle; "
+            "OpenQASM 2.0 has no named parameters: write circuit.bind({name: value, ...})"
+        )
     if op.params:
         if not all(math.isfinite(p) for p in op.params):
             raise InputError(f"operation {index} ('{op.name}') has a non-finite parameter")
