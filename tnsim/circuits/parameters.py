@@ -201,7 +201,8 @@ class _Parser:
                 break
             m = _TOKEN.match(text, pos)
             if m is None or m.end() == pos:
-                self.fail(pos, f"unexpected character {text[pos:].lstrip()[:1]!r}")
+                where = pos + len(text[pos:]) - len(text[pos:].lstrip())
+                self.fail(where, f"unexpected character {text[where]!r}")
             kind = m.lastgroup
             self.tokens.append((kind, m.group(kind), m.start(kind)))
             pos = m.end()

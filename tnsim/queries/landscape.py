@@ -41,16 +41,18 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.gates import GATES, gate_matrix
 from tnsim.circuits.parameters import AngleExpr, probe_values
 from tnsim.circuits.shifts import shift_rule
-from tnsim.errors import InputError, ResourceLimitError
+from tnsim.errors import InputError
 from tnsim.execution.budget import fit_plan
-from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import slice_memory_limit
 from tnsim.execution.slices import execute
 from tnsim.execution.steps import compile_tree
 from tnsim.execution.treerun import contract_tree
 from tnsim.network.batched import DoubledLayout, doubled_layout, reduce_gate
 from tnsim.network.builders import doubled_network, gate_tensor
+from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
+from tnsim.plan.greedy import greedy_tree
 from tnsim.queries.checks import check_circuit, check_dtype
 from tnsim.queries.marginals import deep_and_narrow
 from tnsim.queries.observables import Observable, parse_observable
@@ -385,30 +387,23 @@ class EnergyLandscape:
         cls.vector = deep_and_narrow(probe, small)
 
     def _network_values(self, cls, tensors, batched, batch: int) -> np.ndarray:
-        """Contract the batch, split in halves while a part does not fit the memory limit."""
-        if batch > 1 and not any(batched):
-            raise AssertionError("a batch needs a batched tensor")  # pragma: no cover
-        try:
-            return self._contract(cls, tensors, batched)
-        except ResourceLimitError:
-            if batch <= 2:
-                raise
-        half = (batch + 1) // 2
-        parts = []
-        for lo, hi in ((0, half), (half, batch)):
-            sub = [t[lo:hi] if b else t for t, b in zip(tensors, batched)]
-            parts.append(self._network_values(cls, sub, batched, hi - lo))
-        return np.concatenate(parts)
+        """Contract the batch; a batch whose plan would need slicing is split into chunks.
 
-    def _contract(self, cls: _ConeClass, tensors, batched) -> np.ndarray:
-        """One contraction of the class's network, planned once per batch shape."""
+        Splitting repeats no work, slicing a batch would; a single cone is sliced
+        as any contraction is.
+        """
         network = cls.layout.network(tensors, batched, self.dtype)
-        key = (tuple(batched), network.size.get(cls.layout.batch, 1))
+        key = (tuple(batched), batch)
         program = cls.plans.get(key)
         if program is None:
-            plan = fit_plan(network, self.memory_limit)
-            direct = not plan.sliced and plan.flops <= DIRECT_FLOPS
-            program = cls.plans[key] = (plan, compile_tree(plan.tree) if direct else None)
+            program = cls.plans[key] = self._program(network, batch)
+        if isinstance(program, int):  # a chunk size
+            parts = []
+            for lo in range(0, batch, program):
+                hi = min(batch, lo + program)
+                sub = [t[lo:hi] if b else t for t, b in zip(tensors, batched)]
+                parts.append(self._network_values(cls, sub, batched, hi - lo))
+            return np.concatenate(parts)
         plan, steps = program
         self.contractions += 1
         if steps is not None:
@@ -417,10 +412,28 @@ class EnergyLandscape:
             result = execute(network, plan.tree, plan.sliced, memory_limit=self.memory_limit)
         return np.atleast_1d(result.value().real).astype(float)
 
+    def _program(self, network: TensorGraph, batch: int):
+        """The plan (with compiled steps for small unsliced ones), or a smaller chunk size.
+
+        The chunk size scales the batch by the memory limit over greedy's peak
+        (halving when the plan found still needs slicing).
+        """
+        limit = slice_memory_limit(self.memory_limit)
+        if batch > 1:
+            greedy = greedy_tree(network.indices, network.output, network.size)
+            peak = greedy.cost(itemsize=network.dtype.itemsize).peak_bytes
+            if peak > limit:
+                return max(1, min(batch // 2, batch * limit // peak))
+        plan = fit_plan(network, self.memory_limit)
+        if plan.sliced and batch > 1:
+            return (batch + 1) // 2
+        direct = not plan.sliced and plan.flops <= DIRECT_FLOPS
+        return plan, compile_tree(plan.tree) if direct else None
+
     def _vector_values(self, cls, mats, batched, batch: int) -> np.ndarray:
         """All variants as state vectors of the cone, in chunks that fit the memory limit."""
         m = cls.circuit.num_qubits
-        limit = self.memory_limit or default_memory_limit()
+        limit = slice_memory_limit(self.memory_limit)
         per_state = 4 * (16 << m)
         chunk = max(1, min(batch, int(limit) // per_state))
         out = []
