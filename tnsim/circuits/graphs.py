@@ -225,8 +225,6 @@ def _bad_line(path: str) -> str:
             if not line:
                 continue
             parts = line.split(maxsplit=2)
-            if len(parts) < 2:
-                return f"{path}:{number}:1: expected 'u v' (two node labels), found {line[:40]!r}"
             if len(parts) == 3 and not parts[2].startswith("{"):
                 try:
                     float(parts[2])
@@ -259,10 +257,12 @@ def read_graph(path: str | os.PathLike) -> nx.Graph:
         try:
             graph = _read(path, nodetype)
             break
-        except (TypeError, ValueError, IndexError, SyntaxError):
-            continue
+        except _LineError as exc:
+            raise InputError(f"{exc}; write one 'u v' (or 'u v weight') line per edge") from None
         except (OSError, UnicodeDecodeError) as exc:
             raise InputError(f"{path}: cannot read the edge list ({exc})") from None
+        except (TypeError, ValueError, IndexError, SyntaxError):
+            continue
     if graph is None:
         raise InputError(_bad_line(path) + "; write one 'u v' (or 'u v weight') line per edge")
     for u, v, d in graph.edges(data=True):
@@ -276,10 +276,19 @@ def read_graph(path: str | os.PathLike) -> nx.Graph:
     return graph
 
 
+class _LineError(Exception):
+    """A line that is not an edge, with where it is."""
+
+
 def _read(path: str, nodetype) -> nx.Graph:
     with open(path, encoding="utf-8") as fh:
         lines = fh.read().splitlines()
     three = [line.split("#", 1)[0].split() for line in lines]
+    for number, parts in enumerate(three, 1):
+        if len(parts) == 1:  # networkx would skip it silently; a truncated line is a mistake
+            raise _LineError(
+                f"{path}:{number}:1: expected 'u v' (two node labels), found {parts[0][:40]!r}"
+            )
     bare_weight = any(len(p) == 3 and not p[2].startswith("{") for p in three)
     if bare_weight:
         return nx.parse_edgelist(lines, nodetype=nodetype, data=(("weight", float),))

@@ -373,7 +373,7 @@ def _run_start(landscape, index, kind, x0, method, sign, max_evaluations, tolera
         "CG": {"maxiter": max_evaluations},
         "Nelder-Mead": {"maxfev": max_evaluations},
         "Powell": {"maxfev": max_evaluations},
-        "COBYLA": {"maxiter": max_evaluations},
+        "COBYLA": {"maxiter": max(max_evaluations, len(x0) + 2)},  # its least budget
     }[method]
     try:
         result = minimize(fun, x0, jac=jac, method=method, tol=tolerance, options=options)
