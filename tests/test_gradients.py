@@ -200,9 +200,8 @@ def test_gate_without_shift_rule_is_refused_but_energy_works(monkeypatch):
     monkeypatch.setitem(GATES, "twist_test", GateSpec("twist_test", 1, 1, phase_rotation))
     circuit = Circuit(2).h(0).append("twist_test", [1], ["a"]).rx("b", 0)
     land = EnergyLandscape(circuit, "Z1 + X0")
-    assert land.energy({"a": 0.3, "b": 0.1}) == pytest.approx(
-        math.cos(0.3) + 1.0, abs=1e-12  # rx on |+> leaves <X0> = 1
-    )
+    # <Z1> = cos a; rx on |+> leaves <X0> = 1.
+    assert land.energy({"a": 0.3, "b": 0.1}) == pytest.approx(math.cos(0.3) + 1.0, abs=1e-12)
     with pytest.raises(InputError, match=r"operation 1 on qubits \(1,\).*twist_test"):
         energy_and_gradient(circuit, "Z1", {"a": 0.3, "b": 0.1})
 

@@ -13,7 +13,9 @@ from tnsim.circuits.qaoa import maxcut_ansatz
 from tnsim.circuits.qasm import write_qasm
 from tnsim.queries.amplitudes import amplitude
 from tnsim.queries.expectation import expectation, maxcut_energy
+from tnsim.queries.forecast import forecast
 from tnsim.queries.marginals import marginal
+from tnsim.queries.sampling import sample
 from tnsim.testing import dense_state
 
 
@@ -133,6 +135,9 @@ def test_queries_refuse_unbound_circuits_clearly():
         lambda: expectation(c, "Z0"),
     ):
         with pytest.raises(InputError, match=r"unbound parameters \(theta\).*bind"):
+            call()
+    for call in (lambda: sample(c, 3), lambda: forecast(c, "00")):
+        with pytest.raises(InputError, match=r"unbound angle\(s\) theta.*bind"):
             call()
     with pytest.raises(InputError, match=r"OpenQASM 2\.0 has no named parameters"):
         write_qasm(c)
