@@ -188,7 +188,7 @@ def test_small_memory_limit_gives_the_same_gradient():
     # 64 KiB holds one cone's intermediates but not a batch of 50: batches are split.
     land = EnergyLandscape(circuit, obs, memory_limit=2**16)
     e2, g2 = land.energy_and_gradient(values)
-    assert any(isinstance(p, int) for c in land.classes for p in c.plans.values())
+    assert any(isinstance(p, int) for p in land._plans.values())
     assert e2 == pytest.approx(e1, abs=1e-11)
     np.testing.assert_allclose(g2, g1, atol=1e-11)
 

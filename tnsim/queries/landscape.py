@@ -13,8 +13,9 @@ once, when the landscape is built:
   once; an evaluation costs one contraction per class, not per term.
 * Each class's doubled network is laid out once
   (:func:`tnsim.network.batched.doubled_layout`), planned once per batch shape
-  and compiled once; an evaluation only computes gate tensors and runs the
-  compiled steps.
+  and compiled once -- shared by every class of the same structure (the same
+  cone with other angle names); an evaluation only computes gate tensors and
+  runs the compiled steps.
 
 The gradient uses the parameter-shift rule (:mod:`tnsim.circuits.shifts`) on
 every use of every angle: each gate of a class's cone whose angle depends on a
@@ -33,7 +34,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -135,8 +136,8 @@ class _ConeClass:
     diagonal: list[tuple[bool, ...]]
     fixed: dict[int, np.ndarray]
     layout: DoubledLayout | None = None
+    structure: tuple | None = None
     vector: bool | None = None
-    plans: dict = field(default_factory=dict)
 
 
 def _compile_slot(expr: AngleExpr, position: dict[str, int], n: int) -> tuple[np.ndarray, float]:
@@ -209,6 +210,8 @@ class EnergyLandscape:
         self.cone_values = 0
         self.seconds_setup = 0.0
         self._rules_checked = False
+        self._routes: dict[tuple, bool] = {}
+        self._plans: dict[tuple, object] = {}
         t0 = time.perf_counter()
         self._group_terms()
         self.seconds_setup = time.perf_counter() - t0
@@ -377,14 +380,22 @@ class EnergyLandscape:
         return self._network_values(cls, tensors, batched, batch)
 
     def _choose_route(self, cls: _ConeClass) -> None:
-        """State vectors or the doubled network, from the cone's structure (once per class)."""
+        """State vectors or the doubled network, from the cone's structure (once per structure).
+
+        Classes whose doubled networks have the same labels (the same cone up to
+        the angle names and values) share the decision and the plans.
+        """
         local = cls.circuit
-        cls.layout = doubled_layout(
+        cls.layout = layout = doubled_layout(
             local.num_qubits, [op.qubits for op in local.ops], cls.diagonal, cls.letters
         )
-        probe = local.bind({n: probe_values(1)[n] for n in local.parameters()})
-        small = absorb_small(doubled_network(probe, paulis=cls.letters, dtype=self.dtype))
-        cls.vector = deep_and_narrow(probe, small)
+        cls.structure = (layout.num_qubits, layout.ket, layout.bra, layout.fixed_indices)
+        vector = self._routes.get(cls.structure)
+        if vector is None:
+            probe = local.bind({n: probe_values(1)[n] for n in local.parameters()})
+            small = absorb_small(doubled_network(probe, paulis=cls.letters, dtype=self.dtype))
+            vector = self._routes[cls.structure] = deep_and_narrow(probe, small)
+        cls.vector = vector
 
     def _network_values(self, cls, tensors, batched, batch: int) -> np.ndarray:
         """Contract the batch; a batch whose plan would need slicing is split into chunks.
@@ -393,10 +404,10 @@ class EnergyLandscape:
         as any contraction is.
         """
         network = cls.layout.network(tensors, batched, self.dtype)
-        key = (tuple(batched), batch)
-        program = cls.plans.get(key)
+        key = (cls.structure, tuple(batched), batch)
+        program = self._plans.get(key)
         if program is None:
-            program = cls.plans[key] = self._program(network, batch)
+            program = self._plans[key] = self._program(network, batch)
         if isinstance(program, int):  # a chunk size
             parts = []
             for lo in range(0, batch, program):
