@@ -14,7 +14,6 @@ import argparse
 import json
 import math
 import os
-import sys
 
 from tnsim.cli.common import add_run_arguments, load_circuit, write_output
 from tnsim.errors import InputError
@@ -323,7 +322,6 @@ def _cmd_optimize(args: argparse.Namespace) -> int:
     if args.json:
         text = json.dumps(doc, allow_nan=False) + "\n"
     write_output(text, args.output)
-    sys.stdout.flush()
     return 0
 
 

@@ -290,7 +290,8 @@ class EnergyLandscape:
         self.evaluations += 1
         total = self.constant
         for cls in self.classes:
-            total += cls.weight * float(self._class_values(cls, x, [])[0])
+            if cls.weight:  # terms that cancel need no contraction
+                total += cls.weight * float(self._class_values(cls, x, [])[0])
         return float(total)
 
     def energy_and_gradient(self, values) -> tuple[float, np.ndarray]:
@@ -307,6 +308,8 @@ class EnergyLandscape:
         total = self.constant
         grad = np.zeros(len(self.names))
         for cls in self.classes:
+            if not cls.weight:
+                continue
             variants, weights = [], []
             for s, slot in enumerate(cls.slots):
                 op = cls.circuit.ops[slot.op]
