@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
+import math
 import numbers
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 
@@ -55,7 +56,7 @@ class Operation:
                 f"gate '{self.name}' on qubits {self.qubits} has the unbound angle(s) {free}; "
                 "give numbers with circuit.bind({name: value, ...})"
             )
-        return gate_matrix(self.name, self.params)
+        return gate_matrix(self.name, cast("tuple[float, ...]", self.params))
 
     @property
     def symbolic(self) -> bool:
@@ -183,7 +184,7 @@ class Circuit:
                     values.append(as_angle(p))
                 except InputError as exc:
                     raise InputError(f"gate '{name}': {exc}") from None
-            elif isinstance(p, bool) or not isinstance(p, numbers.Real) or not np.isfinite(p):
+            elif isinstance(p, bool) or not isinstance(p, numbers.Real) or not math.isfinite(p):
                 raise InputError(
                     f"gate '{name}': parameter {p!r} is not a finite real number or a named angle"
                 )
@@ -232,10 +233,10 @@ class Circuit:
             raise InputError(
                 f"bind: {what}; the circuit's parameters are: {', '.join(names) or 'none'}"
             )
-        clean = {}
+        clean: dict[str, float] = {}
         for n in names:
             v = values[n]
-            if isinstance(v, bool) or not isinstance(v, numbers.Real) or not np.isfinite(v):
+            if isinstance(v, bool) or not isinstance(v, numbers.Real) or not math.isfinite(v):
                 raise InputError(f"bind: value {v!r} of '{n}' is not a finite real number")
             clean[n] = float(v)
         c = self.copy()

@@ -29,6 +29,7 @@ import re
 import zlib
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
+from typing import NoReturn
 
 from tnsim.errors import InputError
 
@@ -116,7 +117,7 @@ class AngleExpr:
         return (-self)._combine(other, 1.0)
 
     def __neg__(self) -> AngleExpr:
-        return self._scaled(-1.0)
+        return AngleExpr(tuple((n, -c) for n, c in self.terms), -self.offset + 0.0)
 
     def __pos__(self) -> AngleExpr:
         return self
@@ -203,12 +204,12 @@ class _Parser:
             if m is None or m.end() == pos:
                 where = pos + len(text[pos:]) - len(text[pos:].lstrip())
                 self.fail(where, f"unexpected character {text[where]!r}")
-            kind = m.lastgroup
+            kind = str(m.lastgroup)
             self.tokens.append((kind, m.group(kind), m.start(kind)))
             pos = m.end()
         self.k = 0
 
-    def fail(self, pos: int, what: str):
+    def fail(self, pos: int, what: str) -> NoReturn:
         raise InputError(
             f"angle {self.text!r}, column {pos + 1}: {what}; write an affine expression "
             "such as '2*gamma0 - 0.5*beta + 0.1'"

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from tnsim.circuits.families import FAMILIES, make_family
-from tnsim.circuits.graphs import GRAPH_FAMILIES, edge_list_text, make_graph
+from tnsim.circuits.families import FAMILIES, Family, make_family
+from tnsim.circuits.graphs import GRAPH_FAMILIES, GraphFamily, edge_list_text, make_graph
 from tnsim.circuits.qasm import write_qasm
 from tnsim.cli.common import write_output
 from tnsim.errors import InputError
@@ -48,7 +48,8 @@ def parse_params(items: list[str] | None) -> dict[str, str]:
 def describe_families() -> str:
     """Return one paragraph per family: name, summary, parameters with defaults."""
     lines = []
-    for f in (*FAMILIES.values(), *GRAPH_FAMILIES.values()):
+    records: list[Family | GraphFamily] = [*FAMILIES.values(), *GRAPH_FAMILIES.values()]
+    for f in records:
         lines.append(f"{f.name}: {f.summary}")
         for p in f.params:
             lines.append(f"    {p.name}={p.default!s:<8} {p.help}")

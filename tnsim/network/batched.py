@@ -127,7 +127,7 @@ class DoubledLayout:
         arrays += [np.asarray(a, dtype=dt) for a in self.fixed_arrays]
         indices += list(self.fixed_indices)
         size = {i: 2 for ix in indices for i in ix}
-        output = ()
+        output: tuple[int, ...] = ()
         if any_batch:
             size[self.batch] = next(len(t) for t, b in zip(tensors, batched) if b)
             output = (self.batch,)
@@ -164,7 +164,8 @@ def doubled_layout(
     """
     ket_wire = list(range(num_qubits))
     nxt = num_qubits
-    ket, bra = [], []
+    ket: list[tuple[int, ...]] = []
+    bra: list[tuple[int, ...]] = []
     m_wire = list(range(nxt, nxt + num_qubits))
     nxt += num_qubits
     for qs, diag in zip(qubits, diagonal):
@@ -179,7 +180,8 @@ def doubled_layout(
             out.append(tuple(new) + ins)
     join = {m_wire[q]: ket_wire[q] for q in range(num_qubits) if q not in paulis}
     bra = [tuple(join.get(i, i) for i in ix) for ix in bra]
-    fixed_arrays, fixed_indices = [], []
+    fixed_arrays: list[np.ndarray] = []
+    fixed_indices: list[tuple[int, ...]] = []
     for q in range(num_qubits):
         fixed_arrays += [_BASIS0, _BASIS0]
         fixed_indices += [(q,), (num_qubits + q,)]

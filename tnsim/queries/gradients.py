@@ -17,9 +17,8 @@ one circuit (an optimization), build the landscape once and call its methods.
 
 from __future__ import annotations
 
-import numpy as np
-
 from tnsim.circuits.circuit import Circuit
+from tnsim.execution.options import DTypeLike, MemoryLimit
 from tnsim.queries.landscape import EnergyLandscape
 
 __all__ = ["energy_and_gradient"]
@@ -30,8 +29,8 @@ def energy_and_gradient(
     observable,
     values,
     *,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> tuple[float, dict[str, float]]:
     """Return ``<0|C† H C|0>`` at ``values`` and its gradient with respect to each name.
 
@@ -43,10 +42,10 @@ def energy_and_gradient(
         The Pauli sum ``H``, e.g. ``"0.5 Z0 Z1 - 1.2 X3 + 0.7"``.
     values : mapping of str to float, or sequence of float
         A value for every name (a sequence follows the order of ``circuit.parameters()``).
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates of one contraction.
+    dtype : numpy dtype, optional
+        Contraction dtype (default: the enclosing ``run_options`` block's, else complex128).
+    memory_limit : int or str, optional
+        Bytes (or text such as ``"4GiB"``) for live intermediates of one contraction.
 
     Returns
     -------

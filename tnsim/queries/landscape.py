@@ -44,17 +44,18 @@ from tnsim.circuits.parameters import AngleExpr, probe_values
 from tnsim.circuits.shifts import shift_rule
 from tnsim.errors import InputError
 from tnsim.execution.budget import fit_plan
-from tnsim.execution.options import slice_memory_limit
+from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.execution.slices import execute
-from tnsim.execution.steps import compile_tree
+from tnsim.execution.steps import PairStep, compile_tree
 from tnsim.execution.treerun import contract_tree
 from tnsim.network.batched import DoubledLayout, doubled_layout, reduce_gate
 from tnsim.network.builders import doubled_network, gate_tensor
 from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
+from tnsim.plan.driver import Plan
 from tnsim.plan.greedy import greedy_tree
-from tnsim.queries.checks import check_circuit, check_dtype
+from tnsim.queries.checks import check_circuit
 from tnsim.queries.marginals import deep_and_narrow
 from tnsim.queries.observables import Observable, parse_observable
 
@@ -113,6 +114,11 @@ def values_vector(names: Sequence[str], values, what: str = "values") -> np.ndar
     return x
 
 
+_Program = int | tuple[Plan, list[PairStep] | None]
+"""A batch shape's entry in the plan cache: a chunk size to split the batch into, or the
+plan with its compiled steps (``None`` when it runs through ``execute``)."""
+
+
 @dataclass
 class _Slot:
     """One named angle of one gate of a cone: ``angle = coefficients · x + offset``."""
@@ -156,11 +162,12 @@ class EnergyLandscape:
         A circuit whose gate angles may be named angles (:meth:`Circuit.parameters`).
     observable : str or mapping or Observable
         The Pauli sum ``H`` (see :mod:`tnsim.queries.observables`).
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates of one contraction (default: as the
-        enclosing :func:`tnsim.run_options` block, else half the available memory).
+    dtype : numpy dtype, optional
+        Contraction dtype, complex128 or complex64 (default: the enclosing
+        :func:`tnsim.run_options` block's, else complex128).
+    memory_limit : int or str, optional
+        Bytes (or text such as ``"4GiB"``) for live intermediates of one
+        contraction (default: the block's, else half of the available memory).
 
     Attributes
     ----------
@@ -193,13 +200,13 @@ class EnergyLandscape:
         circuit: Circuit,
         observable,
         *,
-        dtype=np.complex128,
-        memory_limit: int | None = None,
+        dtype: DTypeLike | None = None,
+        memory_limit: MemoryLimit | None = None,
     ):
         check_circuit(circuit, bound=False)
         self.circuit = circuit
-        self.dtype = check_dtype(dtype)
-        self.memory_limit = memory_limit
+        self.options: QueryOptions = resolve_options(memory_limit, dtype=dtype)
+        self.dtype = self.options.dtype
         self.observable: Observable = parse_observable(observable, circuit.num_qubits)
         self.names: tuple[str, ...] = circuit.parameters()
         self._position = {n: k for k, n in enumerate(self.names)}
@@ -211,7 +218,7 @@ class EnergyLandscape:
         self.seconds_setup = 0.0
         self._rules_checked = False
         self._routes: dict[tuple, bool] = {}
-        self._plans: dict[tuple, object] = {}
+        self._plans: dict[tuple, _Program] = {}
         t0 = time.perf_counter()
         self._group_terms()
         self.seconds_setup = time.perf_counter() - t0
@@ -334,14 +341,18 @@ class EnergyLandscape:
 
     def _matrices(
         self, cls: _ConeClass, x: np.ndarray, variants: list[tuple[int, float]]
-    ) -> tuple[list[np.ndarray], list[bool]]:
-        """Per gate: its matrix, or a ``(B, d, d)`` stack over the batch where it varies."""
+    ) -> tuple[list[np.ndarray | None], list[bool]]:
+        """Per gate: its matrix, or a ``(B, d, d)`` stack over the batch where it varies.
+
+        ``None`` for a gate without named angles (its tensor is kept in ``cls.fixed``).
+        """
         angles = self._angles(cls, x)
         batch = 1 + len(variants)
         touched: dict[int, list[tuple[int, int, float]]] = {}
         for b, (s, shift) in enumerate(variants, start=1):
             touched.setdefault(cls.slots[s].op, []).append((b, cls.slots[s].slot, shift))
-        mats, batched = [], []
+        mats: list[np.ndarray | None] = []
+        batched: list[bool] = []
         for i, op in enumerate(cls.circuit.ops):
             if i in cls.fixed:
                 mats.append(None)
@@ -377,7 +388,7 @@ class EnergyLandscape:
         if cls.vector:
             return self._vector_values(cls, mats, batched, batch)
         tensors = [
-            cls.fixed[i] if i in cls.fixed else reduce_gate(m, cls.diagonal[i])
+            cls.fixed[i] if m is None else reduce_gate(m, cls.diagonal[i])
             for i, m in enumerate(mats)
         ]
         return self._network_values(cls, tensors, batched, batch)
@@ -423,22 +434,23 @@ class EnergyLandscape:
         if steps is not None:
             result = contract_tree(network.arrays, plan.tree, steps)
         else:
-            result = execute(network, plan.tree, plan.sliced, memory_limit=self.memory_limit)
+            limit = self.options.memory_limit
+            result = execute(network, plan.tree, plan.sliced, memory_limit=limit)
         return np.atleast_1d(result.value().real).astype(float)
 
-    def _program(self, network: TensorGraph, batch: int):
+    def _program(self, network: TensorGraph, batch: int) -> _Program:
         """The plan (with compiled steps for small unsliced ones), or a smaller chunk size.
 
         The chunk size scales the batch by the memory limit over greedy's peak
         (halving when the plan found still needs slicing).
         """
-        limit = slice_memory_limit(self.memory_limit)
+        limit = self.options.slice_limit
         if batch > 1:
             greedy = greedy_tree(network.indices, network.output, network.size)
             peak = greedy.cost(itemsize=network.dtype.itemsize).peak_bytes
             if peak > limit:
                 return max(1, min(batch // 2, batch * limit // peak))
-        plan = fit_plan(network, self.memory_limit)
+        plan = fit_plan(network, self.options)
         if plan.sliced and batch > 1:
             return (batch + 1) // 2
         direct = not plan.sliced and plan.flops <= DIRECT_FLOPS
@@ -447,7 +459,7 @@ class EnergyLandscape:
     def _vector_values(self, cls, mats, batched, batch: int) -> np.ndarray:
         """All variants as state vectors of the cone, in chunks that fit the memory limit."""
         m = cls.circuit.num_qubits
-        limit = slice_memory_limit(self.memory_limit)
+        limit = self.options.slice_limit
         per_state = 4 * (16 << m)
         chunk = max(1, min(batch, int(limit) // per_state))
         out = []

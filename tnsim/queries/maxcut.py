@@ -15,10 +15,10 @@ import time
 from dataclasses import dataclass
 
 import networkx as nx
-import numpy as np
 
 from tnsim.circuits.qaoa import maxcut_ansatz, qaoa_names
 from tnsim.errors import InputError
+from tnsim.execution.options import DTypeLike, MemoryLimit
 from tnsim.queries.landscape import EnergyLandscape
 from tnsim.queries.observables import Observable, PauliTerm
 from tnsim.queries.optimize import AngleOptimum, optimize_angles
@@ -221,8 +221,8 @@ def optimize_maxcut(
     method: str = "L-BFGS-B",
     max_evaluations: int = 500,
     progress: bool | None = None,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> MaxCutOptimum:
     """Maximize the expected cut of the depth-``p`` QAOA state on ``graph``, depth by depth.
 
@@ -258,7 +258,7 @@ def optimize_maxcut(
         raise InputError(f"p (QAOA layers) must be an integer >= 1, got {p!r}")
     depths: list[AngleOptimum] = []
     gammas, betas = linear_ramp(1)
-    g = None
+    g = nx.Graph()
     for depth in range(1, p + 1):
         circuit, g = maxcut_ansatz(graph, depth)
         if depth > 1:

@@ -23,7 +23,7 @@ from scipy.optimize import minimize
 
 from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
-from tnsim.execution.options import current_options
+from tnsim.execution.options import DTypeLike, MemoryLimit, current_options
 from tnsim.queries.landscape import EnergyLandscape, values_vector
 
 __all__ = ["GRADIENT_METHODS", "METHODS", "AngleOptimum", "Evaluation", "StartOutcome"]
@@ -211,8 +211,8 @@ def optimize_angles(
     max_evaluations: int = 500,
     tolerance: float | None = None,
     progress: bool | None = None,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> AngleOptimum:
     """Find the values of a circuit's named angles that minimize (or maximize) an energy.
 
@@ -245,10 +245,10 @@ def optimize_angles(
     progress : bool, optional
         Progress bar on stderr, one step per start (default: the
         :func:`tnsim.run_options` setting, else only on a terminal).
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates of one contraction.
+    dtype : numpy dtype, optional
+        Contraction dtype (default: the enclosing ``run_options`` block's, else complex128).
+    memory_limit : int or str, optional
+        Bytes (or text such as ``"4GiB"``) for live intermediates of one contraction.
 
     Returns
     -------
