@@ -13,7 +13,8 @@ Steps, each in its own process:
 3. ``benchmarks/crossover.py``: tnsim against the dense state vector.
 4. The other benchmark scripts, when present and committed (a script git does
    not track yet is work in progress and is skipped): ``planners.py``,
-   ``scaling.py``, ``queries.py``, ``time_model.py``, ``memory_fit.py`` (given
+   ``scaling.py``, ``queries.py``, ``time_model.py``, ``memory_fit.py``,
+   ``variational.py`` (given
    ``--quick`` in quick mode) and ``qasm_read.py``.
 """
 
@@ -35,6 +36,7 @@ OTHERS = {
     "time_model.py": ["--quick"],
     "qasm_read.py": ["--gates", "5000", "--repeats", "1"],
     "memory_fit.py": ["--quick"],
+    "variational.py": ["--quick"],
 }
 
 GRID_FULL = "4x4,5x5,6x6,7x7,8x8,9x9,10x10,11x11,12x12"

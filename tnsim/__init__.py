@@ -46,6 +46,8 @@ except PackageNotFoundError:  # running from a source tree that was never instal
 _PUBLIC = {
     "Circuit": "tnsim.circuits.circuit",
     "Operation": "tnsim.circuits.circuit",
+    "AngleExpr": "tnsim.circuits.parameters",
+    "angle": "tnsim.circuits.parameters",
     "read_qasm": "tnsim.circuits.qasm",
     "write_qasm": "tnsim.circuits.qasm",
     "Scaled": "tnsim.network.scaled",
@@ -72,6 +74,12 @@ _PUBLIC = {
     "forecast": "tnsim.queries.forecast",
     "ForecastReport": "tnsim.queries.forecast",
     "contract": "tnsim.queries.contract",
+    "energy_and_gradient": "tnsim.queries.gradients",
+    "EnergyLandscape": "tnsim.queries.landscape",
+    "optimize_angles": "tnsim.queries.optimize",
+    "AngleOptimum": "tnsim.queries.optimize",
+    "optimize_maxcut": "tnsim.queries.maxcut",
+    "MaxCutOptimum": "tnsim.queries.maxcut",
 }
 
 __all__ = [
@@ -102,6 +110,7 @@ def __dir__() -> list[str]:
 
 if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.circuits.circuit import Circuit, Operation
+    from tnsim.circuits.parameters import AngleExpr, angle
     from tnsim.circuits.qasm import read_qasm, write_qasm
     from tnsim.execution.options import ContractionRecord, RunOptions, run_options
     from tnsim.network.graph import TensorGraph
@@ -113,7 +122,11 @@ if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.queries.contract import contract
     from tnsim.queries.expectation import expectation, maxcut_energy
     from tnsim.queries.forecast import ForecastReport, forecast
+    from tnsim.queries.gradients import energy_and_gradient
+    from tnsim.queries.landscape import EnergyLandscape
     from tnsim.queries.marginals import marginal
+    from tnsim.queries.maxcut import MaxCutOptimum, optimize_maxcut
     from tnsim.queries.observables import Observable, PauliTerm, parse_observable
+    from tnsim.queries.optimize import AngleOptimum, optimize_angles
     from tnsim.queries.sampling import sample
     from tnsim.queries.xeb import XebResult, xeb

@@ -1,8 +1,11 @@
 """Stage 1 of the pipeline: circuits.
 
-Gates (:mod:`.gates`), the :class:`Circuit` model (:mod:`.circuit`),
-bitstrings (:mod:`.bits`), seeded circuit families (:mod:`.families`) and
-OpenQASM readers and writers (:mod:`.qasm`).  Nothing here knows about tensors.
+Gates (:mod:`.gates`), the :class:`Circuit` model (:mod:`.circuit`), named
+gate angles (:mod:`.parameters`) and the gates' parameter-shift rules
+(:mod:`.shifts`), bitstrings (:mod:`.bits`), seeded circuit families
+(:mod:`.families`), graphs for QAOA (:mod:`.graphs`) and the QAOA ansatz with
+named angles (:mod:`.qaoa`), OpenQASM readers and writers (:mod:`.qasm`).
+Nothing here knows about tensors.
 """
 
 from tnsim.circuits.circuit import Circuit, Operation

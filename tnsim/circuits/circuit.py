@@ -2,14 +2,16 @@
 
 from __future__ import annotations
 
+import math
 import numbers
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 
 from tnsim.circuits.gates import GATES, gate_matrix, is_unitary
+from tnsim.circuits.parameters import AngleExpr, as_angle
 from tnsim.errors import InputError
 
 __all__ = ["Circuit", "Operation"]
@@ -26,22 +28,47 @@ class Operation:
         custom unitary.
     qubits : tuple of int
         The qubits it acts on; the first is the most significant bit of the matrix.
-    params : tuple of float
-        Real parameters of a named gate.
+    params : tuple of float or AngleExpr
+        Real parameters of a named gate: numbers, or affine expressions of
+        named angles (:mod:`tnsim.circuits.parameters`) until the circuit is bound.
     custom : numpy.ndarray or None
         The matrix of a custom unitary (``None`` for named gates).
     """
 
     name: str
     qubits: tuple[int, ...]
-    params: tuple[float, ...] = ()
+    params: tuple[float | AngleExpr, ...] = ()
     custom: np.ndarray | None = field(default=None, compare=False, repr=False)
 
     def matrix(self) -> np.ndarray:
-        """Return the operation's unitary matrix (complex128)."""
+        """Return the operation's unitary matrix (complex128).
+
+        Raises
+        ------
+        InputError
+            If a parameter is still a named angle (bind the circuit first).
+        """
         if self.custom is not None:
             return self.custom
-        return gate_matrix(self.name, self.params)
+        if self.symbolic:
+            free = ", ".join(str(p) for p in self.params if isinstance(p, AngleExpr))
+            raise InputError(
+                f"gate '{self.name}' on qubits {self.qubits} has the unbound angle(s) {free}; "
+                "give numbers with circuit.bind({name: value, ...})"
+            )
+        return gate_matrix(self.name, cast("tuple[float, ...]", self.params))
+
+    @property
+    def symbolic(self) -> bool:
+        """Whether a parameter is a named angle (an :class:`AngleExpr`)."""
+        return any(isinstance(p, AngleExpr) for p in self.params)
+
+    def bound(self, values: Mapping[str, float]) -> Operation:
+        """Return the operation with every named angle replaced by its value in ``values``."""
+        if not self.symbolic:
+            return self
+        params = tuple(p.value(values) if isinstance(p, AngleExpr) else p for p in self.params)
+        return Operation(self.name, self.qubits, params, self.custom)
 
     @property
     def diagonal(self) -> bool:
@@ -66,7 +93,9 @@ def _builder(name: str) -> Callable[..., Circuit]:
     method.__name__ = name
     params = "".join(f"p{i}, " for i in range(spec.num_params))
     qubits = ", ".join(f"q{i}" for i in range(spec.num_qubits))
-    method.__doc__ = f"Append ``{name}``: call as ``circuit.{name}({params}{qubits})``."
+    method.__doc__ = f"Append ``{name}``: call as ``circuit.{name}({params}{qubits})``." + (
+        "  Angles may be numbers or named angles (text or AngleExpr)." if params else ""
+    )
     return method
 
 
@@ -75,7 +104,9 @@ class Circuit:
 
     Every gate of :data:`tnsim.circuits.gates.GATES` has a builder method taking the
     gate's parameters first, then its qubits; builders return the circuit so
-    calls chain.
+    calls chain.  A parameter may be a number or a named angle: a name or an
+    affine expression of names (``"theta"``, ``"2*gamma1"``, ``"-0.5*beta + 0.1"``,
+    see :mod:`tnsim.circuits.parameters`); :meth:`bind` gives the numeric circuit.
 
     Parameters
     ----------
@@ -89,6 +120,11 @@ class Circuit:
     (3, 3)
     >>> c.rz(0.5, 2).ops[-1]
     Operation(name='rz', qubits=(2,), params=(0.5,))
+    >>> v = Circuit(2).rx("theta", 0).rzz("2*gamma", 0, 1)
+    >>> v.parameters()
+    ('gamma', 'theta')
+    >>> v.bind({"theta": 0.1, "gamma": 0.2}).ops[1]
+    Operation(name='rzz', qubits=(0, 1), params=(0.4,))
     """
 
     def __init__(self, num_qubits: int):
@@ -121,14 +157,18 @@ class Circuit:
             raise InputError(f"gate '{name}' repeats a qubit: {qs}")
         return tuple(int(q) for q in qs)
 
-    def append(self, name: str, qubits: Sequence[int], params: Sequence[float] = ()) -> Circuit:
-        """Append the named gate on ``qubits`` with real ``params``; return ``self``.
+    def append(self, name: str, qubits: Sequence[int], params: Sequence = ()) -> Circuit:
+        """Append the named gate on ``qubits`` with ``params``; return ``self``.
+
+        Each parameter is a finite real number or a named angle (an
+        :class:`~tnsim.circuits.parameters.AngleExpr` or its text).
 
         Raises
         ------
         InputError
             Unknown gate, wrong qubit or parameter count, qubit out of range,
-            or a parameter that is not a finite real number.
+            or a parameter that is neither a finite real number nor an affine
+            expression of names.
         """
         spec = GATES.get(name)
         if spec is None:
@@ -137,11 +177,71 @@ class Circuit:
         ps = tuple(params)
         if len(ps) != spec.num_params:
             raise InputError(f"gate '{name}' takes {spec.num_params} parameter(s), got {len(ps)}")
+        values = []
         for p in ps:
-            if isinstance(p, bool) or not isinstance(p, numbers.Real) or not np.isfinite(p):
-                raise InputError(f"gate '{name}': parameter {p!r} is not a finite real number")
-        self.ops.append(Operation(name, qs, tuple(float(p) for p in ps)))
+            if isinstance(p, (str, AngleExpr)):
+                try:
+                    values.append(as_angle(p))
+                except InputError as exc:
+                    raise InputError(f"gate '{name}': {exc}") from None
+            elif isinstance(p, bool) or not isinstance(p, numbers.Real) or not math.isfinite(p):
+                raise InputError(
+                    f"gate '{name}': parameter {p!r} is not a finite real number or a named angle"
+                )
+            else:
+                values.append(float(p))
+        self.ops.append(Operation(name, qs, tuple(values)))
         return self
+
+    def parameters(self) -> tuple[str, ...]:
+        """The names of the circuit's named angles, sorted (empty for a numeric circuit)."""
+        names: set[str] = set()
+        for op in self.ops:
+            for p in op.params:
+                if isinstance(p, AngleExpr):
+                    names.update(p.names)
+        return tuple(sorted(names))
+
+    def bind(self, values: Mapping[str, float]) -> Circuit:
+        """Return the numeric circuit: every named angle evaluated at ``values``.
+
+        Parameters
+        ----------
+        values : mapping of str to float
+            A finite real value for every name of :meth:`parameters` (and no others).
+
+        Raises
+        ------
+        InputError
+            A missing or unknown name, or a value that is not a finite real number.
+
+        Examples
+        --------
+        >>> c = Circuit(1).rx("2*t + 0.5", 0)
+        >>> c.bind({"t": 0.25}).ops[0].params
+        (1.0,)
+        """
+        if not isinstance(values, Mapping):
+            raise InputError(f"bind takes a mapping of parameter names to numbers, got {values!r}")
+        names = self.parameters()
+        missing = [n for n in names if n not in values]
+        unknown = sorted(set(values) - set(names))
+        if missing or unknown:
+            parts = [f"no value for {', '.join(missing)}"] if missing else []
+            parts += [f"unknown name(s) {', '.join(unknown)}"] if unknown else []
+            what = "; ".join(parts)
+            raise InputError(
+                f"bind: {what}; the circuit's parameters are: {', '.join(names) or 'none'}"
+            )
+        clean: dict[str, float] = {}
+        for n in names:
+            v = values[n]
+            if isinstance(v, bool) or not isinstance(v, numbers.Real) or not math.isfinite(v):
+                raise InputError(f"bind: value {v!r} of '{n}' is not a finite real number")
+            clean[n] = float(v)
+        c = self.copy()
+        c.ops = [op.bound(clean) for op in self.ops]
+        return c
 
     def unitary(self, matrix: np.ndarray, qubits: Sequence[int], name: str = "unitary") -> Circuit:
         """Append any k-qubit unitary; the first qubit is the matrix's most significant bit.

@@ -12,7 +12,7 @@ import argparse
 import sys
 from collections.abc import Sequence
 
-from tnsim.cli import bench, cost, demo, gen, queries
+from tnsim.cli import bench, cost, demo, gen, optimize, queries
 from tnsim.cli.common import BITS_HELP, CommandParser, options_from_args
 from tnsim.errors import TnsimError
 
@@ -27,7 +27,7 @@ def build_parser() -> argparse.ArgumentParser:
         f"tensor-network contraction. Bitstrings: {BITS_HELP}.",
     )
     sub = parser.add_subparsers(dest="command", required=True, parser_class=CommandParser)
-    for family in (queries, cost, gen, bench, demo):
+    for family in (queries, cost, gen, bench, demo, optimize):
         family.register(sub)
     return parser
 

@@ -32,6 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from tnsim.circuits.circuit import Circuit, Operation
+from tnsim.circuits.parameters import probe_values
 from tnsim.network.builders import gate_tensor
 
 __all__ = ["CircuitIndex", "canonical_cone", "cone_circuit", "index_circuit", "light_cone"]
@@ -58,7 +59,8 @@ class CircuitIndex:
     diagonal : list of tuple of bool
         ``diagonal[g][j]``: gate ``g`` never flips the bit of its ``j``-th qubit.
     signature : list of int
-        Equal for gates with equal name, parameters and matrix.
+        Equal for gates with equal name, parameters and matrix (for named angles:
+        equal expressions, so equal for every binding).
     symmetric : list of bool
         Two-qubit gates whose matrix is unchanged by swapping the qubits.
     on_qubit : list of list of int
@@ -89,11 +91,12 @@ def _gate_facts(op: Operation, table: dict) -> tuple[int, tuple[bool, ...], bool
     key = (op.name, op.params) if op.custom is None else (op.name, op.custom.tobytes())
     facts = table.get(key)
     if facts is None:
-        _, diag = gate_tensor(op)
-        sym = False
-        if len(op.qubits) == 2:
-            m = op.matrix()
-            sym = bool(np.allclose(_SWAP @ m @ _SWAP, m, atol=1e-12))
+        # A gate with named angles: facts that hold at two generic angles (probe_values).
+        probes = [op.bound(probe_values(k)) for k in (1, 2)] if op.symbolic else [op]
+        diag = tuple(all(f) for f in zip(*(gate_tensor(p)[1] for p in probes)))
+        sym = len(op.qubits) == 2 and all(
+            np.allclose(_SWAP @ p.matrix() @ _SWAP, p.matrix(), atol=1e-12) for p in probes
+        )
         facts = (len(table), diag, sym)
         table[key] = facts
     return facts

@@ -4,5 +4,8 @@ Each query composes the stages below it: amplitudes (:mod:`.amplitudes`),
 marginals (:mod:`.marginals`), expectation values (:mod:`.expectation`,
 observables in :mod:`.observables`), samples (:mod:`.sampling`,
 :mod:`.gatewise`), XEB (:mod:`.xeb`), forecasts (:mod:`.forecast`), any
-einsum (:mod:`.contract`) and contraction-cost sweeps (:mod:`.costsweep`).
+einsum (:mod:`.contract`), contraction-cost sweeps (:mod:`.costsweep`), and
+variational workloads: energies of circuits with named angles over many values
+(:mod:`.landscape`), their gradients (:mod:`.gradients`), angle optimization
+(:mod:`.optimize`) and QAOA MaxCut (:mod:`.maxcut`).
 """

@@ -16,8 +16,11 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
 
 
-def check_circuit(circuit: object) -> None:
+def check_circuit(circuit: object, *, bound: bool = True) -> None:
     """Refuse anything that is not a :class:`~tnsim.circuits.circuit.Circuit`.
+
+    With ``bound`` (the default), also refuse a circuit that still has named
+    angles: the message names them and says how to bind them.
 
     Examples
     --------
@@ -30,6 +33,14 @@ def check_circuit(circuit: object) -> None:
         raise InputError(
             f"expected a tnsim.Circuit, got {type(circuit).__name__}; build one with "
             "tnsim.Circuit(n) or read a file with tnsim.read_qasm(path)"
+        )
+    if bound and any(op.symbolic for op in circuit.ops):
+        names = circuit.parameters()
+        shown = ", ".join(names[:8]) + (f", ... ({len(names)} in all)" if len(names) > 8 else "")
+        raise InputError(
+            f"the circuit has unbound parameters ({shown}); give numbers with "
+            "circuit.bind({name: value, ...}), or use tnsim.energy_and_gradient / "
+            "tnsim.optimize_angles, which take the values"
         )
 
 

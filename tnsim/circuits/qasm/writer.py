@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from tnsim.circuits.circuit import Circuit, Operation
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm.header import EXTENSION_DEFINITIONS, QELIB1_GATES
 from tnsim.errors import InputError
 
@@ -21,10 +22,16 @@ def _format_op(index: int, op: Operation) -> str:
     if op.name not in QELIB1_GATES and op.name not in EXTENSION_DEFINITIONS:
         raise InputError(f"operation {index}: tnsim cannot write gate '{op.name}' as OpenQASM")
     params = ""
-    if op.params:
-        if not all(math.isfinite(p) for p in op.params):
+    if op.symbolic:
+        raise InputError(
+            f"operation {index} ('{op.name}' on qubits {op.qubits}) has a named angle; "
+            "OpenQASM 2.0 has no named parameters: write circuit.bind({name: value, ...})"
+        )
+    values = [p for p in op.params if not isinstance(p, AngleExpr)]
+    if values:
+        if not all(math.isfinite(p) for p in values):
             raise InputError(f"operation {index} ('{op.name}') has a non-finite parameter")
-        params = "(" + ", ".join(repr(float(p)) for p in op.params) + ")"
+        params = "(" + ", ".join(repr(float(p)) for p in values) + ")"
     return f"{name}{params} " + ", ".join(f"q[{q}]" for q in op.qubits) + ";"
 
 
