@@ -500,7 +500,7 @@ def test_same_seed_and_trial_budget_give_the_same_sliced_plan(monkeypatch):
     from tnsim.circuits.families import grid_circuit
     from tnsim.network.builders import amplitude_network
     from tnsim.network.simplify import absorb_small
-    from tnsim.plan import reoptimize as reopt_module
+    from tnsim.plan import clock
 
     net = absorb_small(amplitude_network(grid_circuit(6, 6, 8, seed=0), "0" * 36))
     limit = make_plan(net, max_trials=6).peak_bytes // 8
@@ -508,9 +508,7 @@ def test_same_seed_and_trial_budget_give_the_same_sliced_plan(monkeypatch):
     for slow in (False, True):
         plan_module._PLAN_CACHE.clear()
         if slow:  # every clock reading 10 s later than the last: any time limit would bind
-            monkeypatch.setattr(
-                reopt_module.time, "perf_counter", itertools.count(0.0, 10.0).__next__
-            )
+            monkeypatch.setattr(clock, "now", itertools.count(0.0, 10.0).__next__)
         plans.append(make_plan(net, max_trials=6, memory_limit=limit, seed=3))
         monkeypatch.undo()
     assert plans[0].tree.path == plans[1].tree.path and plans[0].sliced == plans[1].sliced

@@ -143,8 +143,10 @@ class TreeProfile:
 
     def cost(self) -> tuple[float, float, float, float]:
         """``(flops, peak_bytes, written, largest)`` of one slice with :attr:`sliced` fixed."""
-        fig = self._figures(self._log[:, :, None], np.array([self._root_log]))
-        return tuple(float(f[0]) for f in fig)
+        flops, peak, written, largest = self._figures(
+            self._log[:, :, None], np.array([self._root_log])
+        )
+        return float(flops[0]), float(peak[0]), float(written[0]), float(largest[0])
 
     def cost_with(self, candidates: Sequence[int]) -> tuple[np.ndarray, ...]:
         """The figures of one slice with :attr:`sliced` plus each candidate label (one column each).
