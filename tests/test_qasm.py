@@ -26,6 +26,7 @@ from tnsim.circuits.qasm import (
     MAX_GATE_DEPTH,
     QELIB1_GATES,
 )
+from tnsim.circuits.qasm.header import ADDED_DEFINITIONS, ORIGINAL_QELIB1
 from tnsim.errors import InputError, QasmError
 
 HEADER = 'OPENQASM 2.0;\ninclude "qelib1.inc";\n'
@@ -680,3 +681,104 @@ def test_fast_path_is_used_and_agrees_on_a_long_program(monkeypatch, monkeypatch
         general = read_qasm(text).ops
     assert fast == general and len(fast) == 600
     assert sum(taken) == 600  # every gate statement went by the fast path
+
+
+# --- measure statements, the classical-bit order, and the original-library writer ---
+
+
+def test_measure_records_the_classical_bit_of_each_qubit():
+    text = (
+        HEADER + "qreg q[3];\ncreg a[2];\ncreg b[2];\n"
+        "measure q[2] -> a[0];\nmeasure q[0] -> b[1];\nmeasure q[1] -> a[1];\n"
+    )
+    # Classical bits are numbered across the cregs in declaration order: b[1] is bit 3.
+    assert read_qasm(text).measurements == {0: 2, 3: 0, 1: 1}
+
+
+def test_register_measure_pairs_bits_in_order_and_later_ones_replace():
+    text = HEADER + "qreg q[2];\nqreg r[2];\ncreg c[2];\nmeasure r -> c;\nmeasure q[0] -> c[1];\n"
+    assert read_qasm(text).measurements == {0: 2, 1: 0}
+
+
+def test_writer_keeps_measurements():
+    c = Circuit(3).h(0).cx(0, 1).measure(2, 0).measure(0, 4)
+    back = read_qasm(write_qasm(c))
+    assert back.ops == c.ops
+    assert back.measurements == {0: 2, 4: 0}
+
+
+def test_writer_comments_follow_the_version_line():
+    text = write_qasm(Circuit(1).h(0), comments=["family ghz", "two\nlines"])
+    assert text.splitlines()[:4] == ["OPENQASM 2.0;", "// family ghz", "// two", "// lines"]
+    assert read_qasm(text).ops == Circuit(1).h(0).ops
+
+
+def _dense_unitary(circuit: Circuit) -> np.ndarray:
+    """Columns: the state of the circuit run on each basis input (numpy reference)."""
+    from tnsim.testing import dense_state
+
+    n = circuit.num_qubits
+    cols = []
+    for k in range(1 << n):
+        prep = Circuit(n)
+        for q in range(n):
+            if (k >> (n - 1 - q)) & 1:
+                prep.x(q)
+        prep.ops.extend(circuit.ops)
+        cols.append(dense_state(prep).reshape(-1))
+    return np.array(cols).T
+
+
+@pytest.mark.parametrize("name", sorted({**ADDED_DEFINITIONS, **EXTENSION_DEFINITIONS}))
+def test_each_written_definition_is_the_gate_exactly(name):
+    # The bodies call only gates of the original qelib1.inc (Cross, Bishop, Smolin,
+    # Gambetta, arXiv:1707.03429, 2017) or earlier definitions; renamed, they are read as
+    # user gates, expanded, and must give tnsim's matrix, global phase included.
+    spec = GATES[name]
+    params = [0.37, -1.1, 2.3][: spec.num_params]
+    defs = {**ADDED_DEFINITIONS, **EXTENSION_DEFINITIONS}
+    text = defs[name].replace(f"gate {name}", f"gate my_{name}", 1)
+    args = ", ".join(f"q[{i}]" for i in range(spec.num_qubits))
+    call = f"my_{name}({', '.join(map(repr, params))})" if params else f"my_{name}"
+    c = read_qasm(f"{HEADER}{text}\nqreg q[{spec.num_qubits}];\n{call} {args};\n")
+    np.testing.assert_allclose(_dense_unitary(c), GATES[name].matrix(params), atol=1e-12, rtol=0)
+
+
+def _all_gates_circuit() -> Circuit:
+    c = Circuit(3).sx(0).sxdg(1).p(0.2, 2).fsim(0.3, 0.2, 0, 1).crx(0.5, 1, 2).cry(0.1, 0, 2)
+    c.cswap(0, 1, 2).iswap(1, 2).u(0.1, 0.2, 0.3, 0).rzz(0.4, 0, 2).ryy(0.3, 1, 0)
+    return c.swap(0, 2).cp(0.7, 1, 0).rxx(0.2, 2, 1).h(1).ccx(0, 1, 2).measure(1, 0)
+
+
+def test_original_library_calls_only_original_gates_and_reads_back_the_same():
+    c = _all_gates_circuit()
+    text = write_qasm(c, library="original")
+    lines = text.splitlines()
+    defined = {line.split()[1].split("(")[0] for line in lines if line.startswith("gate ")}
+    main = text[text.index("qreg") :]
+    called = {
+        line.split()[0].split("(")[0]
+        for line in main.splitlines()[1:]
+        if line and not line.startswith(("creg", "measure"))
+    }
+    assert called <= set(ORIGINAL_QELIB1) | defined | {"U"}
+    body_calls = {
+        line.strip().split()[0].split("(")[0]
+        for line in text[: text.index("qreg")].splitlines()
+        if line.startswith("  ")
+    }
+    assert body_calls <= set(ORIGINAL_QELIB1) | defined
+    back = read_qasm(text)
+    assert back.ops == c.ops
+    assert back.measurements == c.measurements
+
+
+def test_a_changed_definition_of_a_qelib1_gate_is_still_refused():
+    text = ADDED_DEFINITIONS["rzz"].replace("rz(theta)", "rz(2*theta)")
+    with pytest.raises(QasmError, match=r"already defined by qelib1\.inc"):
+        read_qasm(f"{HEADER}{text}\nqreg q[2];\n")
+
+
+def test_unknown_library_is_refused():
+    with pytest.raises(InputError, match="library"):
+        write_qasm(Circuit(1).h(0), library="strict")

@@ -26,10 +26,13 @@ What the reader accepts
 * Parameter arithmetic: numbers, ``pi``, ``+ - * / ^`` (``^`` is a
   right-associative power, binding tighter than unary minus, so
   ``-2^2 == -4``), parentheses and ``sin cos tan exp ln sqrt``.
-* ``barrier`` and ``measure`` are checked and otherwise ignored: tnsim computes
-  the state before measurement, so a gate on a qubit that was already
-  measured is refused.  ``reset``, ``if`` and ``opaque`` are refused: tnsim
-  simulates unitary circuits only.  OpenQASM 2.0 has no block comments.
+* ``barrier`` is checked and otherwise ignored.  ``measure`` records which
+  qubit each classical bit reads (:attr:`Circuit.measurements`; classical
+  bits numbered across the ``creg`` declarations in their order), which gives
+  the classical-bit order of bitstrings; tnsim computes the state before
+  measurement, so a gate on a qubit that was already measured is refused.
+  ``reset``, ``if`` and ``opaque`` are refused: tnsim simulates unitary
+  circuits only.  OpenQASM 2.0 has no block comments.
 
 Every problem raises :class:`tnsim.errors.QasmError` with ``file:line:column``
 (1-based) of the offending token.  Expansion is counted before it happens: a

@@ -12,10 +12,16 @@ from dataclasses import dataclass
 
 from tnsim.circuits.gates import GATES
 from tnsim.circuits.qasm.arith import Code, evaluate
-from tnsim.circuits.qasm.header import BUILTIN_GATES, EXTENSION_DEFINITIONS, QELIB1_GATES
+from tnsim.circuits.qasm.header import (
+    ADDED_DEFINITIONS,
+    BUILTIN_GATES,
+    EXTENSION_DEFINITIONS,
+    QELIB1_GATES,
+)
 from tnsim.circuits.qasm.lexer import canonical
 
 __all__ = [
+    "ADDED_TOKENS",
     "BUILTINS",
     "EXTENSION_TOKENS",
     "MAX_GATE_DEPTH",
@@ -68,6 +74,9 @@ BUILTINS = {q: _native(q, t, "the OpenQASM 2.0 language") for q, t in BUILTIN_GA
 QELIB1 = {q: _native(q, t, "qelib1.inc") for q, t in QELIB1_GATES.items()}
 EXTENSION_TOKENS = {name: canonical(text) for name, text in EXTENSION_DEFINITIONS.items()}
 """The tokens of each extension definition, to recognise it when read back."""
+ADDED_TOKENS = {name: canonical(text) for name, text in ADDED_DEFINITIONS.items()}
+"""The tokens of each definition of a gate the original qelib1.inc lacks (written by
+``write_qasm(..., library="original")``): read back as the qelib1.inc gate itself."""
 
 
 def expand(gate: Gate, params: tuple[float, ...], qubits: tuple[int, ...], out: list) -> None:

@@ -4,7 +4,14 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from tnsim.circuits.qasm.definitions import EXTENSION_TOKENS, MAX_GATE_DEPTH, SIZE_CAP, Call, Gate
+from tnsim.circuits.qasm.definitions import (
+    ADDED_TOKENS,
+    EXTENSION_TOKENS,
+    MAX_GATE_DEPTH,
+    SIZE_CAP,
+    Call,
+    Gate,
+)
 from tnsim.circuits.qasm.header import KEYWORDS, UNITARY_ONLY
 from tnsim.circuits.qasm.lexer import Token, describe
 from tnsim.circuits.qasm.parser import TokenParser
@@ -31,7 +38,7 @@ class DefinitionParser(TokenParser):
         self.recording = []
         self.advance()
         name = self.expect_id("a gate name")
-        self.check_gate_name(name)
+        existing = self.check_gate_name(name)
         params = self.id_list("(", ")", "parameter") if self.at("(") else []
         qargs = self.id_list(None, "{", "qubit argument")
         self.check_formals(params, qargs)
@@ -39,17 +46,33 @@ class DefinitionParser(TokenParser):
         self.expect("{", f"to open the body of gate '{name.text}'")
         body = self.gate_body(name, brace, params, qargs)
         tokens, self.recording = tuple(self.recording), None
+        if existing is not None:
+            if ADDED_TOKENS[name.text] != tokens:
+                raise self.already_defined(name, existing)
+            return  # tnsim's own definition of a qelib1.inc gate: keep the gate
         self.program.gates[name.text] = self.make_gate(name, len(params), len(qargs), body, tokens)
 
-    def check_gate_name(self, name: Token) -> None:
-        """Refuse a gate name that is reserved or already defined."""
+    def check_gate_name(self, name: Token) -> Gate | None:
+        """Refuse a gate name that is reserved or already defined.
+
+        A qelib1.inc gate that the original library lacks may be defined again
+        with tnsim's exact text (:data:`~tnsim.circuits.qasm.header.ADDED_DEFINITIONS`);
+        that gate is returned so the caller can compare the body.
+        """
         self.new_name(name, "gate")
         existing = self.program.gates.get(name.text)
-        if existing is not None:
-            raise self.error(
-                f"gate '{name.text}' is already defined by {existing.origin}; choose another name",
-                name,
-            )
+        if existing is None:
+            return None
+        if existing.origin == "qelib1.inc" and name.text in ADDED_TOKENS:
+            return existing
+        raise self.already_defined(name, existing)
+
+    def already_defined(self, name: Token, existing: Gate) -> QasmError:
+        """The error for a second definition of ``name``."""
+        return self.error(
+            f"gate '{name.text}' is already defined by {existing.origin}; choose another name",
+            name,
+        )
 
     def id_list(self, opener: str | None, closer: str, what: str) -> list[Token]:
         """Parse a comma-separated list of identifiers between ``opener`` and ``closer``."""

@@ -27,6 +27,9 @@ class Program:
         self.gates: dict[str, Gate] = {}
         self.qregs: dict[str, tuple[int, int]] = {}  # name -> (offset, size)
         self.cregs: dict[str, int] = {}
+        self.clbit_offsets: dict[str, int] = {}  # creg name -> its first global classical bit
+        self.num_clbits = 0
+        self.measurements: dict[int, int] = {}  # global classical bit -> qubit read into it
         self.num_qubits = 0
         self.ops: list[Operation] = []
         self.op_count = 0
@@ -68,4 +71,6 @@ class Program:
         """The circuit read (every operation was validated while parsing)."""
         circuit = Circuit(self.num_qubits)
         circuit.ops.extend(self.ops)
+        for clbit, qubit in self.measurements.items():
+            circuit.measure(qubit, clbit)
         return circuit

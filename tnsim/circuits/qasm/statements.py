@@ -34,6 +34,8 @@ class StatementParser(DefinitionParser):
             self.program.num_qubits += size
         else:
             self.program.cregs[name.text] = size
+            self.program.clbit_offsets[name.text] = self.program.num_clbits
+            self.program.num_clbits += size
 
     def application(self) -> None:
         """Parse one gate application and append its expansion to the program."""
@@ -143,7 +145,12 @@ class StatementParser(DefinitionParser):
         self.expect(";", "after the barrier")
 
     def measure(self) -> None:
-        """Parse a ``measure`` statement."""
+        """Parse a ``measure`` statement and record which qubit each classical bit reads.
+
+        Classical bits are numbered across the ``creg`` declarations in their
+        order (after ``creg a[2]; creg b[3];`` bit ``b[0]`` is classical bit 2);
+        a later measurement into the same bit replaces an earlier one.
+        """
         self.advance()
         qarg = self.argument(quantum=True)
         self.expect("->", "between the measured qubits and the classical bits")
@@ -160,3 +167,7 @@ class StatementParser(DefinitionParser):
             self.program.measured_regs.add(qarg.token.text)
         else:
             self.program.measured.add(qarg.indices[0])
+        # Classical bits are numbered across the cregs in declaration order.
+        base = self.program.clbit_offsets[carg.token.text]
+        for qubit, bit in zip(qarg.indices, carg.indices):
+            self.program.measurements[base + bit] = qubit
