@@ -59,3 +59,54 @@ def test_xeb_input_errors():
         xeb(c, ["000", "111"])
     with pytest.raises(InputError, match="shape"):
         xeb(c, np.zeros((3, 5), dtype=np.uint8))
+
+
+def test_counts_weight_samples_like_repeated_lines():
+    rows = sample(CIRCUIT, 400, seed=9)  # 400 draws from 4,096 outcomes: some repeat
+    uniq, counts = np.unique(rows, axis=0, return_counts=True)
+    assert len(uniq) < 400
+    weighted = xeb(CIRCUIT, uniq, counts=counts)
+    plain = xeb(CIRCUIT, rows)
+    assert weighted.num_samples == plain.num_samples == 400
+    assert weighted.fidelity == pytest.approx(plain.fidelity, rel=1e-12, abs=1e-12)
+    assert weighted.standard_error == pytest.approx(plain.standard_error, rel=1e-10)
+    repeated = xeb(CIRCUIT, rows[:2], counts=[5, 0])
+    assert repeated.num_samples == 5
+    assert repeated.standard_error == 0.0
+
+
+def test_log_form_matches_exact_decimal_arithmetic_where_floats_overflow():
+    # A shallow 2,000-qubit circuit: its own samples have 2^n p(x) ~ 10^(hundreds) and the
+    # squares in the standard deviation overflow float64.  Reference: the same mean and
+    # sample standard deviation in Python's decimal arithmetic (28+ digits, no overflow).
+    import decimal
+
+    from tnsim.queries.xeb import log2_scaled_probabilities
+
+    c = brickwork(2000, 2, seed=3)
+    rows = sample(c, 6, seed=2)
+    with np.errstate(all="raise"):
+        r = xeb(c, rows)
+        logs = log2_scaled_probabilities(c, rows)
+    ctx = decimal.Context(prec=40, Emax=10**6, Emin=-(10**6))
+    vals = [ctx.power(decimal.Decimal(2), decimal.Decimal(repr(float(v)))) for v in logs]
+    m = len(vals)
+    mean = sum(vals, decimal.Decimal(0)) / m
+    var = sum(((v - mean) ** 2 for v in vals), decimal.Decimal(0)) / (m - 1)
+    se = ctx.sqrt(var / m)
+    assert logs.max() > 1024 / 2  # squares overflow float64
+    assert r.log10_mean == pytest.approx(float(mean.log10()), abs=1e-9)
+    assert r.log10_standard_error == pytest.approx(float(se.log10()), abs=1e-9)
+    assert r.overflows or np.isfinite(r.fidelity)
+
+
+def test_zero_probability_samples_and_bad_counts():
+    c = Circuit(2).h(0).cx(0, 1)
+    r = xeb(c, ["01", "10"])
+    assert r.fidelity == -1.0 and r.log10_mean == -np.inf
+    with pytest.raises(InputError, match="counts"):
+        xeb(c, ["00", "11"], counts=[1])
+    with pytest.raises(InputError, match="non-negative"):
+        xeb(c, ["00", "11"], counts=[3, -1])
+    with pytest.raises(InputError, match="at least 2"):
+        xeb(c, ["00", "11"], counts=[1, 0])
