@@ -76,3 +76,18 @@ def test_text_round_trip(terms):
     for a, b in zip(back.terms, obs.terms):
         assert a.paulis == b.paulis
         assert a.coefficient == pytest.approx(b.coefficient, rel=1e-5, abs=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("text", "match"),
+    [
+        ("0.5*", r"'\*' must be followed by a Pauli factor"),
+        ("Z١", r"'Z' must be followed by a qubit index"),  # Arabic-Indic digit one
+        ("X²", r"'X' must be followed by a qubit index"),
+        ("Z" + "1" * 5000, r"qubit index '1{20}'\.\.\. is too large"),
+    ],
+)
+def test_trailing_operators_non_ascii_digits_and_huge_indices_are_refused(text, match):
+    with pytest.raises(InputError, match=match) as info:
+        parse_observable(text)
+    assert len(str(info.value)) < 250  # the offending text is quoted short

@@ -66,17 +66,21 @@ class Observable:
         return " + ".join(str(t) for t in self.terms).replace("+ -", "- ")
 
 
+MAX_INDEX_DIGITS = 18
+"""Qubit indices have at most this many digits (ASCII only)."""
+
 _TOKEN = re.compile(
-    r"\s*(?:(?P<num>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)"
-    r"|(?P<pauli>[XYZxyz])(?P<qubit>\d+)"
-    r"|(?P<ident>[Ii]\d*)"
+    r"\s*(?:(?P<num>(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?)"
+    r"|(?P<pauli>[XYZxyz])(?P<qubit>[0-9]+)"
+    r"|(?P<ident>[Ii][0-9]*)"
     r"|(?P<sign>[+-])|(?P<star>\*)|(?P<bad>\S))"
 )
 
 
 def _error(text: str, col: int, what: str) -> InputError:
+    shown = repr(text) if len(text) <= 80 else repr(text[:77]) + "..."
     return InputError(
-        f"observable, column {col}: {what} in {text!r}; write terms like '0.5 Z0 Z1 - 1.2 X3 + 0.7'"
+        f"observable, column {col}: {what} in {shown}; write terms like '0.5 Z0 Z1 - 1.2 X3 + 0.7'"
     )
 
 
@@ -90,7 +94,10 @@ def _tokens(text: str) -> list[tuple[str, str, int]]:
         kind = group if group != "qubit" else "pauli"
         col = m.start(kind) + 1
         if kind == "bad":
-            raise _error(text, col, f"unexpected character {m.group('bad')!r}")
+            bad = m.group("bad")
+            if bad in "XYZxyz":
+                raise _error(text, col, f"{bad!r} must be followed by a qubit index (digits 0-9)")
+            raise _error(text, col, f"unexpected character {bad!r}")
         value = m.group(kind) + (m.group("qubit") if kind == "pauli" else "")
         out.append((kind, value, col))
         pos = m.end()
@@ -119,6 +126,8 @@ def _parse_text(text: str) -> Observable:
             k += 1
             seen_any = True
             if k < len(toks) and toks[k][0] == "star":
+                if k + 1 >= len(toks) or toks[k + 1][0] not in ("pauli", "ident"):
+                    raise _error(text, toks[k][2], "'*' must be followed by a Pauli factor")
                 k += 1
         while k < len(toks) and toks[k][0] in ("pauli", "ident", "star"):
             kind, value, col = toks[k]
@@ -129,6 +138,8 @@ def _parse_text(text: str) -> Observable:
                 continue
             seen_any = True
             if kind == "pauli":
+                if len(value) > MAX_INDEX_DIGITS + 1:
+                    raise _error(text, col, f"qubit index {value[1:21]!r}... is too large")
                 q = int(value[1:])
                 if q in factors:
                     raise _error(text, col, f"qubit {q} appears twice in one term")
