@@ -12,11 +12,12 @@ steps above the ``E`` leaves are redone for each chunk of the batch.
 from __future__ import annotations
 
 import math
+import time
 from collections.abc import Callable, Sequence
 
 import numpy as np
 
-from tnsim.execution.options import QueryOptions, resolve_options
+from tnsim.execution.options import ContractionRecord, QueryOptions, resolve_options
 from tnsim.execution.slices import execute
 from tnsim.execution.steps import apply_step, compile_tree, count_flops, largest_intermediate
 from tnsim.execution.timemodel import plan_for_runs
@@ -192,7 +193,28 @@ class BatchContraction:
         return self._run_cached(leaves, count)
 
     def _run_cached(self, leaves: list[np.ndarray], count: int) -> Scaled:
+        began = time.perf_counter()
+        first = self.cached is None
         cached = self._contract_fixed() if self.cached is None else self.cached
+        result = self._contract_varying(cached, leaves, count)
+        if self.options.log is not None:  # run statistics (tnsim ... --stats)
+            fixed, per_run = self.flops()
+            self.options.log.append(
+                ContractionRecord(
+                    flops=per_run + (fixed if first else 0),
+                    num_slices=1,
+                    slices_run=1,
+                    peak_bytes=largest_intermediate(self.steps) * self.dtype.itemsize * 3,
+                    memory_limit=self.options.slice_limit,
+                    workers=1,
+                    seconds=time.perf_counter() - began,
+                    itemsize=self.dtype.itemsize,
+                )
+            )
+        return result
+
+    def _contract_varying(self, cached: dict, leaves: list[np.ndarray], count: int) -> Scaled:
+        """The steps a batch leaf feeds, on the cached values of the others."""
         tree = self.tree
         n = tree.num_leaves
         nodes = dict(cached)

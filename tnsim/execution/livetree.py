@@ -33,7 +33,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
-from tnsim.execution.steps import PairStep, apply_step, compile_tree, pair_step
+from tnsim.execution.steps import PairStep, apply_step, compile_tree, count_flops, pair_step
 from tnsim.network.scaled import SLACK, Scaled, normalize_owned
 from tnsim.plan.driver import PairTree
 
@@ -99,6 +99,8 @@ class LiveTree:
         self._env_steps: dict[int, PairStep] = {}
         dtype = np.result_type(*arrays)
         self._root_env = (np.ones(tree.size[batch_label], dtype=dtype), 0)
+        self.flops = 0
+        """Real FLOPs of the pairwise contractions this tree has run (for run statistics)."""
         self._load(arrays, known)
 
     def _load(self, arrays, known) -> None:
@@ -118,6 +120,7 @@ class LiveTree:
     ) -> LiveTree:
         """A LiveTree on the same tree (compiled steps shared) with new leaves, nothing cached."""
         other = copy.copy(self)
+        other.flops = 0
         other._load(arrays, known)
         return other
 
@@ -193,8 +196,8 @@ class LiveTree:
             self.fwd[u] = self._join(self.steps[u - self.num_leaves], self.fwd[x], self.fwd[y])
         return self.fwd[node]
 
-    @staticmethod
-    def _join(step: PairStep, a: tuple[np.ndarray, int], b: tuple[np.ndarray, int]):
+    def _join(self, step: PairStep, a: tuple[np.ndarray, int], b: tuple[np.ndarray, int]):
+        self.flops += count_flops((step,))
         c, e = normalize_owned(apply_step(step, a[0], b[0]), SLACK)
         return c, a[1] + b[1] + e
 

@@ -35,6 +35,7 @@ front, so the samples do not depend on how shots are batched either.
 
 from __future__ import annotations
 
+import time
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -43,7 +44,7 @@ import numpy as np
 from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.errors import ResourceLimitError
 from tnsim.execution.livetree import LiveTree
-from tnsim.execution.options import QueryOptions, resolve_options
+from tnsim.execution.options import ContractionRecord, QueryOptions, resolve_options
 from tnsim.execution.timemodel import plan_for_runs
 from tnsim.fitted import BATCH_ELEMENTS, LIVE_PASSES
 from tnsim.network.builders import amplitude_network, gate_tensor
@@ -249,8 +250,9 @@ def sample_by_gates(
         plan = plan_vectors_first(
             layer.network, bits, lambda net: plan_for_runs(net, LIVE_PASSES * shots)
         )
-        members = _members(layer, plan, min(chunk, shots), limit)
+        members, per_shot = _members(layer, plan, min(chunk, shots), limit)
         live, eye = None, _EYE.astype(layer.network.dtype)
+        began, flops = time.perf_counter(), 0
         for start in range(0, shots, members):
             rows = slice(start, min(start + members, shots))
             arrays = list(layer.network.arrays)
@@ -268,6 +270,20 @@ def sample_by_gates(
                 tree, batch = _batch_tree(layer, plan, rows.stop - rows.start)
                 live = LiveTree(tree, arrays, batch, live.values_of(fixed))
             _run_layer(steps, layer, live, out, rows, uniform[:, rows], t)
+            flops += live.flops
+        if opts.log is not None:  # run statistics (tnsim sample --stats)
+            opts.log.append(
+                ContractionRecord(
+                    flops=flops,
+                    num_slices=1,
+                    slices_run=1,
+                    peak_bytes=members * per_shot,
+                    memory_limit=limit,
+                    workers=1,
+                    seconds=time.perf_counter() - began,
+                    itemsize=layer.network.dtype.itemsize,
+                )
+            )
         t = end
     return out
 
@@ -305,8 +321,10 @@ def _varying(tree: PairTree, leaves: set[int]) -> list[bool]:
     return flags
 
 
-def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
+def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> tuple[int, int]:
     """Shots per batch (at most ``chunk``) whose values and environments fit ``limit`` bytes.
+
+    Also returns the bytes one shot needs.
 
     A shot keeps the value and the environment of every node above a bit
     vector; three copies of the largest such node are left for a step's work.
@@ -322,4 +340,4 @@ def _members(layer: LayerNetwork, plan: Plan, chunk: int, limit: int) -> int:
             f"{len(layer.qubits)} qubits, over the memory limit of {format_bytes(limit)}; "
             "raise the memory limit"
         )
-    return max(1, min(chunk, limit // need, BATCH_ELEMENTS // max(per_shot)))
+    return max(1, min(chunk, limit // need, BATCH_ELEMENTS // max(per_shot))), need
