@@ -20,7 +20,7 @@ Run::
 
 The same amplitude from the command line::
 
-    tnsim gen grid --param rows=10 --param cols=10 --param cycles=12 \\
+    tnsim gen grid --param rows=10 --param cols=10 --param depth=12 \\
         --param sequence=abcdcdab -o grid.qasm
     tnsim amp grid.qasm --bits 0000...0 --memory 2GiB --checkpoint ck/
 """

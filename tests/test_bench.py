@@ -83,7 +83,7 @@ def test_tnsim_planner_row_is_make_plans_plan():
     (row,) = run_bench(
         "grid",
         [{"rows": 3, "cols": 3}],
-        params={"cycles": 4},
+        params={"depth": 4},
         planners=["tnsim"],
         time_budget=0.2,
         seed=0,
@@ -96,7 +96,7 @@ def test_every_planner_gives_the_right_amplitude(planner):
     rows = run_bench(
         "grid",
         [{"rows": 3, "cols": 3}],
-        params={"cycles": 4},
+        params={"depth": 4},
         planners=[planner],
         execute=True,
         time_budget=0.2,
@@ -117,8 +117,8 @@ def test_flop_cap_skips_contraction():
 
 
 def test_parse_sizes_errors():
-    assert parse_sizes("20, 30", FAMILIES["qaoa"]) == [{"num_nodes": 20}, {"num_nodes": 30}]
-    for bad in ("4x", "4", "axb", "0x3", ""):
+    assert parse_sizes("20, 30", FAMILIES["qaoa"]) == [{"n": 20}, {"n": 30}]
+    for bad in ("4x", "4", "axb", "0x3", "", "²x3", "3x" + "9" * 5000):
         with pytest.raises(InputError):
             parse_sizes(bad, FAMILIES["grid"])
 
@@ -137,7 +137,7 @@ def test_bench_cli_writes_csv_json_png(tmp_path, capsys):
             "grid",
             "--sizes",
             "2x2,2x3",
-            "--cycles",
+            "--depth",
             "3",
             "--execute",
             "--time-budget",
@@ -146,10 +146,12 @@ def test_bench_cli_writes_csv_json_png(tmp_path, capsys):
             "--csv",
             paths["csv"],
             "--json",
+            "-o",
             paths["json"],
             "--plot",
             paths["png"],
-            "--double",
+            "--precision",
+            "double",
         ]
     )
     assert status == 0
@@ -167,7 +169,25 @@ def test_bench_cli_writes_csv_json_png(tmp_path, capsys):
     assert doc["matmul_flop_rate"] > 0
     with open(paths["png"], "rb") as fh:
         assert fh.read(8) == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948)
+    assert capsys.readouterr().out == ""  # --json -o FILE: nothing on standard output
+    table = ["bench", "--family", "ghz", "--sizes", "3", "--planners", "greedy", "--quiet"]
+    assert main(table) == 0
     assert "FLOPs" in capsys.readouterr().out
+    assert main([*table, "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["settings"]["precision"] == "double"
+
+
+def test_bench_former_flags_still_work_with_warnings(tmp_path, capsys):
+    out = str(tmp_path / "old.json")
+    argv = ["bench", "--family", "grid", "--sizes", "2x2", "--cycles", "2", "--planners"]
+    argv += ["greedy", "--double", "--json", out, "--quiet"]
+    assert main(argv) == 0
+    err = capsys.readouterr().err
+    for old in ("--cycles", "--double", "--json FILE"):
+        assert f"tnsim: warning: {old} is deprecated" in err
+    with open(out) as fh:
+        doc = json.load(fh)
+    assert doc["settings"]["params"] == {"depth": "2"} and doc["settings"]["dtype"] == "complex128"
 
 
 @pytest.mark.parametrize(
@@ -176,7 +196,11 @@ def test_bench_cli_writes_csv_json_png(tmp_path, capsys):
         ["bench", "--family", "nope", "--sizes", "4"],
         ["bench", "--family", "grid", "--sizes", "4x"],
         ["bench", "--family", "grid", "--sizes", "2x2", "--planners", "magic"],
-        ["bench", "--family", "ghz", "--sizes", "4", "--cycles", "3"],
+        ["bench", "--family", "ghz", "--sizes", "4", "--depth", "3"],
+        ["bench", "--family", "grid", "--sizes", "100000x100000"],
+        ["bench", "--family", "grid", "--sizes", "2x2", "--time-budget", "inf"],
+        ["gen", "grid", "--param", "rows=10**9"],
+        ["gen", "grid", "--param", "rows=1000000000"],
         ["bench", "--family", "grid", "--sizes", "2x2", "--param", "rows=3"],
         ["bench", "--family", "grid", "--sizes", "2x2", "--param", "colour=red"],
         ["bench", "--family", "grid", "--sizes", "2x2", "--flop-cap", "-1"],
@@ -198,7 +222,7 @@ def test_bad_arguments_exit_2_without_files(argv, tmp_path, capsys):
 def test_bench_refuses_missing_output_folder_before_writing(tmp_path):
     csv_path = str(tmp_path / "a.csv")
     plot = str(tmp_path / "no" / "such" / "p.png")
-    argv = ["bench", "--sizes", "2x2", "--cycles", "1", "--quiet", "--csv", csv_path]
+    argv = ["bench", "--sizes", "2x2", "--depth", "1", "--quiet", "--csv", csv_path]
     assert main([*argv, "--plot", plot]) == 2
     assert os.listdir(tmp_path) == []
 
@@ -215,7 +239,7 @@ def test_gen_writes_family_that_reads_back(tmp_path):
                 "--param",
                 "cols=2",
                 "--param",
-                "cycles=5",
+                "depth=5",
                 "--param",
                 "two_qubit=fsim",
                 "-o",

@@ -64,7 +64,7 @@ def test_checkpoint_of_another_circuit_is_refused(circuit_and_file, capsys, tmp_
     [
         (["--memory", "16"], "at least"),  # bytes: less than any 2x2 gate
         (["--memory", "lots"], "cannot read memory limit"),
-        (["--workers", "0"], "workers must be a positive integer"),
+        (["--workers", "0"], "--workers must be from 1"),
         (["--array-backend", "no_such_array_lib"], "not installed"),
     ],
 )

@@ -36,14 +36,14 @@ Z = np.diag([1.0, -1.0]).astype(complex)
 
 # Small instance of every registered family (must cover FAMILIES).
 SMALL = {
-    "grid": {"rows": 2, "cols": 3, "cycles": 5, "seed": 3},
+    "grid": {"rows": 2, "cols": 3, "depth": 5, "seed": 3},
     "brickwork": {"n": 5, "depth": 4, "seed": 3},
-    "qaoa": {"num_nodes": 6, "degree": 3, "p": 2, "seed": 3},
+    "qaoa": {"n": 6, "degree": 3, "depth": 2, "seed": 3},
     "iqp": {"n": 5, "seed": 3, "density": 0.6},
-    "ising": {"rows": 2, "cols": 2, "steps": 3},
+    "ising": {"rows": 2, "cols": 2, "depth": 3},
     "ghz": {"n": 5},
     "qft": {"n": 4},
-    "hardware-efficient": {"n": 4, "layers": 2, "seed": 3},
+    "hardware-efficient": {"n": 4, "depth": 2, "seed": 3},
 }
 
 
@@ -273,7 +273,7 @@ def test_brickwork_bricks_alternate():
 
 
 def test_qaoa_registry_layers():
-    c = make_family("qaoa", num_nodes=8, degree=3, p=3)
+    c = make_family("qaoa", n=8, degree=3, depth=3)
     direct, _ = qaoa_maxcut(None, (0.4,) * 3, (0.3,) * 3, num_nodes=8, degree=3, seed=0)
     assert _ops(c) == _ops(direct)
 
@@ -287,7 +287,12 @@ def test_qaoa_registry_layers():
         lambda: make_family("grid", two_qubit="cx"),
         lambda: grid_circuit(0, 3, 2),
         lambda: iqp(4, density=1.5),
-        lambda: make_family("qaoa", num_nodes=5, degree=3),
+        lambda: make_family("qaoa", n=5, degree=3),
+        lambda: make_family("grid", rows="١"),  # a non-ASCII digit
+        lambda: make_family("ghz", n="9" * 5000),
+        lambda: make_family("grid", rows=10**9),  # refused before building
+        lambda: make_family("qft", n=10**5),
+        lambda: make_family("grid", depth=3, cycles=3),  # a name and its old alias
         lambda: ising_trotter(2, 2, 1, dt=float("nan")),
     ],
 )
@@ -364,7 +369,39 @@ def test_layouts_2018_follow_the_published_recipe():
 
 
 def test_grid_sequence_is_a_family_parameter_and_is_checked():
-    c = make_family("grid", rows=3, cols=3, cycles=3, sequence="abcdcdab", seed=0)
+    c = make_family("grid", rows=3, cols=3, depth=3, sequence="abcdcdab", seed=0)
     assert _ops(c) == _ops(grid_circuit(3, 3, 3, seed=0, sequence="abcdcdab"))
     with pytest.raises(InputError, match="sequence"):
         grid_circuit(3, 3, 2, sequence="zigzag")
+
+
+def test_every_family_with_a_depth_calls_it_depth_and_size_n_or_rows_cols():
+    for fam in FAMILIES.values():
+        names = [p.name for p in fam.params]
+        assert fam.depth in ("", "depth")
+        assert fam.size in (("n",), ("rows", "cols"))
+        assert set(fam.size) <= set(names)
+
+
+@pytest.mark.parametrize(
+    ("name", "old", "new"),
+    [
+        ("grid", {"cycles": 3}, {"depth": 3}),
+        ("qaoa", {"num_nodes": 6, "p": 2}, {"n": 6, "depth": 2}),
+        ("ising", {"steps": 2}, {"depth": 2}),
+        ("hardware-efficient", {"layers": 2}, {"depth": 2}),
+    ],
+)
+def test_old_parameter_names_still_work_with_a_warning(name, old, new):
+    with pytest.warns(FutureWarning, match="is now called"):
+        before = make_family(name, **old)
+    assert _ops(before) == _ops(make_family(name, **new))
+
+
+def test_gate_bounds_hold_for_every_family():
+    from tnsim.circuits.families import _GATE_BOUNDS
+
+    for name, params in SMALL.items():
+        fam = FAMILIES[name]
+        values = {p.name: params.get(p.name, p.default) for p in fam.params}
+        assert len(make_family(name, **params)) <= _GATE_BOUNDS[name](values)

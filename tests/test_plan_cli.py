@@ -76,7 +76,7 @@ def test_matmul_rate_is_cached_and_tolerates_unwritable_dirs(tmp_path, monkeypat
     monkeypatch.setattr(rate_module, "_RATES", {})
     rate = rate_module.matmul_rate(n=64)
     stored = json.loads((tmp_path / "tnsim" / "matmul_rate.json").read_text())
-    assert list(stored.values()) == [rate]
+    assert [entry["rate"] for entry in stored.values()] == [rate]
     monkeypatch.setattr(rate_module, "_RATES", {})
     assert rate_module.matmul_rate(n=64) == rate  # read back from the file
     blocker = tmp_path / "file"
@@ -96,4 +96,9 @@ def test_forecast_of_a_sliced_plan(qasm_file):
 
     # Elements written: every intermediate of the profile, once per slice.
     assert cut.written == round(sum(2**w for w in cut.profile)) * cut.num_slices
-    assert cut.seconds == pytest.approx((cut.flops + WRITE_FLOPS * cut.written) / cut.flop_rate)
+    from tnsim.execution.timemodel import STEP_SECONDS
+
+    compute = (cut.flops + WRITE_FLOPS * cut.written) / cut.flop_rate
+    steps = (len(cut.profile)) * cut.num_slices  # one pairwise step per intermediate
+    assert cut.fixed_seconds == pytest.approx(STEP_SECONDS * steps)
+    assert cut.seconds == pytest.approx(compute + cut.fixed_seconds)

@@ -75,9 +75,9 @@ def test_amp_streams_a_bits_file(circuit_file, tmp_path, capsys):
     f = tmp_path / "b.txt"
     f.write_text("\n".join(rows) + "\n")
     assert main(["amp", str(path), "--bits-file", str(f)]) == 0
-    lines = capsys.readouterr().out.splitlines()[1:]
-    assert [ln.split()[0] for ln in lines] == rows
-    probs = [float(ln.split()[2]) for ln in lines]
+    lines = capsys.readouterr().out.splitlines()[2:]  # after the two heading lines
+    assert [ln.split()[1] for ln in lines] == rows
+    probs = [float(ln.split()[3]) for ln in lines]
     np.testing.assert_allclose(
         probs, [abs(psi[int(r, 2)]) ** 2 for r in rows], rtol=1e-6, atol=1e-15
     )
@@ -89,7 +89,7 @@ def test_amp_streams_a_bits_file(circuit_file, tmp_path, capsys):
         (["marginal", "{c}", "--qubits", "0,x"], "--qubits: item 2"),
         (["marginal", "{c}", "--qubits", "0,9"], "not an index"),
         (["expect", "{c}", "--observable", "Z0 Q1"], "column 4"),
-        (["expect", "{c}"], "exactly one of"),
+        (["expect", "{c}"], "give --observable TEXT"),
         (["sample", "{c}", "--shots", "-3", "-o", "{o}"], "--shots"),
         (["sample", "{missing}", "--shots", "3", "-o", "{o}"], "no such file"),
         (["xeb", "{c}", "{missing}"], "no such file"),

@@ -37,6 +37,7 @@ __all__ = [
     "from_qubit_order",
     "order_width",
     "parse_bit_records",
+    "parse_rows",
     "read_bit_records",
     "to_qubit_order",
 ]
@@ -163,8 +164,14 @@ class BitRecords:
         return int(self.counts.sum())
 
 
-def _bits_block(texts: list[str], width: int, where: list[str]) -> np.ndarray:
-    """Parse bitstrings of one width into a ``(m, width)`` array; errors name the line."""
+def parse_rows(texts: list[str], width: int, where: list[str]) -> np.ndarray:
+    """Parse bitstrings of one width into a ``(m, width)`` array; errors start with ``where[k]``.
+
+    Examples
+    --------
+    >>> parse_rows(["01", "11"], 2, ["", ""]).tolist()
+    [[0, 1], [1, 1]]
+    """
     for k, t in enumerate(texts):
         if len(t) != width:
             raise InputError(
@@ -217,7 +224,7 @@ def _parse_lines(text: str, width: int, name: str) -> BitRecords:
         counts.append(_count(rest, here) if sep else 1)
     if not bits:
         raise InputError(f"{name}: no bitstrings found; write one per line (or bits,count)")
-    rows = _bits_block(bits, width, where)
+    rows = parse_rows(bits, width, where)
     return BitRecords(rows, np.asarray(counts, dtype=np.int64))
 
 
@@ -256,7 +263,7 @@ def _parse_json(text: str, width: int, name: str, order: str | None) -> BitRecor
     if not pairs:
         raise InputError(f"{name}: no bitstrings found")
     where = [f"{name}: entry {k}: " for k in range(len(pairs))]
-    rows = _bits_block([b.strip() for b, _ in pairs], width, where)
+    rows = parse_rows([b.strip() for b, _ in pairs], width, where)
     return BitRecords(rows, np.asarray(counts, dtype=np.int64), stated)
 
 

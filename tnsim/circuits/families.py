@@ -14,8 +14,9 @@ works from it.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import networkx as nx
 import numpy as np
@@ -26,10 +27,12 @@ from tnsim.errors import InputError
 __all__ = [
     "FAMILIES",
     "GRID_SEQUENCES",
+    "MAX_GATES",
     "SQRT_W_U3",
     "Family",
     "Param",
     "brickwork",
+    "family_values",
     "ghz",
     "grid_circuit",
     "grid_edge_layer",
@@ -608,9 +611,14 @@ class Family:
     size : tuple of str
         Parameters a ``--sizes`` item sets: ``"4x5"`` sets two, ``"20"`` one.
     depth : str
-        Parameter ``--cycles`` sets in a benchmark sweep.
+        Parameter ``--depth`` sets in a benchmark sweep (every family with a
+        depth calls it ``depth``).
     summary : str
         One line for help texts.
+    aliases : dict of str to str
+        Former parameter names still accepted, with a warning, for one release
+        (``cycles``, ``p``, ``steps``, ``layers`` became ``depth``; ``num_nodes``
+        became ``n``).
     """
 
     name: str
@@ -619,13 +627,12 @@ class Family:
     size: tuple[str, ...]
     depth: str
     summary: str
+    aliases: dict[str, str] = field(default_factory=dict)
 
 
-def _qaoa(num_nodes: int, degree: int, p: int, gamma: float, beta: float, seed: int) -> Circuit:
-    p = _positive("p", p)
-    return qaoa_maxcut(
-        None, (gamma,) * p, (beta,) * p, num_nodes=num_nodes, degree=degree, seed=seed
-    )[0]
+def _qaoa(n: int, degree: int, depth: int, gamma: float, beta: float, seed: int) -> Circuit:
+    p = _positive("depth", depth)
+    return qaoa_maxcut(None, (gamma,) * p, (beta,) * p, num_nodes=n, degree=degree, seed=seed)[0]
 
 
 _SEED = Param("seed", int, 0, "seed of the random choices")
@@ -636,13 +643,13 @@ FAMILIES: dict[str, Family] = {
     for f in [
         Family(
             "grid",
-            lambda rows, cols, cycles, two_qubit, seed, sequence: grid_circuit(
-                rows, cols, cycles, two_qubit=two_qubit, seed=seed, sequence=sequence
+            lambda rows, cols, depth, two_qubit, seed, sequence: grid_circuit(
+                rows, cols, depth, two_qubit=two_qubit, seed=seed, sequence=sequence
             ),
             (
                 Param("rows", int, 4, "grid rows"),
                 Param("cols", int, 4, "grid columns"),
-                Param("cycles", int, 8, "cycles (single-qubit layer + one edge layer)"),
+                Param("depth", int, 8, "cycles (single-qubit layer + one edge layer)"),
                 Param("two_qubit", str, "cz", "two-qubit gate: cz or fsim"),
                 _SEED,
                 Param(
@@ -653,8 +660,9 @@ FAMILIES: dict[str, Family] = {
                 ),
             ),
             ("rows", "cols"),
-            "cycles",
+            "depth",
             "random circuit on a 2D grid (sx/ry/√W + cz or fsim on rotating edge layers)",
+            {"cycles": "depth"},
         ),
         Family(
             "brickwork",
@@ -668,16 +676,17 @@ FAMILIES: dict[str, Family] = {
             "qaoa",
             _qaoa,
             (
-                Param("num_nodes", int, 16, "nodes of the random regular graph (qubits)"),
+                Param("n", int, 16, "nodes of the random regular graph (qubits)"),
                 Param("degree", int, 3, "degree of the graph"),
-                Param("p", int, 1, "QAOA layers (same gamma and beta in each)"),
+                Param("depth", int, 1, "QAOA layers p (same gamma and beta in each)"),
                 Param("gamma", float, 0.4, "cost angle"),
                 Param("beta", float, 0.3, "mixer angle"),
                 _SEED,
             ),
-            ("num_nodes",),
-            "p",
+            ("n",),
+            "depth",
             "QAOA MaxCut on a random regular graph",
+            {"num_nodes": "n", "p": "depth"},
         ),
         Family(
             "iqp",
@@ -693,18 +702,19 @@ FAMILIES: dict[str, Family] = {
         ),
         Family(
             "ising",
-            ising_trotter,
+            lambda rows, cols, depth, dt, J, h: ising_trotter(rows, cols, depth, dt, J, h),
             (
                 Param("rows", int, 4, "lattice rows"),
                 Param("cols", int, 4, "lattice columns"),
-                Param("steps", int, 4, "Trotter steps"),
+                Param("depth", int, 4, "Trotter steps"),
                 Param("dt", float, 0.1, "time step"),
                 Param("J", float, 1.0, "coupling"),
                 Param("h", float, 1.0, "transverse field"),
             ),
             ("rows", "cols"),
-            "steps",
+            "depth",
             "Trotterized transverse-field Ising model on a lattice",
+            {"steps": "depth"},
         ),
         Family("ghz", ghz, (Param("n", int, 16, "qubits"),), ("n",), "", "GHZ state (h, cx chain)"),
         Family(
@@ -712,11 +722,12 @@ FAMILIES: dict[str, Family] = {
         ),
         Family(
             "hardware-efficient",
-            hardware_efficient,
-            (Param("n", int, 16, "qubits"), Param("layers", int, 4, "layers"), _SEED),
+            lambda n, depth, seed: hardware_efficient(n, depth, seed),
+            (Param("n", int, 16, "qubits"), Param("depth", int, 4, "layers"), _SEED),
             ("n",),
-            "layers",
+            "depth",
             "ry/rz rotation layers and cx ladders",
+            {"layers": "depth"},
         ),
     ]
 }
@@ -725,15 +736,35 @@ FAMILIES: dict[str, Family] = {
 """Every family by command-line name."""
 
 
+MAX_GATES = 10_000_000
+"""Most gates a family may be asked to build (the operation cap of
+:func:`tnsim.circuits.qasm.read_qasm`, so what ``tnsim gen`` writes can be read back)."""
+
+
+_GATE_BOUNDS: dict[str, Callable[[dict], int]] = {  # upper bounds of each family's gate count
+    "grid": lambda v: 2 * v["rows"] * v["cols"] * (v["depth"] + 1),
+    "brickwork": lambda v: 2 * v["n"] * v["depth"],
+    "qaoa": lambda v: v["n"] * (v["degree"] + 2) * (v["depth"] + 1),
+    "iqp": lambda v: v["n"] * v["n"] + 3 * v["n"],
+    "ising": lambda v: 3 * v["rows"] * v["cols"] * (v["depth"] + 1),
+    "ghz": lambda v: v["n"],
+    "qft": lambda v: v["n"] * v["n"],
+    "hardware-efficient": lambda v: 3 * v["n"] * (v["depth"] + 1),
+}
+
+
 def _convert(family: Family, param: Param, value) -> int | float | str:
     if not isinstance(value, str):
         return value
     try:
+        if param.kind is not str and not (value.isascii() and len(value.strip()) <= 24):
+            raise ValueError(value)  # digits 0-9 only, and no 4,000-digit sizes
         return param.kind(value)
     except ValueError:
         kind = "an integer" if param.kind is int else "a number"
+        shown = repr(value) if len(value) <= 40 else repr(value[:40]) + "..."
         raise InputError(
-            f"family '{family.name}': parameter {param.name}={value!r} is not {kind}"
+            f"family '{family.name}': parameter {param.name}={shown} is not {kind}"
         ) from None
 
 
@@ -741,25 +772,73 @@ def make_family(name: str, **params) -> Circuit:
     """Build a circuit of the named family; unset parameters take their defaults.
 
     String values are converted to the parameter's type (for the command line).
+    Former parameter names (:attr:`Family.aliases`) are accepted with a
+    ``FutureWarning``.
 
     Raises
     ------
     InputError
-        Unknown family or parameter, or a value of the wrong type.
+        Unknown family or parameter, a value of the wrong type, or sizes that
+        would build more than :data:`MAX_GATES` gates.
 
     Examples
     --------
     >>> make_family("ghz", n="5").num_qubits
     5
     """
+    values = family_values(name, **params)
+    return FAMILIES[name].build(**values)
+
+
+def family_values(name: str, **params) -> dict:
+    """Check a family's parameters without building it; return every value, converted.
+
+    Does all that :func:`make_family` checks (names, types, size), so a sweep can
+    refuse an oversized instance before building anything.
+
+    Examples
+    --------
+    >>> family_values("brickwork", n="8", depth=2)
+    {'n': 8, 'depth': 2, 'seed': 0}
+    """
     family = FAMILIES.get(name)
     if family is None:
         raise InputError(f"unknown family {name!r}; known families: {', '.join(FAMILIES)}")
+    params = dict(params)
     known = {p.name: p for p in family.params}
+    for old, new in family.aliases.items():
+        if old in params:
+            if new in params:
+                raise InputError(f"family '{name}': give {new} or its old name {old}, not both")
+            warnings.warn(
+                f"family '{name}': parameter {old} is now called {new}; the old name will be "
+                "removed in the next release",
+                FutureWarning,
+                stacklevel=3,
+            )
+            params[new] = params.pop(old)
     unknown = sorted(set(params) - set(known))
     if unknown:
         raise InputError(
             f"family '{name}' has no parameter {unknown[0]!r}; its parameters: {', '.join(known)}"
         )
     values = {p.name: _convert(family, p, params.get(p.name, p.default)) for p in family.params}
-    return family.build(**values)
+    _check_size(family, values)
+    return values
+
+
+def _check_size(family: Family, values: dict) -> None:
+    """Refuse a family instance whose gate count would exceed :data:`MAX_GATES`."""
+    bound_of = _GATE_BOUNDS.get(family.name)
+    if bound_of is None:
+        return
+    numbers = {k: v for k, v in values.items() if isinstance(v, int) and not isinstance(v, bool)}
+    if any(v < 0 for v in numbers.values()):
+        return  # the builder names the bad value
+    bound = bound_of(values)
+    if bound > MAX_GATES:
+        sizes = ", ".join(f"{k}={v:,}" for k, v in numbers.items() if k != "seed")
+        raise InputError(
+            f"family '{family.name}' with {sizes} would have up to {bound:.3g} gates, more than "
+            f"{MAX_GATES:,}; choose smaller sizes"
+        )

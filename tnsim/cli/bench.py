@@ -7,6 +7,7 @@ machine) and the cost plot (matplotlib, the ``plot`` extra).
 
 from __future__ import annotations
 
+import argparse
 import csv
 import io
 import json
@@ -14,23 +15,25 @@ import math
 import os
 from collections.abc import Sequence
 from dataclasses import asdict, fields
+from typing import TYPE_CHECKING
 
-import numpy as np
-
-from tnsim.circuits.families import FAMILIES, Family, make_family
+from tnsim.cli.common import (
+    OptionError,
+    add_output_arguments,
+    add_precision_argument,
+    dtype_of,
+    seconds_type,
+    seed_type,
+    warn,
+    write_output,
+)
 from tnsim.cli.gen import parse_params
 from tnsim.errors import InputError
-from tnsim.execution.rate import matmul_rate as measure_rate
 from tnsim.fileio import write_atomic
-from tnsim.queries.costsweep import (
-    PLANNERS,
-    BenchRecord,
-    crossing_size,
-    machine_info,
-    machine_memory,
-    parse_sizes,
-    run_bench,
-)
+
+if TYPE_CHECKING:
+    from tnsim.circuits.families import Family
+    from tnsim.queries.costsweep import BenchRecord
 
 __all__ = ["plot_records", "records_csv", "records_json"]
 
@@ -48,6 +51,8 @@ _UNITS = {
 
 def records_csv(records: Sequence[BenchRecord]) -> str:
     """Return the records as CSV text (header row first)."""
+    from tnsim.queries.costsweep import BenchRecord
+
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow([f.name for f in fields(BenchRecord)])
@@ -64,6 +69,8 @@ def _clean(value):
 
 def records_json(records: Sequence[BenchRecord], settings: dict, matmul_rate: float) -> str:
     """Return records, settings, units, the matmul rate and the machine as JSON text."""
+    from tnsim.queries.costsweep import machine_info
+
     doc = {
         "settings": settings,
         "units": _UNITS,
@@ -71,7 +78,7 @@ def records_json(records: Sequence[BenchRecord], settings: dict, matmul_rate: fl
         "matmul_flop_rate": matmul_rate,
         "records": [{k: _clean(v) for k, v in asdict(r).items()} for r in records],
     }
-    return json.dumps(doc, indent=1) + "\n"
+    return json.dumps(doc, indent=1, allow_nan=False) + "\n"
 
 
 def plot_records(
@@ -98,6 +105,8 @@ def plot_records(
         raise InputError(
             "--plot needs matplotlib; install it with: pip install 'tnsim[plot]'"
         ) from None
+    from tnsim.queries.costsweep import crossing_size
+
     fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 4.5))
     styles = [("o", "-"), ("s", "--"), ("^", ":"), ("D", "-.")]
     for k, planner in enumerate(dict.fromkeys(r.planner for r in records)):
@@ -150,7 +159,26 @@ def plot_records(
         plt.close(fig)
 
 
+def _legacy(args: argparse.Namespace) -> None:
+    """Accept the former spellings for one release, with a warning."""
+    if args.cycles is not None:
+        warn("--cycles is deprecated and will be removed; use --depth")
+        if args.depth is not None:
+            raise OptionError("give --depth or its old name --cycles, not both")
+        args.depth = args.cycles
+    if args.double:
+        warn("--double is deprecated and will be removed; use --precision double (the default)")
+        args.precision = "double"
+    if isinstance(args.json, str):
+        warn("--json FILE is deprecated and will be removed; use --json -o FILE")
+        if args.output:
+            raise OptionError("give --json -o FILE, not --json FILE and -o")
+        args.output, args.json = args.json, True
+
+
 def _check_args(args) -> tuple[Family, list[str], list[dict], dict]:
+    from tnsim.circuits.families import FAMILIES, family_values
+    from tnsim.queries.costsweep import PLANNERS, parse_sizes
 
     fam = FAMILIES.get(args.family)
     if fam is None:
@@ -158,23 +186,24 @@ def _check_args(args) -> tuple[Family, list[str], list[dict], dict]:
     planners = [p.strip() for p in args.planners.split(",") if p.strip()]
     bad = [p for p in planners if p not in PLANNERS]
     if bad or not planners:
-        raise InputError(f"--planners {args.planners!r}: choose from {', '.join(PLANNERS)}")
-    if not args.flop_cap > 0 or not args.time_budget > 0:
-        raise InputError("--flop-cap and --time-budget must be positive numbers")
+        raise InputError(f"--planners {args.planners[:60]!r}: choose from {', '.join(PLANNERS)}")
+    if not 0 < args.flop_cap < math.inf:
+        raise InputError("--flop-cap must be a finite positive number")
     params = parse_params(args.param)
-    if args.cycles is not None:
+    if args.depth is not None:
         if not fam.depth:
-            raise InputError(f"family '{fam.name}' has no depth parameter; drop --cycles")
-        if args.cycles < 0:
-            raise InputError(f"--cycles must be at least 0, got {args.cycles}")
-        params[fam.depth] = str(args.cycles)
+            raise InputError(f"family '{fam.name}' has no depth parameter; drop --depth")
+        params[fam.depth] = str(args.depth)
     clash = sorted(set(params) & set(fam.size))
     if clash:
         raise InputError(f"--param {clash[0]} is set by --sizes; drop it")
     sizes = parse_sizes(args.sizes, fam)
-    make_family(fam.name, **params, **sizes[0])  # unknown or mistyped parameters fail here
-    for option, path in (("--csv", args.csv), ("--json", args.json), ("--plot", args.plot)):
+    for size in sizes:  # unknown, mistyped or oversized parameters fail here, before any work
+        family_values(fam.name, **params, **size)
+    for option, path in (("--csv", args.csv), ("-o", args.output), ("--plot", args.plot)):
         folder = os.path.dirname(os.path.abspath(path)) if path else ""
+        if path and os.path.isdir(path):
+            raise OptionError(f"{option} {path}: is a folder; give a file name")
         if path and not (os.path.isdir(folder) and os.access(folder, os.W_OK)):
             raise InputError(f"{option} {path}: folder {folder} does not exist or is not writable")
     if args.plot:
@@ -208,12 +237,16 @@ def bench_command(args) -> int:
 
     from tqdm import tqdm
 
+    from tnsim.execution.rate import matmul_rate
+    from tnsim.queries.costsweep import machine_memory, run_bench
+
+    _legacy(args)
     fam, planners, sizes, params = _check_args(args)
-    dtype = np.complex128 if args.double else np.complex64
-    rate = measure_rate(dtype, n=768, refresh=True)
+    dtype = dtype_of(args)
+    rate = matmul_rate(dtype, n=768, refresh=True)
     with tqdm(
         total=len(sizes) * len(planners),
-        disable=args.quiet,
+        disable=args.quiet or args.json,
         file=sys.stderr,
         desc=f"bench {fam.name}",
         unit="plan",
@@ -230,11 +263,6 @@ def bench_command(args) -> int:
             dtype=dtype,
             progress=bar.update,
         )
-    print(_summary(records))
-    print(
-        f"FLOPs: real floating-point operations (complex multiply-add = 8); "
-        f"matmul rate here: {rate / 1e9:.1f} GFLOP/s ({np.dtype(dtype).name})"
-    )
     settings = {
         "family": fam.name,
         "sizes": args.sizes,
@@ -244,12 +272,23 @@ def bench_command(args) -> int:
         "flop_cap": args.flop_cap,
         "time_budget": args.time_budget,
         "seed": args.seed,
-        "dtype": np.dtype(dtype).name,
+        "precision": args.precision,
+        "dtype": dtype.name,
     }
+    if args.json:
+        write_output(records_json(records, settings, rate), args.output)
+    else:
+        text = (
+            _summary(records)
+            + "\n"
+            + (
+                f"FLOPs: real floating-point operations (complex multiply-add = 8); "
+                f"matmul rate here: {rate / 1e9:.1f} GFLOP/s ({dtype.name})\n"
+            )
+        )
+        write_output(text, args.output)
     if args.csv:
         write_atomic(args.csv, records_csv(records))
-    if args.json:
-        write_atomic(args.json, records_json(records, settings, rate))
     if args.plot:
         title = f"{fam.name} " + " ".join(f"{k}={v}" for k, v in params.items())
         plot_records(
@@ -260,18 +299,26 @@ def bench_command(args) -> int:
 
 def register(sub) -> None:
     """Add ``bench`` to a subparsers object."""
+    from tnsim.cli.common import count_type
+
     bench = sub.add_parser(
         "bench",
         help="sweep a circuit family: plan (and contract) one amplitude per size and planner",
         description="Sweep a circuit family over sizes; plan one amplitude of each instance "
         "with each planner, optionally contract it; record real FLOPs (complex "
-        "multiply-add = 8), width, slices, seconds and memory.",
+        "multiply-add = 8), width, slices, seconds and memory. The table (or --json) goes to "
+        "standard output or -o FILE; --csv and --plot write extra files.",
     )
     bench.add_argument("--family", default="grid", help="family name (default grid)")
     bench.add_argument(
         "--sizes", required=True, help="comma-separated sizes: RxC for grid/ising, N for the others"
     )
-    bench.add_argument("--cycles", type=int, help="the family's depth (cycles, layers, p, ...)")
+    bench.add_argument(
+        "--depth",
+        type=count_type("--depth", 0, 10**6),
+        help="the family's depth parameter (every family with one calls it depth)",
+    )
+    bench.add_argument("--cycles", type=count_type("--cycles", 0, 10**6), help=argparse.SUPPRESS)
     bench.add_argument(
         "--param", action="append", metavar="KEY=VALUE", help="other family parameter (repeatable)"
     )
@@ -289,16 +336,20 @@ def register(sub) -> None:
     )
     bench.add_argument(
         "--time-budget",
-        type=float,
+        type=seconds_type,
         default=2.0,
         help="seconds per instance for searching planners (default 2)",
     )
-    bench.add_argument("--double", action="store_true", help="complex128 (default complex64)")
-    bench.add_argument("--csv", metavar="FILE", help="write the records as CSV")
-    bench.add_argument("--json", metavar="FILE", help="write records, units and machine as JSON")
+    add_precision_argument(bench)
+    bench.add_argument("--double", action="store_true", help=argparse.SUPPRESS)
+    add_output_arguments(bench, legacy_json_file=True)
+    bench.add_argument("--csv", metavar="FILE", help="also write the records as CSV")
     bench.add_argument("--plot", metavar="FILE.png", help="plot cost against size (matplotlib)")
     bench.add_argument(
-        "--seed", type=int, default=0, help="seed of bitstring, planners (family: --param seed=N)"
+        "--seed",
+        type=seed_type,
+        default=0,
+        help="seed of bitstring, planners (family: --param seed=N)",
     )
     bench.add_argument("--quiet", action="store_true", help="no progress bar")
     bench.set_defaults(func=bench_command)

@@ -1,6 +1,9 @@
-"""The ``cost`` subcommand: plan an amplitude and print the forecast.
+"""The ``cost`` subcommand: forecast a query before running it.
 
-Nothing big is allocated.  Also the text form of a forecast report.
+One amplitude (the default), a batch of amplitudes, samples, a marginal or an
+expectation value is planned the way the query would plan it, under the same
+memory limit (:mod:`tnsim.queries.forecast`, :mod:`tnsim.queries.workload`);
+nothing big is allocated.  Also the text form of a forecast report.
 """
 
 from __future__ import annotations
@@ -12,54 +15,129 @@ import math
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
-import numpy as np
-
-from tnsim.fitted import WRITE_FLOPS
+from tnsim.cli.common import (
+    OptionError,
+    add_bit_order_argument,
+    add_limit_arguments,
+    add_output_arguments,
+    add_precision_argument,
+    count_type,
+    dtype_of,
+    load_circuit,
+    seconds_type,
+    seed_type,
+    write_output,
+)
+from tnsim.cli.inputs import gather_bits, observable_text, parse_qubit_list
 from tnsim.units import format_bytes
 
 if TYPE_CHECKING:
     from tnsim.queries.forecast import ForecastReport
+    from tnsim.queries.workload import QueryForecast
 
-__all__ = ["format_report", "register", "sparkline"]
+__all__ = ["format_query_forecast", "format_report", "register", "sparkline"]
 
-_BITS_HELP = "character i is qubit i (the leftmost character is qubit 0)"
+_UNITS = {
+    "flops": "real floating-point operations, complex multiply-add = 8",
+    "bytes": "bytes of intermediates of one slice (inputs not counted)",
+    "width": "log2 of the largest intermediate, in elements",
+    "profile": "log2 elements of each intermediate, in contraction order",
+    "seconds": "forecast: FLOPs plus a cost per element written at the measured matmul "
+    "rate, plus the fixed Python time per step (fixed_seconds)",
+}
+
+
+def _query_kind(args: argparse.Namespace) -> str:
+    kinds = [
+        name
+        for name, given in (
+            ("amplitudes", args.bits or args.bits_file),
+            ("samples", args.shots is not None),
+            ("marginal", args.qubits),
+            ("expectation", args.observable or args.observable_file),
+        )
+        if given
+    ]
+    if len(kinds) > 1:
+        raise OptionError(
+            f"give one query to forecast, not {' and '.join(kinds)}: --bits/--bits-file, "
+            "--shots, --qubits or --observable"
+        )
+    return kinds[0] if kinds else "amplitude"
 
 
 def _cmd_cost(args: argparse.Namespace) -> int:
-    from tnsim.circuits.bits import format_bits, parse_bits
-    from tnsim.cli.common import load_circuit
-    from tnsim.errors import InputError
-    from tnsim.queries.forecast import forecast
-    from tnsim.units import parse_memory
-
     circuit = load_circuit(args.circuit)
-    limit = None if args.memory is None else parse_memory(args.memory)
-    if args.time_budget is not None and not args.time_budget > 0:
-        raise InputError(
-            f"--time-budget must be a positive number of seconds, got {args.time_budget}"
+    kind = _query_kind(args)
+    dtype = dtype_of(args)
+    if kind == "amplitudes":
+        rows, _ = gather_bits(args, circuit)
+        if len(rows) == 1:
+            return _one_amplitude(args, circuit, rows[0], dtype)
+        from tnsim.queries.workload import forecast_amplitudes
+
+        report = forecast_amplitudes(circuit, rows, dtype=dtype, memory_limit=args.memory)
+    elif kind == "amplitude":
+        return _one_amplitude(args, circuit, None, dtype)
+    elif kind == "samples":
+        from tnsim.queries.workload import forecast_samples
+
+        report = forecast_samples(
+            circuit,
+            args.shots,
+            dtype=dtype,
+            memory_limit=args.memory,
+            method=args.method,
+            seed=args.seed,
         )
-    bits = "0" * circuit.num_qubits if args.bits is None else args.bits
-    bits = format_bits(parse_bits(bits, circuit.num_qubits))
+    elif kind == "marginal":
+        from tnsim.queries.workload import forecast_marginal
+
+        qubits = [q for text in args.qubits for q in parse_qubit_list(text)]
+        report = forecast_marginal(circuit, qubits, dtype=dtype, memory_limit=args.memory)
+    else:
+        from tnsim.queries.workload import forecast_expectation
+
+        text = observable_text(args)
+        report = forecast_expectation(circuit, text, dtype=dtype, memory_limit=args.memory)
+    if args.json:
+        data = report.to_dict()
+        data["units"] = {k: v for k, v in _UNITS.items() if k in ("flops", "bytes", "seconds")}
+        write_output(json.dumps(data, allow_nan=False) + "\n", args.output)
+    else:
+        write_output(format_query_forecast(report) + "\n", args.output)
+    return 0
+
+
+def _one_amplitude(args, circuit, row, dtype) -> int:
+    from tnsim.circuits.bits import format_bits
+    from tnsim.queries.forecast import forecast
+
+    bits = "0" * circuit.num_qubits if row is None else format_bits(row)
     report = forecast(
         circuit,
         bits,
-        memory_limit=limit,
+        memory_limit=args.memory,
         time_budget=args.time_budget,
         seed=args.seed,
         objective=args.objective,
+        dtype=dtype,
     )
     if args.json:
         data = report.to_dict()
-        data["units"] = {
-            "flops": "real floating-point operations, complex multiply-add = 8",
-            "bytes": f"{report.itemsize} bytes per element (complex128)",
-            "width": "log2 of the largest intermediate, in elements",
-            "profile": "log2 elements of each intermediate, in contraction order",
-        }
-        print(json.dumps(data))
+        data["query"] = "amplitude"
+        data["units"] = dict(_UNITS, bytes=f"{report.itemsize} bytes per element")
+        write_output(json.dumps(_finite(data), allow_nan=False) + "\n", args.output)
     else:
-        print(format_report(report))
+        write_output(format_report(report) + "\n", args.output)
     return 0
+
+
+def _finite(data: dict) -> dict:
+    """Non-finite floats (a log of zero FLOPs) as ``None`` for strict JSON."""
+    return {
+        k: (None if isinstance(v, float) and not math.isfinite(v) else v) for k, v in data.items()
+    }
 
 
 _BARS = " ▁▂▃▄▅▆▇█"
@@ -77,7 +155,7 @@ def sparkline(values: Sequence[float], width: int = 60) -> str:
         return ""
     vals = list(values)
     if len(vals) > width:
-        edges = np.linspace(0, len(vals), width + 1).astype(int)
+        edges = [k * len(vals) // width for k in range(width + 1)]
         vals = [max(vals[a:b]) for a, b in itertools.pairwise(edges) if b > a]
     lo, hi = min(vals), max(vals)
     span = hi - lo or 1.0
@@ -98,6 +176,7 @@ def _fmt_seconds(s: float) -> str:
 
 def format_report(r: ForecastReport) -> str:
     """The report as a readable table, with a profile of intermediate sizes."""
+    from tnsim.fitted import WRITE_FLOPS
 
     def lg(x: float) -> float:
         return math.log10(x) if x > 0 else float("-inf")
@@ -123,8 +202,9 @@ def format_report(r: ForecastReport) -> str:
         ("elements written", f"{r.written:.4g}  (log10 {lg(r.written):.2f})"),
         (
             "forecast",
-            f"{_fmt_seconds(r.seconds)} at {r.flop_rate / 1e9:.3g} GFLOP/s (matmul rate), "
-            f"{WRITE_FLOPS} FLOPs' time per element written",
+            f"{_fmt_seconds(r.seconds)}: FLOPs at {r.flop_rate / 1e9:.3g} GFLOP/s (matmul "
+            f"rate), {WRITE_FLOPS} FLOPs' time per element written, "
+            f"{_fmt_seconds(r.fixed_seconds)} fixed per-step time",
         ),
     ]
     if r.memory_limit is not None:
@@ -157,39 +237,90 @@ def format_report(r: ForecastReport) -> str:
     return "\n".join(lines)
 
 
+def format_query_forecast(r: QueryForecast) -> str:
+    """A forecast of a whole query as a readable table."""
+
+    def lg(x: float) -> str:
+        return f"  (log10 {math.log10(x):.2f})" if x > 0 else ""
+
+    rows = [
+        ("query", f"{r.query}: {r.route}"),
+        ("contractions", f"{r.contractions:,}" if r.contractions else "(measured)"),
+        ("FLOPs (real, all runs)", f"{r.flops:.4g}{lg(r.flops)}"),
+        ("elements written", f"{r.written:.4g}{lg(r.written)}" if r.written else "-"),
+        ("peak intermediates", f"{format_bytes(r.peak_bytes, 1)} per slice"),
+        ("memory limit", f"{format_bytes(r.memory_limit, 1)} per worker"),
+        ("slices", f"{r.num_slices} (most of one contraction)"),
+        (
+            "forecast",
+            f"{_fmt_seconds(r.seconds)} ({_fmt_seconds(r.compute_seconds)} at "
+            f"{r.flop_rate / 1e9:.3g} GFLOP/s matmul rate + {_fmt_seconds(r.fixed_seconds)} "
+            "fixed per-step time)"
+            if r.method == "time model"
+            else f"{_fmt_seconds(r.seconds)}",
+        ),
+        ("method", r.method),
+        ("planning", f"{r.planning_seconds:.2f} s"),
+    ]
+    key_w = max(len(k) for k, _ in rows)
+    return "\n".join(f"{k:<{key_w}}  {v}" for k, v in rows)
+
+
 def register(sub) -> None:
     """Add ``cost`` to a subparsers object."""
     cost = sub.add_parser(
         "cost",
-        help="plan one amplitude and forecast FLOPs, memory, slices and seconds",
-        description="Plan the amplitude <x|C|0...0> of a circuit and print its cost: real "
-        "FLOPs (complex multiply-add = 8), peak bytes of intermediates, width (log2 "
-        "elements), slices and their overhead, and a time forecast from this machine's "
-        "measured matrix-multiply rate.  Nothing big is allocated.  Bitstrings: "
-        f"{_BITS_HELP}.",
+        help="forecast FLOPs, memory, slices and seconds of a query before running it",
+        description="Plan a query the way it would run, under the same memory limit, and print "
+        "its cost: real FLOPs (complex multiply-add = 8), peak bytes of intermediates, slices, "
+        "and a time forecast from this machine's measured matrix-multiply rate plus the fixed "
+        "time per step. Default: one amplitude of the all-zeros bitstring; or a batch "
+        "(--bits, --bits-file), samples (--shots), a marginal (--qubits) or an expectation "
+        "value (--observable). Nothing big is allocated; sampling wide circuits is forecast "
+        "from two short pilot runs.",
     )
-    cost.add_argument("circuit", help="OpenQASM 2.0 file")
-    cost.add_argument(
-        "--bits", metavar="BITS", help=f"the bitstring x (default all zeros); {_BITS_HELP}"
+    cost.add_argument("circuit", help="OpenQASM 2.0 file, or - to read it from standard input")
+    what = cost.add_argument_group("the query (one of)")
+    what.add_argument(
+        "--bits", action="append", metavar="BITS", help="a bitstring (repeatable: a batch)"
     )
-    cost.add_argument(
-        "--memory",
-        metavar="SIZE",
-        help="memory limit for one slice's intermediates, e.g. 4GiB or 500MB",
+    what.add_argument("--bits-file", metavar="FILE", help="a file of bitstrings (as amp reads)")
+    what.add_argument(
+        "--shots", type=count_type("--shots", 1, 10**12), metavar="N", help="N samples"
     )
-    cost.add_argument(
+    what.add_argument(
+        "--method",
+        choices=("auto", "gates", "marginals"),
+        default="auto",
+        help="sampling method (as sample takes it)",
+    )
+    what.add_argument("--qubits", action="append", metavar="LIST", help="marginal of e.g. 0,3,5")
+    what.add_argument(
+        "--observable", action="append", metavar="TEXT", help="expectation value (repeatable)"
+    )
+    what.add_argument("--observable-file", metavar="FILE", help="observable terms, one per line")
+    plan = cost.add_argument_group("planning")
+    add_limit_arguments(plan)
+    plan.add_argument(
         "--time-budget",
-        type=float,
+        type=seconds_type,
         metavar="S",
-        help="seconds of planner search (default: automatic)",
+        help="seconds of planner search for one amplitude (default: automatic, as amp plans)",
     )
-    cost.add_argument("--seed", type=int, default=0, help="seed of the planner (default 0)")
-    cost.add_argument(
+    plan.add_argument(
+        "--seed",
+        type=seed_type,
+        default=0,
+        help="seed of the planner (and of the pilot samples), 0 or more (default 0)",
+    )
+    plan.add_argument(
         "--objective",
         choices=("runtime", "operations"),
         default="runtime",
-        help="what the planner minimises: a run-time model (FLOPs plus a cost per element "
-        "written; default) or FLOPs alone",
+        help="what the planner minimises for one amplitude: a run-time model (FLOPs plus a "
+        "cost per element written; default, as amp plans) or FLOPs alone",
     )
-    cost.add_argument("--json", action="store_true", help="machine-readable output")
+    add_precision_argument(cost)
+    add_bit_order_argument(cost)
+    add_output_arguments(cost)
     cost.set_defaults(func=_cmd_cost)

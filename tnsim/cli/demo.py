@@ -3,15 +3,12 @@
 from __future__ import annotations
 
 import time
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:
+    from tnsim.circuits.circuit import Circuit
 
-from tnsim.circuits.circuit import Circuit
-from tnsim.circuits.families import brickwork
-from tnsim.circuits.families import ghz as relay_chain
-from tnsim.queries.amplitudes import amplitude
-
-__all__ = ["brickwork", "relay_chain", "run_demo"]
+__all__ = ["run_demo"]
 
 
 def _line(bits: str, a, seconds: float) -> str:
@@ -23,7 +20,9 @@ def _line(bits: str, a, seconds: float) -> str:
     )
 
 
-def _show(circuit: Circuit, bitstrings: list[str], dtype=np.complex128) -> None:
+def _show(circuit: Circuit, bitstrings: list[str], dtype="complex128") -> None:
+    from tnsim.queries.amplitudes import amplitude
+
     for bits in bitstrings:
         t0 = time.perf_counter()
         a = amplitude(circuit, bits, dtype=dtype, scaled=True)
@@ -40,6 +39,11 @@ def run_demo(quick: bool = False) -> int:
     and last the scoring of a (simulated) chip's samples by cross-entropy.
     Bitstrings: character i is qubit i (leftmost is qubit 0).
     """
+    import numpy as np
+
+    from tnsim.circuits.families import brickwork
+    from tnsim.circuits.families import ghz as relay_chain
+
     n_chain = 500 if quick else 5000
     print(f"1. Relay chain of {n_chain} qubits (h, then cx down the line).")
     print(f"   A state vector would need 16 * 2^{n_chain} bytes; tnsim contracts only")
@@ -53,7 +57,7 @@ def run_demo(quick: bool = False) -> int:
     print("   a power-of-two scale, so log10|a| and the phase stay exact.")
     rng = np.random.default_rng(1)
     picks = ["0" * n] + ["".join(rng.choice(["0", "1"], n)) for _ in range(2)]
-    _show(circuit, picks, dtype=np.complex64)
+    _show(circuit, picks, dtype="complex64")
     _qaoa_step(quick)
     _xeb_step(quick)
     return 0
@@ -82,6 +86,8 @@ def _qaoa_step(quick: bool) -> None:
 
 def _xeb_step(quick: bool) -> None:
     """Step 4: score samples of a grid chip by linear cross-entropy (XEB)."""
+    import numpy as np
+
     from tnsim.circuits.families import grid_circuit
     from tnsim.queries.sampling import sample
     from tnsim.queries.xeb import xeb

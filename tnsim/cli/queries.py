@@ -1,82 +1,89 @@
 """The query subcommands: ``amp``, ``marginal``, ``expect``, ``sample`` and ``xeb``.
 
-Registered on the ``tnsim`` parser by :func:`register`.
+Registered on the ``tnsim`` parser by :func:`register`; every one takes the
+common query flags (:func:`tnsim.cli.common.add_query_arguments`).  Numbers
+are printed so that wide circuits lose nothing: amplitudes as exact decimal
+mantissa-exponent text with ``log10|a|`` and the phase, XEB scores in log form
+where they leave the range of a float (:mod:`tnsim.cli.numbers`).
 """
 
 from __future__ import annotations
 
 import argparse
+import itertools
 import json
-import os
+import math
 import sys
 from typing import Any
 
-import numpy as np
+from tnsim.cli.common import (
+    OptionError,
+    add_query_arguments,
+    check_array,
+    count_type,
+    dtype_of,
+    emit_stats,
+    load_circuit,
+    seed_type,
+    warn,
+    write_output,
+)
+from tnsim.cli.inputs import gather_bits, observable_text, parse_qubit_list, read_records
+from tnsim.cli.numbers import (
+    amplitude_record,
+    bits_cell,
+    json_float,
+    log10_text,
+    scaled_text,
+)
 
-from tnsim.circuits.bits import format_bits, parse_many, read_bits_file
-from tnsim.circuits.circuit import Circuit
-from tnsim.cli.common import BITS_HELP, add_run_arguments, load_circuit, write_output
-from tnsim.errors import InputError
-
-__all__ = ["parse_qubit_list", "register"]
-
-_BITS = "character i of a bitstring is qubit i (the leftmost character is qubit 0)"
+__all__ = ["register"]
 
 
-def parse_qubit_list(text: str) -> list[int]:
-    """Parse ``"0,3,5"`` into ``[0, 3, 5]``.
+def _json_text(doc: dict) -> str:
+    return json.dumps(doc, allow_nan=False) + "\n"
 
-    Examples
-    --------
-    >>> parse_qubit_list(" 4, 0,2 ")
-    [4, 0, 2]
-    """
-    out = []
-    for k, part in enumerate(text.split(",")):
-        item = part.strip()
-        if not item.isdigit():
-            raise InputError(
-                f"--qubits: item {k + 1} is {item!r}, not a qubit index; write e.g. --qubits 0,3,5"
-            )
-        out.append(int(item))
-    return out
+
+# --- marginal ---
 
 
 def _cmd_marginal(args: argparse.Namespace) -> int:
+    from tnsim.circuits.bits import format_bits
     from tnsim.queries.marginals import marginal
 
+    qubits = [q for text in args.qubits for q in parse_qubit_list(text)]
+    if len(qubits) > 30:
+        raise OptionError(
+            f"--qubits lists {len(qubits)} qubits: 2^{len(qubits)} outcomes are too many to "
+            "print; list at most 30 (or sample the circuit)"
+        )
     circuit = load_circuit(args.circuit)
-    qubits = parse_qubit_list(args.qubits)
-    probs = marginal(circuit, qubits)
+    probs = marginal(circuit, qubits, dtype=dtype_of(args))
     k = len(qubits)
     outcomes = [format_bits([(i >> (k - 1 - j)) & 1 for j in range(k)]) for i in range(1 << k)]
     if args.json:
-        print(json.dumps({"qubits": qubits, "outcomes": outcomes, "probabilities": probs.tolist()}))
+        doc = {
+            "qubits": qubits,
+            "outcomes": outcomes,
+            "probabilities": [json_float(p) for p in probs.tolist()],
+            "precision": args.precision,
+            "units": {"outcomes": "character j is the j-th listed qubit"},
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
         return 0
-    print(
-        f"qubits {','.join(map(str, qubits))} (character j of an outcome is the j-th listed qubit)"
-    )
     width = max(7, k)
-    print(f"{'outcome':<{width}}  probability")
-    for bits, p in zip(outcomes, probs):
-        print(f"{bits:<{width}}  {p:.12f}")
+    lines = [
+        f"qubits {','.join(map(str, qubits))} (character j of an outcome is the j-th listed qubit)",
+        f"{'outcome':<{width}}  probability",
+    ]
+    lines += [f"{bits:<{width}}  {p:.12f}" for bits, p in zip(outcomes, probs)]
+    write_output("\n".join(lines) + "\n", args.output)
+    emit_stats(args)
     return 0
 
 
-def _read_observable(args: argparse.Namespace) -> str:
-    if (args.observable is None) == (args.observable_file is None):
-        raise InputError("give exactly one of --observable TEXT and --observable-file FILE")
-    if args.observable is not None:
-        return args.observable
-    try:
-        with open(args.observable_file, encoding="utf-8") as fh:
-            lines = [line.split("#", 1)[0].strip() for line in fh]
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read observable file {args.observable_file!r}: {exc}") from None
-    terms = [line for line in lines if line]
-    if not terms:
-        raise InputError(f"{args.observable_file}: no terms found; write one term per line")
-    return " ".join(t if t[0] in "+-" else "+ " + t for t in terms)
+# --- expect ---
 
 
 def _cmd_expect(args: argparse.Namespace) -> int:
@@ -84,8 +91,8 @@ def _cmd_expect(args: argparse.Namespace) -> int:
     from tnsim.queries.observables import parse_observable
 
     circuit = load_circuit(args.circuit)
-    obs = parse_observable(_read_observable(args), circuit.num_qubits)
-    cache = TermCache(circuit)
+    obs = parse_observable(observable_text(args), circuit.num_qubits)
+    cache = TermCache(circuit, dtype=dtype_of(args))
     rows: list[dict[str, Any]] = []
     for term in obs.terms:
         value = cache.value(term.paulis)
@@ -93,134 +100,222 @@ def _cmd_expect(args: argparse.Namespace) -> int:
         rows.append({"coefficient": term.coefficient, "pauli": pauli, "expectation": value})
     total = float(sum(r["coefficient"] * r["expectation"] for r in rows))
     if args.json:
-        print(json.dumps({"value": total, "terms": rows, "contractions": cache.misses}))
+        doc = {
+            "value": json_float(total),
+            "terms": rows,
+            "contractions": cache.misses,
+            "precision": args.precision,
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
         return 0
     width = max(12, *(len(r["pauli"]) for r in rows))
-    print(f"{'coefficient':>14}  {'Pauli string':<{width}}  expectation")
-    for r in rows:
-        print(f"{r['coefficient']:14.8g}  {r['pauli']:<{width}}  {r['expectation']:+.12f}")
-    print(f"total {total:+.12f}  ({len(rows)} terms, {cache.misses} contractions)")
+    lines = [f"{'coefficient':>14}  {'Pauli string':<{width}}  expectation"]
+    lines += [
+        f"{r['coefficient']:14.8g}  {r['pauli']:<{width}}  {r['expectation']:+.12f}" for r in rows
+    ]
+    lines.append(f"total {total:+.12f}  ({len(rows)} terms, {cache.misses} contractions)")
+    write_output("\n".join(lines) + "\n", args.output)
+    emit_stats(args)
     return 0
+
+
+# --- sample ---
 
 
 def _cmd_sample(args: argparse.Namespace) -> int:
+    from tnsim.circuits.bitfiles import from_qubit_order, order_width
+    from tnsim.circuits.bits import format_bits
     from tnsim.queries.sampling import sample
 
-    if args.shots < 0:
-        raise InputError(f"--shots must be non-negative, got {args.shots}")
     circuit = load_circuit(args.circuit)
-    out = sample(circuit, args.shots, seed=args.seed, block=args.block, method=args.method)
-    lines = [format_bits(row) for row in out]
+    width = order_width(circuit, args.bit_order)
+    check_array(args.shots, max(width, circuit.num_qubits), "--shots")
+    out = sample(
+        circuit,
+        args.shots,
+        seed=args.seed,
+        block=args.block,
+        method=args.method,
+        dtype=dtype_of(args),
+    )
+    lines = [format_bits(row) for row in from_qubit_order(out, circuit, args.bit_order)]
     if args.json:
-        text = json.dumps({"num_qubits": circuit.num_qubits, "seed": args.seed, "samples": lines})
-        text += "\n"
+        doc = {
+            "num_qubits": circuit.num_qubits,
+            "bit_order": args.bit_order,
+            "seed": args.seed,
+            "method": args.method,
+            "precision": args.precision,
+            "samples": lines,
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
     else:
-        text = "".join(line + "\n" for line in lines)
-    write_output(text, args.output)
+        write_output("".join(line + "\n" for line in lines), args.output)
+        emit_stats(args)
     return 0
+
+
+# --- xeb ---
 
 
 def _cmd_xeb(args: argparse.Namespace) -> int:
+    from tnsim.circuits.bitfiles import to_qubit_order
     from tnsim.queries.xeb import xeb
 
     circuit = load_circuit(args.circuit)
-    if not os.path.isfile(args.samples):
-        raise InputError(f"{args.samples}: no such file; give a file with one bitstring per line")
-    rows = read_bits_file(args.samples, circuit.num_qubits)
-    r = xeb(circuit, rows)
+    shown, counts = read_records(args.samples, circuit, args.bit_order)
+    rows = to_qubit_order(shown, circuit, args.bit_order)
+    r = xeb(circuit, rows, counts=counts, dtype=dtype_of(args))
     if args.json:
-        print(
-            json.dumps(
-                {
-                    "fidelity": r.fidelity,
-                    "standard_error": r.standard_error,
-                    "num_samples": r.num_samples,
-                }
-            )
-        )
+        doc = {
+            "fidelity": json_float(r.fidelity),
+            "standard_error": json_float(r.standard_error),
+            "log10_fidelity_plus_one": json_float(r.log10_mean),
+            "log10_standard_error": json_float(r.log10_standard_error),
+            "fidelity_text": _fidelity_text(r),
+            "standard_error_text": log10_text(r.log10_standard_error),
+            "num_samples": r.num_samples,
+            "distinct": len(rows),
+            "bit_order": args.bit_order,
+            "precision": args.precision,
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
         return 0
-    print(f"linear XEB fidelity  {r.fidelity:+.6f}")
-    print(f"standard error        {r.standard_error:.6f}")
-    print(f"samples               {r.num_samples}")
+    lines = [
+        f"linear XEB fidelity F   {_fidelity_text(r)}   (log10(F + 1) = {r.log10_mean:.6f})",
+        f"standard error          {log10_text(r.log10_standard_error)}   "
+        f"(log10 = {r.log10_standard_error:.6f})",
+        f"samples                 {r.num_samples} ({len(rows)} distinct bitstrings)",
+    ]
+    write_output("\n".join(lines) + "\n", args.output)
+    emit_stats(args)
     return 0
 
 
-def _gather_bits(args: argparse.Namespace, n: int) -> np.ndarray:
-    rows = []
-    if args.bits:
-        rows.append(parse_many(args.bits, n))
-    if args.bits_file:
-        rows.append(read_bits_file(args.bits_file, n))
-    if not rows:
-        raise InputError("give at least one bitstring with --bits or --bits-file")
-    return np.concatenate(rows)
+def _fidelity_text(r) -> str:
+    """``F`` as text: plain where a float holds it, else from ``log10(F + 1)``."""
+    if math.isfinite(r.fidelity) and r.log10_mean < 15:
+        return f"{r.fidelity:+.10e}"
+    return "+" + log10_text(r.log10_mean)  # F + 1 and F agree to 15+ digits here
 
 
-def _amp_rows(circuit: Circuit, rows: np.ndarray, dtype):
-    """Yield one record per bitstring, chunk by chunk as the batch is contracted."""
-    from tnsim.network.scaled import Scaled
+# --- amp ---
+
+
+def _amp_records(circuit, rows, shown, dtype):
+    """Yield one JSON-ready record per bitstring, chunk by chunk as the batch is contracted."""
+    from tnsim.circuits.bits import format_bits
     from tnsim.queries.amplitudes import iter_amplitudes
 
     for start, mantissa, exponent in iter_amplitudes(circuit, rows, dtype=dtype, chunk=64):
         for k in range(len(mantissa)):
-            a = Scaled(np.asarray(mantissa[k]), int(exponent[k]))
-            value = complex(a)
-            yield {
-                "bits": format_bits(rows[start + k]),
-                "real": value.real,
-                "imag": value.imag,
-                "probability": abs(value) ** 2,
-                "log10_abs": a.log10_abs(),
-                "phase": a.phase(),
-            }
+            bits = format_bits(shown[start + k])
+            yield amplitude_record(bits, complex(mantissa[k]), int(exponent[k]))
 
 
-def _print_amp_table(rows, num_bits: int, stream=None) -> None:
-    """Print records as they come (flushing each), so long batches stream."""
-    stream = stream or sys.stdout
-    width = max(12, num_bits) if num_bits <= 64 else 12
-    print(f"{'bitstring':<{width}}  {'amplitude':>34}  {'probability':>12}  log10|a|", file=stream)
-    for r in rows:
-        bits = r["bits"] if len(r["bits"]) <= 64 else r["bits"][:9] + "..."
-        amp = f"{r['real']:+.10e}{r['imag']:+.10e}j"
-        print(
-            f"{bits:<{width}}  {amp:>34}  {r['probability']:12.6e}  {r['log10_abs']:.6f}",
-            file=stream,
-            flush=True,
-        )
+def _amp_line(k: int, r: dict, cell: str, iw: int, bw: int) -> str:
+    z = complex(*r["mantissa"])
+    e = r["exponent2"]
+    prob = scaled_text(abs(z) ** 2, 2 * e, digits=6, sign=False)
+    log10 = r["log10_abs"]
+    log10 = f"{log10:.6f}" if log10 is not None else "-inf"
+    return (
+        f"{k:>{iw}}  {cell:<{bw}}  {r['amplitude']:>38}  {prob:>14}  {log10:>12}  {r['phase']:+.6f}"
+    )
+
+
+def _amp_table(records, count: int, width: int, full: bool, order: str, stream) -> None:
+    """Print the records as they come (flushing each), so long batches stream.
+
+    The heading is printed with the first row, so a run that fails prints nothing.
+    """
+    records = iter(records)
+    first = next(records, None)
+    shown = width if full or width <= 64 else 51
+    bw, iw = max(9, shown), max(1, len(str(count - 1)))
+    note = "" if full or width <= 64 else "; long bitstrings show both ends (--full-bits: whole)"
+    rule = "character i is qubit i" if order == "qubit" else "character j is classical bit j"
+    print(
+        f"# amplitudes <x|C|0...0>; bitstrings in {order} order ({rule}){note}; phase in radians",
+        file=stream,
+    )
+    print(
+        f"{'#':>{iw}}  {'bitstring':<{bw}}  {'amplitude (real, imaginary)':>38}  "
+        f"{'|a|^2':>14}  {'log10|a|':>12}  phase",
+        file=stream,
+    )
+    for k, r in enumerate(itertools.chain([first], records) if first else ()):
+        cell = r["bits"] if full else bits_cell(r["bits"])
+        print(_amp_line(k, r, cell, iw, bw), file=stream, flush=True)
 
 
 def _cmd_amp(args: argparse.Namespace) -> int:
+    import io
+
+    if args.single:
+        warn("--single is deprecated and will be removed; use --precision single")
+        args.precision = "single"
     circuit = load_circuit(args.circuit)
-    rows = _gather_bits(args, circuit.num_qubits)
-    dtype = np.complex64 if args.single else np.complex128
-    result = _amp_rows(circuit, rows, dtype)
+    rows, shown = gather_bits(args, circuit)
+    records = _amp_records(circuit, rows, shown, dtype_of(args))
     if args.json:
-        print(json.dumps({"num_qubits": circuit.num_qubits, "amplitudes": list(result)}))
-    else:
-        _print_amp_table(result, circuit.num_qubits)
+        doc = {
+            "num_qubits": circuit.num_qubits,
+            "bit_order": args.bit_order,
+            "precision": args.precision,
+            "units": {
+                "amplitude": "exact decimal text of <x|C|0...0>",
+                "real, imag, probability": "floats; null where a double underflows",
+                "log10_abs": "log10 |a| (null for a zero amplitude)",
+                "phase": "radians in (-pi, pi]",
+                "mantissa, exponent2": "a = (mantissa[0] + i mantissa[1]) * 2**exponent2",
+            },
+            "amplitudes": list(records),
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
+        return 0
+    stream = io.StringIO() if args.output else sys.stdout
+    _amp_table(records, len(rows), shown.shape[1], args.full_bits, args.bit_order, stream)
+    if args.output:
+        write_output(stream.getvalue(), args.output)
+    emit_stats(args)
     return 0
+
+
+# --- the parsers ---
 
 
 def register(sub) -> None:
     """Add ``amp``, ``marginal``, ``expect``, ``sample`` and ``xeb`` to a subparsers object."""
+    circuit_help = "OpenQASM 2.0 file, or - to read it from standard input"
     amp = sub.add_parser(
         "amp",
         help="amplitudes <x|C|0...0> of bitstrings",
-        description=f"Print amplitudes <x|C|0...0>. {BITS_HELP}.",
+        description="Print amplitudes <x|C|0...0> as exact decimal text (no underflow at any "
+        "width), with |a|^2, log10|a| and the phase in radians.",
     )
-    amp.add_argument("circuit", help="OpenQASM 2.0 file")
+    amp.add_argument("circuit", help=circuit_help)
     amp.add_argument(
-        "--bits", action="append", metavar="BITS", help=f"a bitstring (repeatable); {BITS_HELP}"
+        "--bits", action="append", metavar="BITS", help="a bitstring (repeatable; they accumulate)"
     )
     amp.add_argument(
         "--bits-file",
         metavar="FILE",
-        help="file with one bitstring per line; rows are printed as they are computed",
+        help="file of bitstrings (- for standard input): one per line, bits,count lines, or "
+        "JSON (tnsim sample --json output, an object of counts); rows print as computed",
     )
-    amp.add_argument("--single", action="store_true", help="contract in complex64")
-    amp.add_argument("--json", action="store_true", help="machine-readable output")
-    add_run_arguments(amp)
+    amp.add_argument(
+        "--full-bits",
+        action="store_true",
+        help="print whole bitstrings (default: both ends of those over 64 characters; --json "
+        "always holds whole ones)",
+    )
+    amp.add_argument("--single", action="store_true", help=argparse.SUPPRESS)
+    add_query_arguments(amp)
     amp.set_defaults(func=_cmd_amp)
 
     m = sub.add_parser(
@@ -228,11 +323,17 @@ def register(sub) -> None:
         help="outcome probabilities of a few qubits",
         description="Print the probabilities of the outcomes of the listed qubits, summed over "
         "all others (light-cone-reduced doubled network). Character j of an outcome is the "
-        f"j-th listed qubit. Bitstrings elsewhere: {_BITS}.",
+        "j-th listed qubit.",
     )
-    m.add_argument("circuit", help="OpenQASM 2.0 file")
-    m.add_argument("--qubits", required=True, metavar="LIST", help="e.g. 0,3,5")
-    m.add_argument("--json", action="store_true", help="machine-readable output")
+    m.add_argument("circuit", help=circuit_help)
+    m.add_argument(
+        "--qubits",
+        required=True,
+        action="append",
+        metavar="LIST",
+        help="e.g. 0,3,5 (repeatable; the lists accumulate in order)",
+    )
+    add_query_arguments(m, bit_order=False)
     m.set_defaults(func=_cmd_marginal)
 
     e = sub.add_parser(
@@ -240,26 +341,47 @@ def register(sub) -> None:
         help="expectation value of a weighted sum of Pauli strings",
         description="Print <0|C† H C|0> for H written like '0.5 Z0 Z1 - 1.2 X3 + 0.7' "
         "(Pauli letter then qubit index; real coefficients; I or a bare number is the "
-        "identity). Terms whose light cones match up to renaming qubits are contracted once.",
+        "identity). Terms whose light cones match up to renaming qubits are contracted once. "
+        "A value that starts with '-' is written --observable=-Z0 (or --observable -Z0).",
     )
-    e.add_argument("circuit", help="OpenQASM 2.0 file")
-    e.add_argument("--observable", metavar="TEXT", help="e.g. '0.5 Z0 Z1 - 1.2 X3 + 0.7'")
+    e.add_argument("circuit", help=circuit_help)
     e.add_argument(
-        "--observable-file", metavar="FILE", help="one term per line ('#' starts a comment)"
+        "--observable",
+        action="append",
+        metavar="TEXT",
+        help="e.g. '0.5 Z0 Z1 - 1.2 X3 + 0.7' (repeatable: the terms are summed)",
     )
-    e.add_argument("--json", action="store_true", help="machine-readable output")
+    e.add_argument(
+        "--observable-file",
+        metavar="FILE",
+        help="one term per line ('#' starts a comment; - for standard input); added to "
+        "any --observable terms",
+    )
+    add_query_arguments(e, bit_order=False)
     e.set_defaults(func=_cmd_expect)
 
     s = sub.add_parser(
         "sample",
         help="exact samples of the output distribution",
-        description="Draw exact samples x from |<x|C|0...0>|^2 (chain rule of marginals, "
-        f"or gate by gate from amplitudes) and write one bitstring per line; {_BITS}.",
+        description="Draw exact samples x from |<x|C|0...0>|^2 (gate by gate from amplitudes, "
+        "or the chain rule of marginals) and write one bitstring per line, or JSON with "
+        "--json; xeb and amp --bits-file read either back.",
     )
-    s.add_argument("circuit", help="OpenQASM 2.0 file")
-    s.add_argument("--shots", type=int, required=True, metavar="N", help="number of samples")
-    s.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
-    s.add_argument("--block", type=int, default=5, help="qubits per chain-rule step (default 5)")
+    s.add_argument("circuit", help=circuit_help)
+    s.add_argument(
+        "--shots",
+        type=count_type("--shots", 0, 10**12),
+        required=True,
+        metavar="N",
+        help="number of samples",
+    )
+    s.add_argument("--seed", type=seed_type, default=0, help="random seed, 0 or more (default 0)")
+    s.add_argument(
+        "--block",
+        type=count_type("--block", 1, 16),
+        default=5,
+        help="qubits per chain-rule step, 1 to 16 (default 5)",
+    )
     s.add_argument(
         "--method",
         choices=("auto", "gates", "marginals"),
@@ -267,20 +389,21 @@ def register(sub) -> None:
         help="gates: gate by gate from amplitudes; marginals: chain rule over light cones; "
         "auto (default): all amplitudes at once up to 20 qubits, gate by gate beyond",
     )
-    s.add_argument("-o", "--output", metavar="FILE", help="output file (default: stdout)")
-    s.add_argument("--json", action="store_true", help="write JSON instead of lines")
+    add_query_arguments(s)
     s.set_defaults(func=_cmd_sample)
 
     x = sub.add_parser(
         "xeb",
         help="linear cross-entropy fidelity of samples",
-        description="Linear XEB fidelity F = 2^n mean p(x) - 1 of the bitstrings in SAMPLES "
-        f"(one per line; {_BITS}) with its standard error.",
+        description="Linear XEB fidelity F = 2^n mean p(x) - 1 of the bitstrings in SAMPLES, "
+        "with its standard error; shown in mantissa-exponent form with log10(F + 1), which "
+        "stays exact where F leaves the range of a float. Count files weight each bitstring.",
     )
-    x.add_argument("circuit", help="OpenQASM 2.0 file")
-    x.add_argument("samples", help="file with one bitstring per line")
-    x.add_argument("--json", action="store_true", help="machine-readable output")
+    x.add_argument("circuit", help=circuit_help)
+    x.add_argument(
+        "samples",
+        help="bitstrings (- for standard input): one per line, bits,count lines (device "
+        "counts), JSON of tnsim sample --json, or a JSON object of counts",
+    )
+    add_query_arguments(x)
     x.set_defaults(func=_cmd_xeb)
-    for name in ("amp", "marginal", "expect", "sample", "xeb"):
-        if name != "amp":
-            add_run_arguments(sub.choices[name])

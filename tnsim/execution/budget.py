@@ -10,14 +10,25 @@ available memory, divided among local workers).
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
+from tnsim.errors import ResourceLimitError
 from tnsim.execution.options import QueryOptions
 from tnsim.execution.steps import compile_tree, peak_memory
 from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import Plan, make_plan
+from tnsim.units import format_bytes
 
-__all__ = ["fit_plan", "plan_peak_memory"]
+__all__ = ["MAX_SLICES", "check_slices", "fit_plan", "plan_peak_memory", "smallest_limit"]
+
+MAX_SLICES = 2**24
+"""Most slices a run may have: a plan sliced further is refused, naming the smallest memory
+limit that keeps its tree within this many.  Each slice runs every step of its tree, a few
+microseconds each at least (``benchmarks/scaling.py overhead``), so 2**24 slices of a
+500-step tree already take about a day; the sliced runs measured in this project had at
+most 2**13 slices."""
 
 
 def plan_peak_memory(network: TensorGraph, plan: Plan) -> int:
@@ -53,4 +64,46 @@ def fit_plan(network: TensorGraph, options: QueryOptions, *, seed: int = 0) -> P
     >>> plan_peak_memory(tn, fit_plan(tn, resolve_options("1MiB"))) <= 2**20
     True
     """
-    return make_plan(network, memory_limit=options.slice_limit, seed=seed)
+    plan = make_plan(network, memory_limit=options.slice_limit, seed=seed)
+    check_slices(plan, options.slice_limit)
+    return plan
+
+
+def smallest_limit(plan: Plan, max_slices: int | None = None) -> int:
+    """Bytes the executor needs for one slice of ``plan``'s tree cut into at most ``max_slices``.
+
+    (Default :data:`MAX_SLICES`.)  The plan's sliced labels are taken in the
+    order the slicer chose them, as many as keep the count within ``max_slices``.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> from tnsim.execution.options import resolve_options
+    >>> from tnsim.network.builders import amplitude_network
+    >>> tn = amplitude_network(Circuit(2).h(0).cx(0, 1), "11")
+    >>> plan = fit_plan(tn, resolve_options())
+    >>> smallest_limit(plan) == plan_peak_memory(tn, plan)
+    True
+    """
+    max_slices = MAX_SLICES if max_slices is None else max_slices
+    sliced: list[int] = []
+    count = 1
+    for label in plan.sliced:
+        if count * plan.tree.size[label] > max_slices:
+            break
+        count *= plan.tree.size[label]
+        sliced.append(label)
+    return peak_memory(plan.tree, compile_tree(plan.tree, sliced), plan.itemsize)
+
+
+def check_slices(plan: Plan, limit: int) -> None:
+    """Refuse a plan with more than :data:`MAX_SLICES` slices, naming a limit that works."""
+    if plan.num_slices <= MAX_SLICES:
+        return
+    need = smallest_limit(plan)
+    raise ResourceLimitError(
+        f"a memory limit of {format_bytes(limit)} would need {plan.num_slices:.3g} slices, more "
+        f"than the {MAX_SLICES:,} tnsim runs; the smallest limit that keeps this plan within "
+        f"that is {format_bytes(need)} ({need} bytes): raise --memory/memory_limit to at "
+        f"least that (log2 of the slice count: {math.log2(plan.num_slices):.1f})"
+    )

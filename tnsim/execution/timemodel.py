@@ -8,11 +8,11 @@ machine's measured matmul rate (:func:`tnsim.execution.rate.matmul_rate`).
 from __future__ import annotations
 
 from tnsim.execution.rate import matmul_rate
-from tnsim.fitted import WRITE_FLOPS
+from tnsim.fitted import STEP_SECONDS, WRITE_FLOPS
 from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import Plan, make_plan
 
-__all__ = ["elements_written", "forecast_seconds", "plan_for_runs"]
+__all__ = ["elements_written", "fixed_seconds", "forecast_seconds", "plan_for_runs"]
 
 
 def elements_written(p: Plan) -> int:
@@ -32,6 +32,22 @@ def forecast_seconds(flops: int, written: int, rate: float) -> float:
     True
     """
     return (flops + WRITE_FLOPS * written) / rate
+
+
+def fixed_seconds(p: Plan) -> float:
+    """The per-step Python time of a plan's run: :data:`~tnsim.fitted.STEP_SECONDS` per step.
+
+    (Per step and slice.)
+
+    Examples
+    --------
+    >>> from tnsim.circuits import Circuit
+    >>> from tnsim.network.builders import amplitude_network
+    >>> p = make_plan(amplitude_network(Circuit(2).h(0).cx(0, 1), "11"))
+    >>> fixed_seconds(p) == STEP_SECONDS * len(p.tree.path)
+    True
+    """
+    return STEP_SECONDS * len(p.tree.path) * p.num_slices
 
 
 def plan_for_runs(network: TensorGraph, runs: float, *, memory_limit: int | None = None) -> Plan:

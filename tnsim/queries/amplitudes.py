@@ -11,13 +11,14 @@ differing bits once.
 from __future__ import annotations
 
 from collections.abc import Iterator
+from dataclasses import dataclass
 from typing import Literal, overload
 
 import numpy as np
 
 from tnsim.circuits.bits import Bitstring, Bitstrings, parse_many
 from tnsim.circuits.circuit import Circuit
-from tnsim.execution.batch import fitted_engine
+from tnsim.execution.batch import BatchContraction, fitted_engine
 from tnsim.execution.budget import fit_plan
 from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.execution.rate import matmul_rate
@@ -32,7 +33,9 @@ from tnsim.plan.driver import Plan
 from tnsim.queries.checks import check_circuit
 
 __all__ = [
+    "AmplitudeRoute",
     "amplitude",
+    "amplitude_route",
     "amplitudes",
     "contract_network",
     "iter_amplitudes",
@@ -174,11 +177,12 @@ def _varying(rows: np.ndarray) -> list[int]:
 
 
 def _open_block(
-    circuit: Circuit, rows: np.ndarray, vary: list[int], opts: QueryOptions
+    route: AmplitudeRoute, rows: np.ndarray, opts: QueryOptions
 ) -> tuple[np.ndarray, np.ndarray]:
-    """All rows differ only on ``vary``: one contraction with those legs open."""
-    network = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=opts.dtype)
-    result = contract_network(network, opts)
+    """All rows differ only on ``route.vary``: one contraction with those legs open."""
+    vary, plan, network = route.vary, route.plan, route.network
+    assert plan is not None and network is not None  # an "open" route has both
+    result = execute(network, plan.tree, plan.sliced, memory_limit=opts.memory_limit)
     weights = 1 << np.arange(len(vary) - 1, -1, -1)
     flat = rows[:, vary].astype(np.int64) @ weights if vary else np.zeros(len(rows), np.int64)
     mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(-1)[flat]
@@ -244,31 +248,102 @@ def _iter_rows(
     """The amplitudes of parsed ``rows`` under resolved options (see :func:`iter_amplitudes`)."""
     if len(rows) == 0:
         return
+    route = _route(circuit, rows, opts, chunk)
+    if route.kind == "open":
+        yield (0, *_open_block(route, rows, opts))
+        return
+    assert route.first is not None and route.plan is not None
+    if route.kind == "rows":
+        yield from _row_by_row(circuit, rows, route.first, route.plan, opts)
+        return
+    engine, vary = route.engine, route.vary
+    assert engine is not None
+    for start in range(0, len(rows), engine.chunk):
+        part = rows[start : start + engine.chunk][:, vary]
+        result = engine.run(part)
+        mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(-1)
+        yield start, mantissa, np.full(len(part), result.exponent, dtype=np.int64)
+
+
+@dataclass(frozen=True)
+class AmplitudeRoute:
+    """How a batch of amplitudes is contracted (:func:`amplitude_route`).
+
+    Attributes
+    ----------
+    kind : {"open", "batched", "rows"}
+        One contraction with the differing legs open; a batched engine that
+        contracts the shared part once; or one contraction per bitstring.
+    vary : list of int
+        Qubits on which the bitstrings differ.
+    network : TensorGraph or None
+        ``"open"``: the simplified network with those legs open.
+    plan : Plan or None
+        ``"open"``: its plan; ``"rows"`` and ``"batched"``: the plan of one
+        bitstring's network ``first``.
+    first : TensorGraph or None
+        The simplified network of the first bitstring.
+    engine : BatchContraction or None
+        ``"batched"``: the engine (planned, nothing contracted yet).
+    seconds : float
+        ``"batched"`` and ``"rows"``: the time model's forecast of the route's
+        contractions, which chose it (0 for ``"open"``).
+    """
+
+    kind: str
+    vary: list[int]
+    network: TensorGraph | None = None
+    plan: Plan | None = None
+    first: TensorGraph | None = None
+    engine: BatchContraction | None = None
+    seconds: float = 0.0
+
+
+def amplitude_route(
+    circuit: Circuit,
+    bitstrings: Bitstrings,
+    *,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
+    chunk: int = CHUNK,
+) -> AmplitudeRoute:
+    """Plan how :func:`iter_amplitudes` contracts the amplitudes of ``bitstrings`` (nothing runs).
+
+    The choice :func:`iter_amplitudes` makes, shared with the forecasts of
+    ``tnsim cost`` (:mod:`tnsim.queries.workload`) so a forecast is of the run.
+
+    Examples
+    --------
+    >>> from tnsim import Circuit
+    >>> amplitude_route(Circuit(2).h(0), ["00", "10"]).kind
+    'open'
+    """
+    check_circuit(circuit)
+    opts = resolve_options(memory_limit, dtype=dtype)
+    rows = parse_many(bitstrings, circuit.num_qubits)
+    return _route(circuit, rows, opts, chunk)
+
+
+def _route(circuit: Circuit, rows: np.ndarray, opts: QueryOptions, chunk: int) -> AmplitudeRoute:
     vary = _varying(rows)
     k = len(vary)
-    if k <= OPEN_LIMIT or (k <= WIDE_OPEN_LIMIT and len(rows) << 12 >= 1 << k):
-        yield (0, *_open_block(circuit, rows, vary, opts))
-        return
     dt = opts.dtype
+    if k <= OPEN_LIMIT or (k <= WIDE_OPEN_LIMIT and len(rows) << 12 >= 1 << k):
+        network = absorb_small(amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt))
+        return AmplitudeRoute("open", vary, network, fit_plan(network, opts))
     first = absorb_small(amplitude_network(circuit, rows[0], dtype=dt))
     plan = fit_plan(first, opts)
     base = amplitude_network(circuit, rows[0], open_qubits=vary, dtype=dt)
     engine = fitted_engine(base, base.output, (), min(chunk, len(rows)), opts, runs=len(rows))
-    chunk = engine.chunk
-    runs = -(-len(rows) // chunk)
+    runs = -(-len(rows) // engine.chunk)
     rate = matmul_rate(dt)
     fixed, per_run = engine.flops()
     batched = forecast_seconds(fixed + per_run * runs, engine.written_per_run() * runs, rate)
     # Row by row also rebuilds and simplifies the network each time (ROW_SECONDS per tensor).
     per_row = forecast_seconds(plan.flops, elements_written(plan), rate) + ROW_SECONDS * len(base)
     if batched > per_row * len(rows):
-        yield from _row_by_row(circuit, rows, first, plan, opts)
-        return
-    for start in range(0, len(rows), chunk):
-        part = rows[start : start + chunk][:, vary]
-        result = engine.run(part)
-        mantissa = np.asarray(result.mantissa, dtype=np.complex128).reshape(-1)
-        yield start, mantissa, np.full(len(part), result.exponent, dtype=np.int64)
+        return AmplitudeRoute("rows", vary, None, plan, first, seconds=per_row * len(rows))
+    return AmplitudeRoute("batched", vary, None, plan, first, engine, seconds=batched)
 
 
 def _row_by_row(

@@ -69,10 +69,11 @@ def parse_sizes(text: str, family: Family) -> list[dict[str, int]]:
     want = " x ".join(family.size)
     for item in items:
         parts = item.lower().split("x")
-        if len(parts) != len(family.size) or not all(p.strip().isdigit() for p in parts):
+        ok = all(p.strip().isascii() and p.strip().isdigit() and len(p.strip()) <= 9 for p in parts)
+        if len(parts) != len(family.size) or not ok:
             raise InputError(
-                f"--sizes item {item!r}: family '{family.name}' takes sizes as {want} "
-                f"(positive integers{' joined by x' if len(family.size) > 1 else ''})"
+                f"--sizes item {item[:40]!r}: family '{family.name}' takes sizes as {want} "
+                f"(positive integers of digits 0-9{' joined by x' if len(family.size) > 1 else ''})"
             )
         values = [int(p) for p in parts]
         if min(values) < 1:

@@ -19,6 +19,7 @@ from tnsim.circuits.gates import gate_matrix
 from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.fitted import NARROW
 from tnsim.network.builders import doubled_network
+from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
 from tnsim.queries.amplitudes import contract_simplified
@@ -92,6 +93,21 @@ class TermCache:
         psi = all_amplitudes(local, self.options)
         return _pauli_expectation(psi, letters)
 
+    def network(
+        self,
+        paulis: Sequence[tuple[int, str]],
+        gates: list[tuple[int, tuple[int, ...]]],
+        qubits: Sequence[int],
+    ) -> tuple[Circuit, dict[int, str], TensorGraph]:
+        """One Pauli string's light cone, its letters by cone qubit, its doubled network.
+
+        ``gates`` and ``qubits`` come from :func:`canonical_cone`; the network is simplified.
+        """
+        local = cone_circuit(self.index, gates, len(qubits))
+        letters = {k: letter for k, (_, letter) in enumerate(paulis)}
+        small = absorb_small(doubled_network(local, paulis=letters, dtype=self.options.dtype))
+        return local, letters, small
+
     def value(self, paulis: Sequence[tuple[int, str]]) -> float:
         """Return ``<0|C† P C|0>`` for ``paulis`` = ``((qubit, letter), ...)``."""
         if not paulis:
@@ -102,9 +118,7 @@ class TermCache:
             self.hits += 1
             return v
         self.misses += 1
-        local = cone_circuit(self.index, gates, len(qubits))
-        letters = {k: letter for k, (_, letter) in enumerate(paulis)}
-        small = absorb_small(doubled_network(local, paulis=letters, dtype=self.options.dtype))
+        local, letters, small = self.network(paulis, gates, qubits)
         if deep_and_narrow(local, small):
             v = self._from_amplitudes(local, letters, paulis)
         else:

@@ -14,9 +14,10 @@ import opt_einsum
 
 from tnsim.circuits.bits import Bitstring
 from tnsim.circuits.circuit import Circuit
+from tnsim.execution.budget import check_slices
 from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.execution.rate import matmul_rate
-from tnsim.execution.timemodel import forecast_seconds
+from tnsim.execution.timemodel import fixed_seconds, forecast_seconds
 from tnsim.network.builders import amplitude_network
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import Plan, make_plan
@@ -63,9 +64,13 @@ class ForecastReport:
     flop_rate : float
         Measured real FLOP/s of a dense complex matrix product here.
     seconds : float
-        Forecast run time ``(flops + WRITE_FLOPS * written) / flop_rate``: the
-        FLOPs at the matmul rate plus a fitted cost per element written
-        (:data:`tnsim.fitted.WRITE_FLOPS`).
+        Forecast run time ``(flops + WRITE_FLOPS * written) / flop_rate +
+        fixed_seconds``: the FLOPs at the matmul rate plus a fitted cost per
+        element written (:data:`tnsim.fitted.WRITE_FLOPS`), plus the fixed
+        Python time of the steps.
+    fixed_seconds : float
+        :data:`~tnsim.fitted.STEP_SECONDS` per pairwise step and slice: what a
+        tiny plan's run is made of.
     planning_seconds : float
         Time spent planning.
     method : str
@@ -93,6 +98,7 @@ class ForecastReport:
     written: int
     flop_rate: float
     seconds: float
+    fixed_seconds: float
     planning_seconds: float
     method: str
     profile: tuple[float, ...]
@@ -178,10 +184,12 @@ def forecast(
     p = make_plan(
         small, memory_limit=limit, time_budget=time_budget, seed=seed, objective=objective
     )
+    check_slices(p, limit)
     rate = matmul_rate(dt)
     unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
     sizes = p.tree.intermediate_sizes(p.sliced)
     written = sum(sizes) * p.num_slices
+    fixed = fixed_seconds(p)
     return ForecastReport(
         num_qubits=circuit.num_qubits,
         num_tensors=len(network),
@@ -201,7 +209,8 @@ def forecast(
         itemsize=p.itemsize,
         written=written,
         flop_rate=rate,
-        seconds=forecast_seconds(p.flops, written, rate),
+        seconds=forecast_seconds(p.flops, written, rate) + fixed,
+        fixed_seconds=fixed,
         planning_seconds=p.seconds,
         method=p.method,
         profile=tuple(math.log2(s) for s in sizes),

@@ -23,7 +23,7 @@ from tnsim.plan.driver import greedy_tree
 from tnsim.queries.amplitudes import contract_network, contract_simplified
 from tnsim.queries.checks import check_circuit, check_qubits
 
-__all__ = ["marginal"]
+__all__ = ["marginal", "marginal_network"]
 
 
 def marginal(
@@ -68,16 +68,28 @@ def marginal(
     check_circuit(circuit)
     opts = resolve_options(memory_limit, dtype=dtype)
     qs = check_qubits(qubits, circuit.num_qubits, "marginal")
-    index = index_circuit(circuit)
-    _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qs])
-    local = cone_circuit(index, gates, len(local_qubits))
-    small = absorb_small(doubled_network(local, open_qubits=range(len(qs)), dtype=opts.dtype))
+    local, small = marginal_network(circuit, qs, opts.dtype)
     if deep_and_narrow(local, small):
         every = all_probabilities(local, opts)
         return every.reshape(1 << len(qs), -1).sum(axis=1)
     result = contract_simplified(small, opts)
     probs = result.value().real.reshape(-1)
     return np.clip(probs, 0.0, None)
+
+
+def marginal_network(
+    circuit: Circuit, qubits: Sequence[int], dtype: np.dtype
+) -> tuple[Circuit, TensorGraph]:
+    """The light cone of ``qubits`` as a circuit, and its simplified doubled network.
+
+    The doubled network has one open leg per listed qubit, in order (what
+    :func:`marginal` contracts; also what ``tnsim cost --qubits`` plans).
+    """
+    index = index_circuit(circuit)
+    _, gates, local_qubits = canonical_cone(index, [(q, "P") for q in qubits])
+    local = cone_circuit(index, gates, len(local_qubits))
+    small = absorb_small(doubled_network(local, open_qubits=range(len(qubits)), dtype=dtype))
+    return local, small
 
 
 def _greedy_flops(small: TensorGraph) -> int:

@@ -193,7 +193,9 @@ class _Parser(StatementParser):
         return path
 
 
-def read_qasm(path_or_text: str | os.PathLike, *, max_ops: int = DEFAULT_MAX_OPS) -> Circuit:
+def read_qasm(
+    path_or_text: str | os.PathLike, *, max_ops: int = DEFAULT_MAX_OPS, name: str | None = None
+) -> Circuit:
     """Read an OpenQASM 2.0 program into a :class:`~tnsim.circuits.circuit.Circuit`.
 
     Parameters
@@ -206,6 +208,8 @@ def read_qasm(path_or_text: str | os.PathLike, *, max_ops: int = DEFAULT_MAX_OPS
         Refuse programs that expand to more operations than this (default
         10,000,000).  Expansion is counted before it happens, so gate-definition
         "bombs" fail at once.
+    name : str, optional
+        What messages call program text (default ``<text>``; e.g. ``<stdin>``).
 
     Returns
     -------
@@ -255,7 +259,7 @@ def read_qasm(path_or_text: str | os.PathLike, *, max_ops: int = DEFAULT_MAX_OPS
                 f"no such file: '{path_or_text}' (and it is not OpenQASM text, which starts "
                 "with 'OPENQASM 2.0;'); check the path"
             )
-        source, directory = Source(path_or_text, "<text>"), None
+        source, directory = Source(path_or_text, name or "<text>"), None
     else:
         raise InputError(
             f"read_qasm takes OpenQASM text or a file path, got {type(path_or_text).__name__}"
