@@ -25,7 +25,6 @@ What they return, besides numbers and numpy arrays:
 from __future__ import annotations
 
 import importlib
-from importlib.metadata import PackageNotFoundError, version
 from typing import TYPE_CHECKING, Any
 
 from tnsim.errors import (
@@ -36,11 +35,6 @@ from tnsim.errors import (
     ResourceLimitError,
     TnsimError,
 )
-
-try:
-    __version__ = version("tnsim")
-except PackageNotFoundError:  # running from a source tree that was never installed
-    __version__ = "0+unknown"
 
 #: Public name -> module that defines it (imported when the name is first used).
 _PUBLIC = {
@@ -94,8 +88,22 @@ __all__ = [
 ]
 
 
+def _version() -> str:
+    """The installed package's version (looked up on first use: importlib.metadata is slow)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("tnsim")
+    except PackageNotFoundError:  # running from a source tree that was never installed
+        return "0+unknown"
+
+
 def __getattr__(name: str) -> Any:
     """Import a public name's module on first use (PEP 562)."""
+    if name == "__version__":
+        value = _version()
+        globals()[name] = value
+        return value
     module = _PUBLIC.get(name)
     if module is None:
         raise AttributeError(f"module 'tnsim' has no attribute {name!r}")

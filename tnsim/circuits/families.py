@@ -17,12 +17,15 @@ import math
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
-import networkx as nx
 import numpy as np
 
 from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError
+
+if TYPE_CHECKING:
+    import networkx as nx
 
 __all__ = [
     "FAMILIES",
@@ -347,6 +350,8 @@ def qaoa_maxcut(
     >>> c.num_qubits, g.number_of_edges(), len(c)
     (6, 9, 21)
     """
+    import networkx as nx  # only here: the other families do without it
+
     if len(gammas) != len(betas) or not gammas:
         raise InputError("give the same positive number of gammas and betas (one per layer)")
     if graph is None:

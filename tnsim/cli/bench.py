@@ -14,7 +14,6 @@ import json
 import math
 import os
 from collections.abc import Sequence
-from dataclasses import asdict, fields
 from typing import TYPE_CHECKING
 
 from tnsim.cli.common import (
@@ -29,7 +28,6 @@ from tnsim.cli.common import (
 )
 from tnsim.cli.gen import parse_params
 from tnsim.errors import InputError
-from tnsim.fileio import write_atomic
 
 if TYPE_CHECKING:
     from tnsim.circuits.families import Family
@@ -51,6 +49,8 @@ _UNITS = {
 
 def records_csv(records: Sequence[BenchRecord]) -> str:
     """Return the records as CSV text (header row first)."""
+    from dataclasses import fields
+
     from tnsim.queries.costsweep import BenchRecord
 
     buf = io.StringIO()
@@ -69,6 +69,8 @@ def _clean(value):
 
 def records_json(records: Sequence[BenchRecord], settings: dict, matmul_rate: float) -> str:
     """Return records, settings, units, the matmul rate and the machine as JSON text."""
+    from dataclasses import asdict
+
     from tnsim.queries.costsweep import machine_info
 
     doc = {
@@ -151,6 +153,8 @@ def plot_records(
     )
     bx.legend(fontsize=7)
     fig.tight_layout()
+    from tnsim.fileio import write_atomic
+
     try:
         write_atomic(path, lambda fh: fig.savefig(fh, dpi=110, format="png"))
     except OSError as exc:
@@ -288,6 +292,8 @@ def bench_command(args) -> int:
         )
         write_output(text, args.output)
     if args.csv:
+        from tnsim.fileio import write_atomic
+
         write_atomic(args.csv, records_csv(records))
     if args.plot:
         title = f"{fam.name} " + " ".join(f"{k}={v}" for k, v in params.items())

@@ -11,7 +11,6 @@ logarithm.  JSON output holds only finite numbers: :func:`json_float` turns
 
 from __future__ import annotations
 
-import decimal
 import math
 
 __all__ = [
@@ -23,7 +22,6 @@ __all__ = [
     "scaled_text",
 ]
 
-_CONTEXT = decimal.Context(prec=40, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
 _LOG10_2 = math.log10(2.0)
 _TINY = 2.2250738585072014e-308  # smallest normal double
 
@@ -40,11 +38,14 @@ def scaled_text(mantissa: float, exponent: int, digits: int = 10, sign: bool = T
     >>> scaled_text(0.0, -10)
     '+0.0000000000e+00'
     """
+    import decimal  # only here: the command line starts without it
+
     m = float(mantissa)
     if m == 0.0:
         text = f"{0.0:.{digits}e}"
     else:
-        value = _CONTEXT.multiply(decimal.Decimal(m), _CONTEXT.power(2, int(exponent)))
+        ctx = decimal.Context(prec=40, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
+        value = ctx.multiply(decimal.Decimal(m), ctx.power(2, int(exponent)))
         text = f"{value:.{digits}e}"
         mant, _, exp = text.partition("e")
         text = f"{mant}e{int(exp):+03d}"

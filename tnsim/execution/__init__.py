@@ -9,7 +9,30 @@ model, and the engines that contract one network many times (:mod:`.batch`,
 :mod:`.livetree`).
 """
 
-from tnsim.execution.options import QueryOptions, RunOptions, resolve_options, run_options
-from tnsim.execution.slices import execute
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
 
 __all__ = ["QueryOptions", "RunOptions", "execute", "resolve_options", "run_options"]
+
+_PUBLIC = {
+    "QueryOptions": "tnsim.execution.options",
+    "RunOptions": "tnsim.execution.options",
+    "resolve_options": "tnsim.execution.options",
+    "run_options": "tnsim.execution.options",
+    "execute": "tnsim.execution.slices",
+}
+
+
+def __getattr__(name: str) -> Any:
+    """Import a public name's module on first use (PEP 562): the planner loads only when needed."""
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'tnsim.execution' has no attribute {name!r}")
+    return getattr(importlib.import_module(module), name)
+
+
+if TYPE_CHECKING:
+    from tnsim.execution.options import QueryOptions, RunOptions, resolve_options, run_options
+    from tnsim.execution.slices import execute
