@@ -53,6 +53,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, parser_class=CommandParser)
     for family in (queries, cost, gen, bench, calibrate, demo, optimize):
         family.register(sub)
+    parser.commands = tuple(sub.choices)  # for main's pointers to a subcommand's help
     return parser
 
 
@@ -95,12 +96,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status (2 for a user's mistake)."""
     argv = glue_values(sys.argv[1:] if argv is None else list(argv))
     reset_inputs()
-    command = next((a for a in argv if not a.startswith("-")), None)
+    parser = build_parser()
+    command = next((a for a in argv if a in parser.commands), None)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("default", FutureWarning)
             warnings.showwarning = _show_warning
-            args = build_parser().parse_args(argv)
+            args = parser.parse_args(argv)
             command = args.command
             with options_from_args(args):
                 status = args.func(args)
@@ -108,8 +110,11 @@ def main(argv: Sequence[str] | None = None) -> int:
             return status
     except OptionError as exc:
         message = str(exc)
-        if "--help" not in message and command:
-            message += f" (see 'tnsim {command} --help')"
+        if command:
+            if "(see 'tnsim --help')" in message:  # e.g. an unknown option after the command
+                message = message.replace("'tnsim --help'", f"'tnsim {command} --help'")
+            elif "--help" not in message:
+                message += f" (see 'tnsim {command} --help')"
         print(f"tnsim: error: {message}", file=sys.stderr)
         return 2
     except TnsimError as exc:

@@ -372,7 +372,10 @@ def check_array(count: int, width: int, what: str) -> None:
 
 
 def check_paths(args: argparse.Namespace) -> None:
-    """Check ``-o`` and ``--checkpoint`` before any work, so a long run cannot fail at the end."""
+    """Check ``-o``, ``--checkpoint`` and ``-`` inputs before any work.
+
+    So a long run cannot fail at its end for a path it could have refused at once.
+    """
     for option, path in (("-o", getattr(args, "output", None)),):
         if not path or path == "-":
             continue
@@ -381,6 +384,16 @@ def check_paths(args: argparse.Namespace) -> None:
         folder = os.path.dirname(os.path.abspath(path))
         if not os.path.isdir(folder):
             raise OptionError(f"{option} {path}: folder {folder} does not exist")
+    stdin = [
+        name
+        for name in ("circuit", "samples", "bits_file", "observable_file")
+        if getattr(args, name, None) == "-"
+    ]
+    if len(stdin) > 1:
+        raise OptionError(
+            f"the {' and the '.join(n.replace('_', ' ') for n in stdin)} are both '-'; only one "
+            "input can come from standard input"
+        )
     ckpt = getattr(args, "checkpoint", None)
     if ckpt:
         probe = os.path.abspath(ckpt)
@@ -458,7 +471,7 @@ class RunStats:
             + (f" (limit {format_bytes(limit, 1)})" if limit else "")
             + f", {d['workers']} worker(s)",
             f"stats: contraction {d['contraction_seconds']:.3g} s"
-            + (f" at {rate:.3g} GFLOP/s" if rate else "")
+            + (f" at {rate:.3g} GFLOP/s" if rate is not None else "")
             + f"; wall {d['wall_seconds']:.3g} s (other: planning, network building, I/O)",
         ]
         return "\n".join(lines)
@@ -472,13 +485,13 @@ def options_from_args(args) -> Iterator[None]:
     ``distributed.Client`` for the block and closes it afterwards; with
     ``--stats`` the block keeps a log in ``args.run_stats``.
     """
+    check_paths(args)
     if not hasattr(args, "memory") and not hasattr(args, "stats"):
         yield None  # commands that contract nothing
         return
     from tnsim.execution.backends import get_backend
     from tnsim.execution.options import run_options
 
-    check_paths(args)
     quiet = getattr(args, "quiet", False) or bool(getattr(args, "json", False))
     changes: dict = {"progress": False} if quiet else {}
     for name in ("memory_limit", "workers", "checkpoint"):
