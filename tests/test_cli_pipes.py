@@ -248,7 +248,8 @@ def _json_outputs(paths, d) -> list[list[str]]:
     ]
 
 
-def test_every_json_output_is_strict_json(files, cli):
+def test_every_json_output_is_strict_json(files, cli, tmp_path, monkeypatch):
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))  # calibrate writes its rates there
     d, paths = files
     zero = "0101\n1010\n"
     for argv in _json_outputs(paths, d):
@@ -339,3 +340,23 @@ def test_stdin_circuit_errors_name_stdin(cli):
     assert err.startswith("tnsim: error: <stdin>:3:1:")
     err = cli("xeb", "-", "-", stdin="", status=2)
     assert "only one input" in err
+
+
+def test_gen_writes_where_the_circuit_came_from_and_strict_files(cli, tmp_path):
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.circuits.qasm.header import ORIGINAL_QELIB1
+
+    args = ["gen", "grid", "--param", "rows=2", "--param", "cols=3", "--param", "seed=4"]
+    text = cli(*args, "--param", "two_qubit=fsim", "--library", "original")
+    head = text.splitlines()[:6]
+    assert head[0] == "OPENQASM 2.0;" and head[2] == "// family: grid"
+    assert head[3] == "// parameters: rows=2 cols=3 depth=8 two_qubit=fsim seed=4"
+    assert head[4] == "// seed: 4"
+    calls = {line.split()[0].split("(")[0] for line in text[text.index("qreg") :].splitlines()[1:]}
+    assert calls <= set(ORIGINAL_QELIB1) | {"sx", "fsim", "U"}  # sx and fsim defined above
+    assert "gate sx a {" in text and "gate fsim(theta, phi) a, b {" in text
+    want = grid_circuit(2, 3, 8, two_qubit="fsim", seed=4)
+    assert read_qasm(text).ops == want.ops
+    # The command in the header makes the same file again.
+    again = cli(*head[5].removeprefix("// command: tnsim ").split(), "--library", "original")
+    assert again == text
