@@ -115,8 +115,8 @@ ROWS = [
     ("unknown option", ["amp", "c.qasm", "--colour"], "see 'tnsim amp --help'"),
     (
         "marginal of too many qubits",
-        ["marginal", "c.qasm", "--qubits", ",".join(map(str, range(31)))],
-        "at most 30",
+        ["marginal", "c.qasm", "--qubits", ",".join(map(str, range(25)))],
+        "at most 24",
     ),
     ("family parameter twice", ["gen", "ghz", "--param", "n=3", "--param", "n=4"], "given twice"),
 ]

@@ -2,10 +2,10 @@
 
 Gates (:mod:`.gates`), the :class:`Circuit` model (:mod:`.circuit`), named
 gate angles (:mod:`.parameters`) and the gates' parameter-shift rules
-(:mod:`.shifts`), bitstrings (:mod:`.bits`), seeded circuit families
-(:mod:`.families`), graphs for QAOA (:mod:`.graphs`) and the QAOA ansatz with
-named angles (:mod:`.qaoa`), OpenQASM readers and writers (:mod:`.qasm`).
-Nothing here knows about tensors.
+(:mod:`.shifts`), bitstrings (:mod:`.bits`) and their files and orders
+(:mod:`.bitfiles`), seeded circuit families (:mod:`.families`), graphs for QAOA
+(:mod:`.graphs`) and the QAOA ansatz with named angles (:mod:`.qaoa`), OpenQASM
+readers and writers (:mod:`.qasm`).  Nothing here knows about tensors.
 """
 
 from tnsim.circuits.circuit import Circuit, Operation

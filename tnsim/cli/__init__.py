@@ -7,6 +7,13 @@ prints one line on stderr and exits with status 2; nothing is written then.
 A closed output pipe (``tnsim ... | head``) ends the command quietly with
 status 0.  Only the parser is built at start-up: each command imports what it
 needs when it runs, so ``tnsim --help`` is quick.
+
+Modules: :mod:`.queries` (amp, marginal, expect, sample, xeb), :mod:`.cost`,
+:mod:`.gen`, :mod:`.bench`, :mod:`.calibrate`, :mod:`.demo`; shared:
+:mod:`.common` (parser type, checked argument types, the common flags —
+:func:`~tnsim.cli.common.add_query_arguments` gives a new query command all of
+them), :mod:`.inputs` (bitstrings, qubit lists, observables a command is asked
+about) and :mod:`.numbers` (exact decimal text of scaled values, strict JSON).
 """
 
 from __future__ import annotations

@@ -52,10 +52,10 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
     from tnsim.queries.marginals import marginal
 
     qubits = [q for text in args.qubits for q in parse_qubit_list(text)]
-    if len(qubits) > 30:
+    if len(qubits) > 24:
         raise OptionError(
             f"--qubits lists {len(qubits)} qubits: 2^{len(qubits)} outcomes are too many to "
-            "print; list at most 30 (or sample the circuit)"
+            "print; list at most 24 (or sample the circuit)"
         )
     circuit = load_circuit(args.circuit)
     probs = marginal(circuit, qubits, dtype=dtype_of(args))

@@ -3,8 +3,9 @@
 Each query composes the stages below it: amplitudes (:mod:`.amplitudes`),
 marginals (:mod:`.marginals`), expectation values (:mod:`.expectation`,
 observables in :mod:`.observables`), samples (:mod:`.sampling`,
-:mod:`.gatewise`), XEB (:mod:`.xeb`), forecasts (:mod:`.forecast`), any
-einsum (:mod:`.contract`), contraction-cost sweeps (:mod:`.costsweep`), and
+:mod:`.gatewise`), XEB (:mod:`.xeb`), forecasts of one amplitude
+(:mod:`.forecast`) and of whole queries (:mod:`.workload`), any einsum
+(:mod:`.contract`), contraction-cost sweeps (:mod:`.costsweep`), and
 variational workloads: energies of circuits with named angles over many values
 (:mod:`.landscape`), their gradients (:mod:`.gradients`), angle optimization
 (:mod:`.optimize`) and QAOA MaxCut (:mod:`.maxcut`).
