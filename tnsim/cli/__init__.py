@@ -47,7 +47,7 @@ class _Version(argparse.Action):
         parser.exit()
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser() -> CommandParser:
     """Return the argument parser of the ``tnsim`` command."""
     parser = CommandParser(
         prog="tnsim",

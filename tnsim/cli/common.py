@@ -82,6 +82,9 @@ def warn(message: str) -> None:
 class CommandParser(argparse.ArgumentParser):
     """An argument parser whose errors are one line and exit status 2."""
 
+    commands: tuple[str, ...] = ()
+    """The subcommands' names (set on the top-level parser, for pointers to their help)."""
+
     def error(self, message: str):
         """Raise the message as an :class:`OptionError` (one line, status 2)."""
         raise OptionError(f"{self.prog}: {message} (see '{self.prog} --help')")
@@ -478,7 +481,7 @@ class RunStats:
 
 
 @contextlib.contextmanager
-def options_from_args(args) -> Iterator[None]:
+def options_from_args(args: argparse.Namespace) -> Iterator[object]:
     """Enter a :func:`run_options` block from parsed command-line arguments.
 
     Arguments the parser lacks are left at their defaults; ``--dask`` connects a

@@ -278,10 +278,12 @@ def _cmd_amp(args: argparse.Namespace) -> int:
         emit_stats(args, doc)
         write_output(_json_text(doc), args.output)
         return 0
-    stream = io.StringIO() if args.output else sys.stdout
-    _amp_table(records, len(rows), shown.shape[1], args.full_bits, args.bit_order, stream)
     if args.output:
-        write_output(stream.getvalue(), args.output)
+        buffer = io.StringIO()
+        _amp_table(records, len(rows), shown.shape[1], args.full_bits, args.bit_order, buffer)
+        write_output(buffer.getvalue(), args.output)
+    else:
+        _amp_table(records, len(rows), shown.shape[1], args.full_bits, args.bit_order, sys.stdout)
     emit_stats(args)
     return 0
 

@@ -185,14 +185,17 @@ def forecast_amplitudes(
     route = amplitude_route(circuit, rows, dtype=dt, memory_limit=opts.memory_limit)
     k = len(route.vary)
     differ = "1 qubit differs" if k == 1 else f"{k} qubits differ"
+    assert route.plan is not None  # every route has a plan
     if route.kind == "open":
         tally.add_plan(route.plan)
         return tally.report("amplitudes", f"open legs ({differ})")
+    assert route.first is not None
     if route.kind == "rows":
         tally.add_plan(route.plan, len(rows))
         tally.fixed += ROW_SECONDS * len(route.first) * len(rows)
         return tally.report("amplitudes", f"one contraction per bitstring ({differ})")
     engine = route.engine
+    assert engine is not None  # a "batched" route has its engine
     runs = -(-len(rows) // engine.chunk)
     fixed, per_run = engine.flops()
     written = engine.written_per_run() * runs
