@@ -76,14 +76,14 @@ def test_counts_weight_samples_like_repeated_lines():
 
 
 def test_log_form_matches_exact_decimal_arithmetic_where_floats_overflow():
-    # A shallow 2,000-qubit circuit: its own samples have 2^n p(x) ~ 10^(hundreds) and the
+    # A shallow 1,200-qubit circuit: its own samples have 2^n p(x) ~ 10^(hundreds) and the
     # squares in the standard deviation overflow float64.  Reference: the same mean and
     # sample standard deviation in Python's decimal arithmetic (28+ digits, no overflow).
     import decimal
 
     from tnsim.queries.xeb import log2_scaled_probabilities
 
-    c = brickwork(2000, 2, seed=3)
+    c = brickwork(1200, 1, seed=3)
     rows = sample(c, 6, seed=2)
     with np.errstate(all="raise"):
         r = xeb(c, rows)
