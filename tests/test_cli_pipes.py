@@ -350,7 +350,7 @@ def test_gen_writes_where_the_circuit_came_from_and_strict_files(cli, tmp_path):
     text = cli(*args, "--param", "two_qubit=fsim", "--library", "original")
     head = text.splitlines()[:6]
     assert head[0] == "OPENQASM 2.0;" and head[2] == "// family: grid"
-    assert head[3] == "// parameters: rows=2 cols=3 depth=8 two_qubit=fsim seed=4"
+    assert head[3] == "// parameters: rows=2 cols=3 depth=8 two_qubit=fsim seed=4 sequence=rotation"
     assert head[4] == "// seed: 4"
     calls = {line.split()[0].split("(")[0] for line in text[text.index("qreg") :].splitlines()[1:]}
     assert calls <= set(ORIGINAL_QELIB1) | {"sx", "fsim", "U"}  # sx and fsim defined above
