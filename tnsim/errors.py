@@ -10,6 +10,7 @@ from __future__ import annotations
 __all__ = [
     "CheckpointError",
     "InputError",
+    "OutputError",
     "PlanningError",
     "QasmError",
     "ResourceLimitError",
@@ -53,3 +54,10 @@ class ResourceLimitError(TnsimError):
 
 class CheckpointError(TnsimError):
     """A checkpoint file is missing, corrupt, or belongs to another run."""
+
+
+class OutputError(TnsimError):
+    """An output could not be written (full disk, I/O error, no permission, closed stream).
+
+    Nothing partial is left: a file being replaced keeps its old contents.
+    """

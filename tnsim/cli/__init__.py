@@ -5,7 +5,9 @@
 user's mistake (any :class:`~tnsim.errors.TnsimError`, or a bad option)
 prints one line on stderr and exits with status 2; nothing is written then.
 A closed output pipe (``tnsim ... | head``) ends the command quietly with
-status 0.  Only the parser is built at start-up: each command imports what it
+status 0; an output that cannot be written (full disk, I/O error) prints one
+line and exits with status 1 (standard output is flushed and checked before
+success is reported).  Only the parser is built at start-up: each command imports what it
 needs when it runs, so ``tnsim --help`` is quick.
 
 Modules: :mod:`.queries` (amp, marginal, expect, sample, xeb), :mod:`.cost`,
@@ -19,6 +21,7 @@ about) and :mod:`.numbers` (exact decimal text of scaled values, strict JSON).
 from __future__ import annotations
 
 import argparse
+import errno
 import os
 import sys
 import warnings
@@ -26,7 +29,7 @@ from collections.abc import Sequence
 
 from tnsim.cli import bench, calibrate, cost, demo, gen, optimize, queries
 from tnsim.cli.common import BITS_HELP, CommandParser, OptionError, options_from_args, reset_inputs
-from tnsim.errors import TnsimError
+from tnsim.errors import OutputError, TnsimError
 
 __all__ = ["build_parser", "main"]
 
@@ -105,6 +108,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     reset_inputs()
     parser = build_parser()
     command = next((a for a in argv if a in parser.commands), None)
+    real_stdout = sys.stdout
+    sys.stdout = _CheckedStream(real_stdout)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("default", FutureWarning)
@@ -124,15 +129,71 @@ def main(argv: Sequence[str] | None = None) -> int:
                 message += f" (see 'tnsim {command} --help')"
         print(f"tnsim: error: {message}", file=sys.stderr)
         return 2
+    except OutputError as exc:
+        print(f"tnsim: error: {exc}", file=sys.stderr)
+        return 1
     except TnsimError as exc:
         print(f"tnsim: error: {exc}", file=sys.stderr)
         return 2
+    except _StreamFailed as exc:
+        return _stdout_failed(exc.error, real_stdout)
     except BrokenPipeError:
-        # The reader went away (``tnsim ... | head``): not an error.  Point stdout at
-        # /dev/null so the interpreter's final flush does not complain again.
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-        return 0
+        return _stdout_failed(BrokenPipeError(errno.EPIPE, "Broken pipe"), real_stdout)
     except KeyboardInterrupt:
         print("tnsim: interrupted", file=sys.stderr)
         return 130
+    finally:
+        sys.stdout = real_stdout
+
+
+class _StreamFailed(Exception):
+    """A write to standard output failed; ``error`` is the operating system's error."""
+
+    def __init__(self, error: OSError):
+        super().__init__(str(error))
+        self.error = error
+
+
+class _CheckedStream:
+    """Standard output whose failed writes are told apart from every other error."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        try:
+            return self._stream.write(text)
+        except OSError as exc:
+            raise _StreamFailed(exc) from None
+
+    def flush(self) -> None:
+        try:
+            self._stream.flush()
+        except OSError as exc:
+            raise _StreamFailed(exc) from None
+
+    def __getattr__(self, name: str):
+        return getattr(self._stream, name)
+
+
+def _stdout_failed(exc: OSError, stream) -> int:
+    """End after a failed write to standard output: quietly for a closed pipe (status 0).
+
+    The stream is pointed at the null device first, so what is left in its
+    buffer cannot fail again at the interpreter's exit.
+    """
+    _silence(stream)
+    if isinstance(exc, BrokenPipeError) or exc.errno == errno.EPIPE:
+        return 0  # the reader went away (``tnsim ... | head``): not an error
+    print(f"tnsim: error: cannot write to standard output: {exc.strerror or exc}", file=sys.stderr)
+    return 1
+
+
+def _silence(stream) -> None:
+    try:
+        fd = stream.fileno()
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, fd)
+        os.close(null)
+    except (OSError, ValueError, AttributeError):
+        pass

@@ -412,7 +412,13 @@ def check_paths(args: argparse.Namespace) -> None:
 
 
 def write_output(text: str, path: str | None) -> None:
-    """Write ``text`` to ``path`` atomically, or to standard output when ``path`` is empty."""
+    """Write ``text`` to ``path``, or to standard output when ``path`` is empty or ``-``.
+
+    Files go through :func:`tnsim.fileio.write_atomic` (regular files replaced
+    whole, symbolic links written through, devices and FIFOs written
+    directly, read-only files refused); standard output is checked by
+    :func:`tnsim.cli.main` before it reports success.
+    """
     from tnsim.fileio import write_atomic
 
     if path and path != "-":

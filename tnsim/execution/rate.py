@@ -21,7 +21,7 @@ import time
 
 import numpy as np
 
-from tnsim.errors import InputError
+from tnsim.errors import TnsimError
 from tnsim.fileio import write_atomic
 
 __all__ = [
@@ -115,7 +115,7 @@ def _store(updates: dict) -> None:
     try:
         os.makedirs(os.path.dirname(cache_file()), exist_ok=True)
         write_atomic(cache_file(), json.dumps(stored, indent=1))
-    except (OSError, InputError):
+    except (OSError, TnsimError):  # a cache that cannot be written is only not kept
         pass
 
 
