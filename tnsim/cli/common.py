@@ -32,6 +32,7 @@ __all__ = [
     "add_bit_order_argument",
     "add_limit_arguments",
     "add_output_arguments",
+    "add_plan_arguments",
     "add_precision_argument",
     "add_query_arguments",
     "add_run_arguments",
@@ -263,6 +264,33 @@ def add_run_arguments(parser) -> None:
     )
 
 
+def add_plan_arguments(parser, *, time_budget: bool = True) -> None:
+    """Add ``--plan FILE``, ``--save-plan FILE`` (and ``--time-budget S``) to a (sub)parser.
+
+    :func:`options_from_args` hands them to :func:`run_options` (``plan_file``,
+    ``save_plans``, ``time_budget``): plans are read from a file instead of made
+    (a plan made for another network is refused), or saved for a later ``--plan``.
+    """
+    group = parser.add_argument_group("plans")
+    group.add_argument(
+        "--plan",
+        metavar="FILE",
+        help="use the plans saved in FILE instead of planning (a plan made for another "
+        "circuit, bitstring, query or precision is refused)",
+    )
+    group.add_argument(
+        "--save-plan", metavar="FILE", help="save the plans made to FILE (JSON) for --plan"
+    )
+    if time_budget:
+        group.add_argument(
+            "--time-budget",
+            type=seconds_type,
+            metavar="S",
+            help="seconds of planner search (default: automatic); a checkpointed run that "
+            "resumes takes its kept plan and does not plan",
+        )
+
+
 def add_query_arguments(parser, *, bit_order: bool = True, stream_note: str = "") -> None:
     """Add every flag a query command shares: output, precision, stats, bit order, run options."""
     add_output_arguments(parser, stream_note=stream_note)
@@ -271,6 +299,7 @@ def add_query_arguments(parser, *, bit_order: bool = True, stream_note: str = ""
     if bit_order:
         add_bit_order_argument(parser)
     add_run_arguments(parser)
+    add_plan_arguments(parser)
 
 
 def dtype_of(args: argparse.Namespace):
@@ -503,8 +532,16 @@ def options_from_args(args: argparse.Namespace) -> Iterator[object]:
 
     quiet = getattr(args, "quiet", False) or bool(getattr(args, "json", False))
     changes: dict = {"progress": False} if quiet else {}
-    for name in ("memory_limit", "workers", "checkpoint"):
-        value = getattr(args, "memory" if name == "memory_limit" else name, None)
+    flags = {
+        "memory_limit": "memory",
+        "workers": "workers",
+        "checkpoint": "checkpoint",
+        "time_budget": "time_budget",
+        "plan_file": "plan",
+        "save_plans": "save_plan",
+    }
+    for name, flag in flags.items():
+        value = getattr(args, flag, None)
         if value is not None:
             changes[name] = value
     backend = getattr(args, "array_backend", None)

@@ -20,6 +20,7 @@ from tnsim.cli.common import (
     add_bit_order_argument,
     add_limit_arguments,
     add_output_arguments,
+    add_plan_arguments,
     add_precision_argument,
     count_type,
     dtype_of,
@@ -323,4 +324,5 @@ def register(sub) -> None:
     add_precision_argument(cost)
     add_bit_order_argument(cost)
     add_output_arguments(cost)
+    add_plan_arguments(cost, time_budget=False)
     cost.set_defaults(func=_cmd_cost)

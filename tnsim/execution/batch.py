@@ -17,6 +17,7 @@ from collections.abc import Callable, Sequence
 
 import numpy as np
 
+from tnsim.execution.budget import kept_plan
 from tnsim.execution.options import ContractionRecord, QueryOptions, resolve_options
 from tnsim.execution.slices import execute
 from tnsim.execution.steps import apply_step, compile_tree, count_flops, largest_intermediate
@@ -243,8 +244,10 @@ class BatchContraction:
 def _planner(memory_limit: int, runs: float | None) -> Callable[[TensorGraph], Plan]:
     """The planner of a batch member's network: searched longer for many ``runs``."""
     if runs is not None:
-        return lambda net: plan_for_runs(net, runs, memory_limit=memory_limit)
-    return lambda net: make_plan(net, memory_limit=memory_limit)
+        return lambda net: kept_plan(
+            net, lambda: plan_for_runs(net, runs, memory_limit=memory_limit)
+        )
+    return lambda net: kept_plan(net, lambda: make_plan(net, memory_limit=memory_limit))
 
 
 def fitted_engine(

@@ -1,5 +1,7 @@
 """Plans that fit the memory limit of a run.
 
+Every query gets its plans here (:func:`fit_plan`, :func:`kept_plan`), so a
+checkpointed or plan-file run takes its kept plans instead of planning.
 The planner counts memory as the executor allocates it (operand copies
 included, :func:`tnsim.plan.tree.tree_cost`), so a plan sliced to a limit runs
 under it.  :func:`fit_plan` plans for the per-slice limit of a query's
@@ -11,17 +13,25 @@ available memory, divided among local workers).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 import numpy as np
 
 from tnsim.errors import ResourceLimitError
-from tnsim.execution.options import QueryOptions
+from tnsim.execution.options import QueryOptions, current_options
 from tnsim.execution.steps import compile_tree, peak_memory
 from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import Plan, make_plan
 from tnsim.units import format_bytes
 
-__all__ = ["MAX_SLICES", "check_slices", "fit_plan", "plan_peak_memory", "smallest_limit"]
+__all__ = [
+    "MAX_SLICES",
+    "check_slices",
+    "fit_plan",
+    "kept_plan",
+    "plan_peak_memory",
+    "smallest_limit",
+]
 
 MAX_SLICES = 2**24
 """Most slices a run may have: a plan sliced further is refused, naming the smallest memory
@@ -64,9 +74,26 @@ def fit_plan(network: TensorGraph, options: QueryOptions, *, seed: int = 0) -> P
     >>> plan_peak_memory(tn, fit_plan(tn, resolve_options("1MiB"))) <= 2**20
     True
     """
-    plan = make_plan(network, memory_limit=options.slice_limit, seed=seed)
+    budget = options.block.time_budget
+    plan = kept_plan(
+        network,
+        lambda: make_plan(network, memory_limit=options.slice_limit, seed=seed, time_budget=budget),
+    )
     check_slices(plan, options.slice_limit)
     return plan
+
+
+def kept_plan(network: TensorGraph, make: Callable[[], Plan]) -> Plan:
+    """The plan of ``network`` in the enclosing run-options block: kept, or ``make()``.
+
+    Inside a :func:`tnsim.execution.options.run_options` block with a checkpoint
+    folder or plan files, the plan is taken from them when they hold one for
+    this very network (:class:`tnsim.execution.keptplans.PlanKeeper`) -- a
+    resumed run never plans again -- and a new plan is kept there before it
+    runs.  Elsewhere this is ``make()``.
+    """
+    keeper = current_options().plans
+    return make() if keeper is None else keeper.plan(network, make)
 
 
 def smallest_limit(plan: Plan, max_slices: int | None = None) -> int:

@@ -11,7 +11,11 @@ The options are held in a :class:`contextvars.ContextVar`, so threads and
 asyncio tasks each see their own.  With ``checkpoint`` set here (a folder),
 contraction number ``k`` of the block records its progress in
 ``<folder>/part-<k>.ckpt``; rerunning the same code resumes each part, and a
-part from another circuit or plan is refused.
+part from another circuit or plan is refused.  The plans of the block are
+kept in ``<folder>/plans.json`` before the first slice runs, and a rerun takes
+them from there instead of planning (:mod:`tnsim.execution.keptplans`); the
+folder is locked while the block runs.  ``plan_file`` and ``save_plans`` read
+and write plans the same way in a plan file of their own.
 
 :func:`resolve_options` is the one place where the options of a query are
 worked out: an argument wins over the enclosing block, the block over the
@@ -32,6 +36,7 @@ from typing import Any
 import numpy as np
 
 from tnsim.errors import InputError
+from tnsim.execution.keptplans import PlanKeeper
 from tnsim.execution.memory import default_memory_limit
 from tnsim.units import parse_memory
 
@@ -111,6 +116,13 @@ class RunOptions:
     log : list, optional
         A list that every contraction of the block appends its
         :class:`ContractionRecord` to (what ran: FLOPs, slices, memory, seconds).
+    time_budget : float, optional
+        Seconds of planner search for the plans made in the block (default: automatic).
+    plan_file : str, optional
+        Plan file (:mod:`tnsim.plan.store`) every plan of the block is read
+        from; a network it holds no plan for is refused, nothing is planned.
+    save_plans : str, optional
+        Plan file the plans of the block are written to.
     """
 
     memory_limit: int | None = None
@@ -121,7 +133,11 @@ class RunOptions:
     progress: Progress = None
     backend: str = "numpy"
     log: list[ContractionRecord] | None = None
+    time_budget: float | None = None
+    plan_file: str | None = None
+    save_plans: str | None = None
     counter: list[int] = field(default_factory=lambda: [0], compare=False, repr=False)
+    plans: PlanKeeper | None = field(default=None, compare=False, repr=False)
 
     def next_checkpoint(self) -> str | None:
         """Return the checkpoint file of the next contraction (``None`` without a folder)."""
@@ -194,11 +210,14 @@ def run_options(**changes: Any) -> Iterator[RunOptions]:
     >>> current_options().memory_limit is None
     True
     """
-    unknown = set(changes) - {f for f in RunOptions.__dataclass_fields__ if f != "counter"}
+    unknown = set(changes) - {
+        f for f in RunOptions.__dataclass_fields__ if f not in ("counter", "plans")
+    }
     if unknown:
         raise InputError(
             f"unknown run options {sorted(unknown)}; the options are memory_limit, dtype, "
-            "executor, workers, checkpoint, progress, backend and log"
+            "executor, workers, checkpoint, progress, backend, log, time_budget, plan_file "
+            "and save_plans"
         )
     if changes.get("memory_limit") is not None:
         changes["memory_limit"] = parse_memory(changes["memory_limit"])
@@ -212,12 +231,26 @@ def run_options(**changes: Any) -> Iterator[RunOptions]:
             raise InputError(f"checkpoint {folder!r} exists and is not a folder; give a folder")
         os.makedirs(folder, exist_ok=True)
         changes["checkpoint"] = folder
+    _check_time_budget(changes.get("time_budget"))
     options = replace(current_options(), counter=[0], **changes)
-    token = _CURRENT.set(options)
-    try:
-        yield options
-    finally:
-        _CURRENT.reset(token)
+    with contextlib.ExitStack() as stack:
+        if {"checkpoint", "plan_file", "save_plans"} & set(changes):
+            keeper = PlanKeeper(options.checkpoint, options.plan_file, options.save_plans)
+            options = replace(options, plans=stack.enter_context(keeper))
+        token = _CURRENT.set(options)
+        try:
+            yield options
+        finally:
+            _CURRENT.reset(token)
+
+
+def _check_time_budget(value) -> None:
+    if value is None:
+        return
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError(f"time_budget must be a number of seconds, got {str(value)[:40]!r}")
+    if not (0 < value < float("inf")):
+        raise InputError(f"time_budget must be a finite positive number of seconds, got {value}")
 
 
 @dataclass(frozen=True)

@@ -23,12 +23,14 @@ from tnsim.errors import InputError, ResourceLimitError
 from tnsim.execution.backends import get_backend
 from tnsim.execution.checkpoint import Checkpoint, OrderedSum, run_fingerprint
 from tnsim.execution.executors import SliceError, chunk_bounds, local_workers, run_chunks
+from tnsim.execution.keptplans import start_afresh
 from tnsim.execution.options import ContractionRecord, MemoryLimit, Progress, resolve_options
 from tnsim.execution.progress import SliceProgress
 from tnsim.execution.steps import PairStep, compile_tree, count_flops, peak_memory
 from tnsim.execution.treerun import contract_tree
 from tnsim.network.graph import TensorGraph
 from tnsim.network.scaled import Scaled
+from tnsim.plan.store import network_fingerprint
 from tnsim.plan.tree import PairTree
 from tnsim.units import format_bytes
 
@@ -134,9 +136,11 @@ def _check_memory(need: int, limit: int, workers: int) -> None:
     )
 
 
-def _fingerprint(network: TensorGraph, job: SliceJob, bounds) -> str:
+def _fingerprint(network_key: str, network: TensorGraph, job: SliceJob, bounds) -> str:
+    """SHA-256 of everything that fixes the bits of the result: network, plan, chunks, backend."""
     tree = job.tree
     description = {
+        "network": network_key,
         "indices": [list(ix) for ix in tree.inputs],
         "output": list(tree.output),
         "size": sorted([int(k), int(v)] for k, v in tree.size.items()),
@@ -147,7 +151,7 @@ def _fingerprint(network: TensorGraph, job: SliceJob, bounds) -> str:
         "exponent": int(network.exponent),
         "backend": job.backend,
     }
-    return run_fingerprint(job.arrays, description)
+    return run_fingerprint((), description)
 
 
 def execute(
@@ -247,6 +251,9 @@ def execute(
         opts.progress,
     )
     checkpoint = opts.checkpoint_file()
+    fresh = None
+    if opts.checkpoint is None and checkpoint is not None:
+        fresh = start_afresh(opts.block.checkpoint)
     steps = compile_tree(tree, sliced)
     need = peak_memory(tree, steps, np.dtype(network.dtype).itemsize)
     job = SliceJob(tuple(network.arrays), tree, sliced, ops.name)
@@ -257,53 +264,85 @@ def execute(
             "(and far more than can be run); plan with a larger memory limit"
         )
     slice_flops = count_flops(steps)
-    bounds = chunk_bounds(num_slices, slice_flops, chunk_size)
-    if executor is None and workers is None:
-        big = slice_flops * num_slices >= 1e11 and len(bounds) > 1
-        workers = min(local_workers(), len(bounds), max(1, limit // max(need, 1))) if big else 1
-    pool = 1 if executor is not None else max(1, int(workers or 1))
-    _check_memory(need, limit, pool)
-    if checkpoint is not None:
-        store = Checkpoint(checkpoint, _fingerprint(network, job, bounds), len(bounds), Scaled)
-        sums, record = store.sums, store.add
-    else:
-        sums = OrderedSum(len(bounds))
-        record = sums.add
-    done = sums.done()
-    todo = [i for i in range(len(bounds)) if i not in done]
-    done_slices = sum(bounds[i][1] - bounds[i][0] for i in done)
-    bar = SliceProgress(progress, num_slices, len(bounds), slice_flops, done_slices, len(done))
+    run = _Run(network, job, slice_flops, need, limit, executor, workers, progress)
+    if checkpoint is None:
+        return run.go(chunk_size, None, opts)
+    with Checkpoint.open(checkpoint, fresh) as store:
+        return run.go(chunk_size, store, opts)
 
-    def finished(index: int, value: Scaled) -> None:
-        record(index, value)
-        bar.advance(bounds[index][1] - bounds[index][0])
 
-    began = time.perf_counter()
-    try:
-        run_chunks(
-            contract_slices,
-            job,
-            bounds,
-            todo,
-            finished,
-            executor=executor,
-            workers=min(pool, max(len(todo), 1)),
+@dataclass
+class _Run:
+    """One call of :func:`execute` once its plan is compiled: chunks, workers, the loop."""
+
+    network: TensorGraph
+    job: SliceJob
+    slice_flops: int
+    need: int
+    limit: int
+    executor: Executor | None
+    workers: int | None
+    progress: object
+
+    def go(self, chunk_size: int | None, store: Checkpoint | None, opts) -> Scaled:
+        network, job = self.network, self.job
+        num_slices = math.prod(job.dims)
+        if chunk_size is None and store is not None:
+            chunk_size = store.stored_chunk_size
+        bounds = chunk_bounds(num_slices, self.slice_flops, chunk_size)
+        executor, workers = self.executor, self.workers
+        if executor is None and workers is None:
+            big = self.slice_flops * num_slices >= 1e11 and len(bounds) > 1
+            cap = max(1, self.limit // max(self.need, 1))
+            workers = min(local_workers(), len(bounds), cap) if big else 1
+        pool = 1 if executor is not None else max(1, int(workers or 1))
+        _check_memory(self.need, self.limit, pool)
+        if store is not None:
+            key = network_fingerprint(network)
+            size = bounds[0][1] - bounds[0][0] if bounds else 1
+            fingerprint = _fingerprint(key, network, job, bounds)
+            store.bind(fingerprint, key, size, len(bounds), Scaled)
+            sums, record = store.sums, store.add
+        else:
+            sums = OrderedSum(len(bounds))
+            record = sums.add
+        done = sums.done()
+        todo = [i for i in range(len(bounds)) if i not in done]
+        done_slices = sum(bounds[i][1] - bounds[i][0] for i in done)
+        bar = SliceProgress(
+            self.progress, num_slices, len(bounds), self.slice_flops, done_slices, len(done)
         )
-    finally:
-        bar.close()
-    total = sums.total()
-    if opts.log is not None:
-        run = sum(bounds[i][1] - bounds[i][0] for i in todo)
-        opts.log.append(
-            ContractionRecord(
-                flops=slice_flops * run,
-                num_slices=num_slices,
-                slices_run=run,
-                peak_bytes=need,
-                memory_limit=limit,
-                workers=pool,
-                seconds=time.perf_counter() - began,
-                itemsize=np.dtype(network.dtype).itemsize,
+
+        def finished(index: int, value: Scaled) -> None:
+            record(index, value)
+            bar.advance(bounds[index][1] - bounds[index][0])
+
+        began = time.perf_counter()
+        try:
+            run_chunks(
+                contract_slices,
+                job,
+                bounds,
+                todo,
+                finished,
+                executor=executor,
+                workers=min(pool, max(len(todo), 1)),
             )
-        )
-    return Scaled(total.mantissa, total.exponent + network.exponent)
+        finally:
+            bar.close()
+        total = sums.total()
+        if opts.log is not None:
+            ran = sum(bounds[i][1] - bounds[i][0] for i in todo)
+            opts.log.append(
+                ContractionRecord(
+                    flops=self.slice_flops * ran,
+                    num_slices=num_slices,
+                    slices_run=ran,
+                    peak_bytes=self.need,
+                    memory_limit=self.limit,
+                    workers=pool,
+                    seconds=time.perf_counter() - began,
+                    itemsize=np.dtype(network.dtype).itemsize,
+                )
+            )
+        return Scaled(total.mantissa, total.exponent + network.exponent)

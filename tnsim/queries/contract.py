@@ -9,6 +9,7 @@ from numpy.typing import ArrayLike
 from opt_einsum.parser import parse_einsum_input
 
 from tnsim.errors import InputError
+from tnsim.execution.budget import kept_plan
 from tnsim.execution.options import (
     DTypeLike,
     MemoryLimit,
@@ -162,7 +163,11 @@ def contract(
     net = einsum_network(equation, *operands, dtype=opts.dtype)
     real = not any(np.iscomplexobj(a) for a in operands)
     small = absorb_small(net)
-    plan = make_plan(small, memory_limit=opts.slice_limit, time_budget=time_budget, seed=seed)
+    budget = time_budget if time_budget is not None else opts.block.time_budget
+    plan = kept_plan(
+        small,
+        lambda: make_plan(small, memory_limit=opts.slice_limit, time_budget=budget, seed=seed),
+    )
     result = execute(small, plan.tree, plan.sliced, memory_limit=opts.memory_limit).value()
     result = np.asarray(result)
     if net.dtype == np.complex64:

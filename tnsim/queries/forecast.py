@@ -14,7 +14,7 @@ import opt_einsum
 
 from tnsim.circuits.bits import Bitstring
 from tnsim.circuits.circuit import Circuit
-from tnsim.execution.budget import check_slices
+from tnsim.execution.budget import check_slices, kept_plan
 from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.execution.rate import matmul_rate
 from tnsim.execution.timemodel import fixed_seconds, forecast_seconds
@@ -181,8 +181,12 @@ def forecast(
         bitstring = "0" * circuit.num_qubits
     network = amplitude_network(circuit, bitstring, dtype=dt)
     small = absorb_small(network)
-    p = make_plan(
-        small, memory_limit=limit, time_budget=time_budget, seed=seed, objective=objective
+    budget = time_budget if time_budget is not None else opts.block.time_budget
+    p = kept_plan(
+        small,
+        lambda: make_plan(
+            small, memory_limit=limit, time_budget=budget, seed=seed, objective=objective
+        ),
     )
     check_slices(p, limit)
     rate = matmul_rate(dt)
