@@ -24,7 +24,6 @@ __all__ = [
     "NARROW",
     "ROW_SECONDS",
     "SMALL_PRODUCT",
-    "STEP_SECONDS",
     "WRITE_FLOPS",
 ]
 
@@ -42,14 +41,6 @@ written (+ a per-step term), over 17 plans of grid circuits with 10^6.8 to
 10^10.4 FLOPs; 300 and 390 FLOPs per element in two runs.  Sweeps, whose every
 step rewrites the whole front to absorb one small tensor, need up to 3x fewer
 FLOPs than bisection trees there but ran 3-4x slower."""
-
-STEP_SECONDS = 7e-6
-"""Python seconds of one pairwise contraction step besides its arithmetic: what a tiny
-plan's run is made of, added to every forecast (:func:`tnsim.execution.timemodel.fixed_seconds`).
-
-6.3 and 7.3 microseconds per step measured on the development machine over 4,396 tiny
-steps (unsimplified brickwork, 400 qubits).  Refit by ``python benchmarks/scaling.py
-overhead``."""
 
 ROW_SECONDS = 5e-5
 """Python seconds per tensor of rebuilding, simplifying and contracting one bitstring's

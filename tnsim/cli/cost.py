@@ -203,9 +203,11 @@ def format_report(r: ForecastReport) -> str:
         ("elements written", f"{r.written:.4g}  (log10 {lg(r.written):.2f})"),
         (
             "forecast",
-            f"{_fmt_seconds(r.seconds)}: FLOPs at {r.flop_rate / 1e9:.3g} GFLOP/s (matmul "
-            f"rate), {WRITE_FLOPS} FLOPs' time per element written, "
-            f"{_fmt_seconds(r.fixed_seconds)} fixed per-step time",
+            f"{_fmt_seconds(r.seconds)} = {_fmt_seconds(r.compute_seconds)} compute "
+            f"({r.flops_run:.4g} FLOPs run at {r.flop_rate / 1e9:.3g} GFLOP/s, the matmul rate, "
+            f"{WRITE_FLOPS} FLOPs' time per element written) + {_fmt_seconds(r.fixed_seconds)} "
+            f"fixed ({r.steps_per_slice} steps per slice at {r.step_seconds * 1e6:.3g} us each, "
+            "measured here)",
         ),
     ]
     if r.memory_limit is not None:

@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import os
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from concurrent.futures import Executor
 from dataclasses import dataclass
 
@@ -23,6 +23,13 @@ from tnsim.errors import InputError, ResourceLimitError
 from tnsim.execution.backends import get_backend
 from tnsim.execution.checkpoint import Checkpoint, OrderedSum, run_fingerprint
 from tnsim.execution.executors import SliceError, chunk_bounds, local_workers, run_chunks
+from tnsim.execution.invariant import (
+    choose_frontier,
+    node_labels,
+    precompute,
+    reduce_tree,
+    reduced_cost,
+)
 from tnsim.execution.keptplans import start_afresh
 from tnsim.execution.options import ContractionRecord, MemoryLimit, Progress, resolve_options
 from tnsim.execution.progress import SliceProgress
@@ -37,18 +44,27 @@ from tnsim.units import format_bytes
 __all__ = ["SliceJob", "contract_slices", "execute"]
 
 
-def _slice_arrays(
-    arrays: Sequence[np.ndarray],
-    indices: Sequence[Sequence[int]],
-    sliced: Sequence[int],
-    values: Sequence[int | np.integer],
-) -> list[np.ndarray]:
-    fixed = dict(zip(sliced, values))
+def _slicer(
+    indices: Sequence[Sequence[int]], sliced: Sequence[int]
+) -> list[tuple[int, int, tuple[tuple[int, int], ...]]]:
+    """For each leaf holding sliced labels: (leaf, its rank, (axis, sliced position) pairs)."""
+    where = {label: k for k, label in enumerate(sliced)}
     out = []
-    for arr, ix in zip(arrays, indices):
-        if any(i in fixed for i in ix):
-            arr = arr[tuple(fixed.get(i, slice(None)) for i in ix)]
-        out.append(arr)
+    for leaf, ix in enumerate(indices):
+        axes = tuple((a, where[i]) for a, i in enumerate(ix) if i in where)
+        if axes:
+            out.append((leaf, len(ix), axes))
+    return out
+
+
+def _slice_arrays(arrays: Sequence[np.ndarray], slicer, values: Sequence[int]) -> list[np.ndarray]:
+    """The leaves of one slice: views of the arrays with the sliced axes fixed to ``values``."""
+    out = list(arrays)
+    for leaf, rank, axes in slicer:
+        key: list = [slice(None)] * rank
+        for axis, k in axes:
+            key[axis] = int(values[k])
+        out[leaf] = arrays[leaf][tuple(key)]
     return out
 
 
@@ -57,12 +73,16 @@ class SliceJob:
     """Everything a worker needs to contract slices: arrays, tree, sliced labels.
 
     Sent once to each worker process; :func:`contract_slices` runs a chunk of it.
+    With slice-invariant reuse (:mod:`tnsim.execution.invariant`) the tree is
+    the reduced one, some of its leaves are precomputed intermediates, and
+    ``exponent`` is their power-of-two scale, added to every slice.
     """
 
     arrays: tuple[np.ndarray, ...]
     tree: PairTree
     sliced: tuple[int, ...]
     backend: str = "numpy"
+    exponent: int = 0
 
     @property
     def dims(self) -> tuple[int, ...]:
@@ -79,13 +99,18 @@ class SliceJob:
 _COMPILED: dict = {}
 
 
-def _compiled(job: SliceJob) -> tuple[list[PairStep], list[tuple[int, ...]]]:
-    """Steps and sliced labels of ``job``, compiled once per worker."""
+def _compiled(job: SliceJob) -> tuple[list[PairStep], list[tuple[int, ...]], list]:
+    """Steps, sliced labels and leaf slicer of ``job``, compiled once per worker."""
     if _COMPILED.get("job") is not job:
         gone = set(job.sliced)
         labels = [tuple(i for i in ix if i not in gone) for ix in job.tree.inputs]
-        _COMPILED.update(job=job, steps=compile_tree(job.tree, job.sliced), labels=labels)
-    return _COMPILED["steps"], _COMPILED["labels"]
+        _COMPILED.update(
+            job=job,
+            steps=compile_tree(job.tree, job.sliced),
+            labels=labels,
+            slicer=_slicer(job.tree.inputs, job.sliced),
+        )
+    return _COMPILED["steps"], _COMPILED["labels"], _COMPILED["slicer"]
 
 
 def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
@@ -96,15 +121,17 @@ def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
     SliceError
         If a slice fails; the message names the slice.
     """
-    steps, labels = _compiled(job)
+    steps, labels, slicer = _compiled(job)
     total: Scaled | None = None
     for k in range(start, stop):
         try:
             values = np.unravel_index(k, job.dims) if job.sliced else ()
-            arrays = _slice_arrays(job.arrays, job.tree.inputs, job.sliced, values)
+            arrays = _slice_arrays(job.arrays, slicer, values)
             part = contract_tree(arrays, job.tree, steps, labels, backend=job.backend)
         except Exception as exc:
             raise SliceError(f"{job.describe(k)} failed: {type(exc).__name__}: {exc}") from exc
+        if job.exponent:
+            part = Scaled(part.mantissa, part.exponent + job.exponent)
         total = part if total is None else total + part
     if total is None:
         raise SliceError(f"empty chunk of slices {start}..{stop - 1}")
@@ -134,6 +161,34 @@ def _check_memory(need: int, limit: int, workers: int) -> None:
         f"{smallest} bytes ({format_bytes(smallest)}): raise --memory/memory_limit to at least "
         "that, use fewer workers, or plan with a smaller limit so more labels are sliced"
     )
+
+
+def with_reuse(
+    job: SliceJob, steps: list[PairStep], itemsize: int, room: int
+) -> tuple[SliceJob, int, int]:
+    """``job`` with its slice-invariant subtrees contracted once (as many as fit ``room`` bytes).
+
+    Returns the new job, the FLOPs spent on it once, and the FLOPs per slice
+    left.  The job is returned unchanged when nothing is invariant, nothing
+    fits, the backend is not numpy, or the reduced steps would differ from the
+    original ones (then the bits could differ).
+    """
+    tree, sliced = job.tree, job.sliced
+    plain = (job, 0, count_flops(steps))
+    if not sliced or job.backend != "numpy":
+        return plain
+    nodes = choose_frontier(tree, steps, sliced, itemsize, room)
+    if not nodes:
+        return plain
+    reduced = reduce_tree(tree, nodes, node_labels(tree, steps))
+    if compile_tree(reduced.tree, sliced) != [steps[s] for s in reduced.steps]:
+        return plain
+    arrays, exponent = precompute(job.arrays, tree, steps, nodes)
+    made = dict(zip(nodes, arrays))
+    n = tree.num_leaves
+    leaves = tuple(job.arrays[k] if k < n else made[k] for k in reduced.leaves)
+    once, per_slice, _ = reduced_cost(tree, steps, nodes)
+    return SliceJob(leaves, reduced.tree, sliced, job.backend, exponent), once, per_slice
 
 
 def _fingerprint(network_key: str, network: TensorGraph, job: SliceJob, bounds) -> str:
@@ -166,6 +221,7 @@ def execute(
     progress: Progress = None,
     backend: str | None = None,
     chunk_size: int | None = None,
+    reuse: bool = True,
 ) -> Scaled:
     """Contract a network along a tree, summing over the ``sliced`` labels one value at a time.
 
@@ -208,6 +264,10 @@ def execute(
     chunk_size : int, optional
         Slices per chunk, overriding the automatic choice (changes the rounding
         of the sum, hence the checkpoint fingerprint).
+    reuse : bool
+        Contract the subtrees no sliced label reaches once, before the first
+        slice, and start every slice from them (:mod:`tnsim.execution.invariant`;
+        the result is bit for bit the same either way).
 
     Returns
     -------
@@ -264,7 +324,7 @@ def execute(
             "(and far more than can be run); plan with a larger memory limit"
         )
     slice_flops = count_flops(steps)
-    run = _Run(network, job, slice_flops, need, limit, executor, workers, progress)
+    run = _Run(network, job, steps, slice_flops, need, limit, executor, workers, progress, reuse)
     if checkpoint is None:
         return run.go(chunk_size, None, opts)
     with Checkpoint.open(checkpoint, fresh) as store:
@@ -277,47 +337,40 @@ class _Run:
 
     network: TensorGraph
     job: SliceJob
+    steps: list[PairStep]
     slice_flops: int
     need: int
     limit: int
     executor: Executor | None
     workers: int | None
     progress: object
+    reuse: bool
 
     def go(self, chunk_size: int | None, store: Checkpoint | None, opts) -> Scaled:
+        """Chunk, pick the workers, restore the checkpoint, reuse shared work, run."""
         network, job = self.network, self.job
         num_slices = math.prod(job.dims)
         if chunk_size is None and store is not None:
             chunk_size = store.stored_chunk_size
         bounds = chunk_bounds(num_slices, self.slice_flops, chunk_size)
-        executor, workers = self.executor, self.workers
-        if executor is None and workers is None:
-            big = self.slice_flops * num_slices >= 1e11 and len(bounds) > 1
-            cap = max(1, self.limit // max(self.need, 1))
-            workers = min(local_workers(), len(bounds), cap) if big else 1
-        pool = 1 if executor is not None else max(1, int(workers or 1))
-        _check_memory(self.need, self.limit, pool)
-        if store is not None:
-            key = network_fingerprint(network)
-            size = bounds[0][1] - bounds[0][0] if bounds else 1
-            fingerprint = _fingerprint(key, network, job, bounds)
-            store.bind(fingerprint, key, size, len(bounds), Scaled)
-            sums, record = store.sums, store.add
-        else:
-            sums = OrderedSum(len(bounds))
-            record = sums.add
+        executor, pool = self._workers(len(bounds), num_slices)
+        sums, record = self._sums(store, bounds)
         done = sums.done()
         todo = [i for i in range(len(bounds)) if i not in done]
+        began = time.perf_counter()
+        once, per_slice = 0, self.slice_flops
+        if todo and self.reuse:
+            itemsize = np.dtype(network.dtype).itemsize
+            job, once, per_slice = with_reuse(job, self.steps, itemsize, self.limit // pool)
         done_slices = sum(bounds[i][1] - bounds[i][0] for i in done)
         bar = SliceProgress(
-            self.progress, num_slices, len(bounds), self.slice_flops, done_slices, len(done)
+            self.progress, num_slices, len(bounds), per_slice, done_slices, len(done)
         )
 
         def finished(index: int, value: Scaled) -> None:
             record(index, value)
             bar.advance(bounds[index][1] - bounds[index][0])
 
-        began = time.perf_counter()
         try:
             run_chunks(
                 contract_slices,
@@ -335,7 +388,7 @@ class _Run:
             ran = sum(bounds[i][1] - bounds[i][0] for i in todo)
             opts.log.append(
                 ContractionRecord(
-                    flops=self.slice_flops * ran,
+                    flops=once + per_slice * ran,
                     num_slices=num_slices,
                     slices_run=ran,
                     peak_bytes=self.need,
@@ -346,3 +399,25 @@ class _Run:
                 )
             )
         return Scaled(total.mantissa, total.exponent + network.exponent)
+
+    def _workers(self, num_chunks: int, num_slices: int) -> tuple[Executor | None, int]:
+        """The executor and the number of processes running slices at once (memory checked)."""
+        executor, workers = self.executor, self.workers
+        if executor is None and workers is None:
+            big = self.slice_flops * num_slices >= 1e11 and num_chunks > 1
+            cap = max(1, self.limit // max(self.need, 1))
+            workers = min(local_workers(), num_chunks, cap) if big else 1
+        pool = 1 if executor is not None else max(1, int(workers))
+        _check_memory(self.need, self.limit, pool)
+        return executor, pool
+
+    def _sums(self, store: Checkpoint | None, bounds) -> tuple[OrderedSum, Callable]:
+        """Where chunk sums go: the checkpoint (bound to this run, restored) or memory."""
+        if store is None:
+            sums = OrderedSum(len(bounds))
+            return sums, sums.add
+        key = network_fingerprint(self.network)
+        size = bounds[0][1] - bounds[0][0] if bounds else 1
+        fingerprint = _fingerprint(key, self.network, self.job, bounds)
+        store.bind(fingerprint, key, size, len(bounds), Scaled)
+        return store.sums, store.add

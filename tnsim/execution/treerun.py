@@ -19,7 +19,7 @@ from tnsim.fitted import SMALL_PRODUCT
 from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
 from tnsim.plan.tree import PairTree
 
-__all__ = ["contract_tree"]
+__all__ = ["contract_tree", "run_steps"]
 
 
 def contract_tree(
@@ -95,6 +95,39 @@ def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
     if root is None:  # every step's result is appended: the last node is never cleared
         raise AssertionError("the contraction lost its root")
     return root, exponent
+
+
+def run_steps(
+    nodes: dict[int, np.ndarray],
+    pairs: Sequence[tuple[int, int]],
+    steps: Sequence[PairStep],
+    results: Sequence[int],
+) -> tuple[np.ndarray, int]:
+    """Run compiled steps on arrays kept by node id; return the last result and its exponent.
+
+    Step ``k`` joins nodes ``pairs[k]`` (taken out of ``nodes``) into node
+    ``results[k]``, exactly as :func:`contract_tree` runs its steps (same
+    products, same rescaling, same BLAS threads), so the arrays match bit for bit.
+    """
+    exponent = 0
+    full = blas_threads()
+    current = full
+    c = None
+    try:
+        for (x, y), step, node in zip(pairs, steps, results):
+            (nb, nl, nk), nr = step.mat_a, step.mat_b[2]
+            want = 1 if nb * nl * nk * nr < SMALL_PRODUCT else full
+            if want != current:
+                set_blas_threads(want)
+                current = want
+            c = apply_owned(step, [nodes.pop(x), nodes.pop(y)])
+            c, e = normalize_owned(c, SLACK)
+            exponent += e
+            nodes[node] = c
+    finally:
+        if current != full:
+            set_blas_threads(full)
+    return c, exponent
 
 
 def _run_other(ops: ArrayBackend, arrays, tree, steps, labels) -> tuple[np.ndarray, int]:

@@ -16,8 +16,7 @@ from tnsim.circuits.bits import Bitstring
 from tnsim.circuits.circuit import Circuit
 from tnsim.execution.budget import check_slices, kept_plan
 from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
-from tnsim.execution.rate import matmul_rate
-from tnsim.execution.timemodel import fixed_seconds, forecast_seconds
+from tnsim.execution.timemodel import forecast_run
 from tnsim.network.builders import amplitude_network
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import Plan, make_plan
@@ -60,23 +59,32 @@ class ForecastReport:
     itemsize : int
         Bytes per element (16: complex128).
     written : int
-        Elements of intermediates written, all slices together.
+        Elements of intermediates written, all slices together, as the run
+        writes them (slice-invariant subtrees once).
     flop_rate : float
         Measured real FLOP/s of a dense complex matrix product here.
     seconds : float
-        Forecast run time ``(flops + WRITE_FLOPS * written) / flop_rate +
-        fixed_seconds``: the FLOPs at the matmul rate plus a fitted cost per
-        element written (:data:`tnsim.fitted.WRITE_FLOPS`), plus the fixed
-        Python time of the steps.
-    fixed_seconds : float
-        :data:`~tnsim.fitted.STEP_SECONDS` per pairwise step and slice: what a
-        tiny plan's run is made of.
+        Forecast run time, ``compute_seconds + fixed_seconds``
+        (:func:`tnsim.execution.timemodel.forecast_run`).
     planning_seconds : float
         Time spent planning.
     method : str
         Planner that produced the tree.
     profile : tuple of float
         log2 (elements) of each intermediate of one slice, in contraction order.
+    flops_run : int
+        Real FLOPs the run performs: the slice-invariant subtrees once, the
+        rest once per slice (at most ``flops``).
+    compute_seconds : float
+        The FLOPs run at the matmul rate plus a fitted cost per element
+        written (:data:`tnsim.fitted.WRITE_FLOPS`).
+    fixed_seconds : float
+        The steps run (``steps_per_slice`` per slice) times ``step_seconds``.
+    steps_per_slice : int
+        Pairwise steps each slice runs (after slice-invariant reuse).
+    step_seconds : float
+        Fixed cost of one step measured on this machine (Python, numpy calls,
+        tiny products; :func:`tnsim.execution.stepcost.step_seconds`).
     """
 
     num_qubits: int
@@ -98,10 +106,14 @@ class ForecastReport:
     written: int
     flop_rate: float
     seconds: float
-    fixed_seconds: float
     planning_seconds: float
     method: str
     profile: tuple[float, ...]
+    flops_run: int = 0
+    compute_seconds: float = 0.0
+    fixed_seconds: float = 0.0
+    steps_per_slice: int = 0
+    step_seconds: float = 0.0
 
     def to_dict(self) -> dict:
         """Plain-data form (for JSON)."""
@@ -189,11 +201,9 @@ def forecast(
         ),
     )
     check_slices(p, limit)
-    rate = matmul_rate(dt)
     unsliced_width = math.log2(max(p.tree.cost(itemsize=p.itemsize).largest, 1))
     sizes = p.tree.intermediate_sizes(p.sliced)
-    written = sum(sizes) * p.num_slices
-    fixed = fixed_seconds(p)
+    run = forecast_run(p.tree, p.sliced, dt, memory_limit=limit)
     return ForecastReport(
         num_qubits=circuit.num_qubits,
         num_tensors=len(network),
@@ -211,11 +221,15 @@ def forecast(
         memory_limit=limit,
         fits_unsliced=p.unsliced_peak_bytes <= limit,
         itemsize=p.itemsize,
-        written=written,
-        flop_rate=rate,
-        seconds=forecast_seconds(p.flops, written, rate) + fixed,
-        fixed_seconds=fixed,
+        written=run.written,
+        flop_rate=run.flop_rate,
+        seconds=run.seconds,
         planning_seconds=p.seconds,
         method=p.method,
         profile=tuple(math.log2(s) for s in sizes),
+        flops_run=run.flops,
+        compute_seconds=run.compute_seconds,
+        fixed_seconds=run.fixed_seconds,
+        steps_per_slice=run.steps_per_slice,
+        step_seconds=run.step_seconds,
     )

@@ -5,7 +5,8 @@ does (the same route choices, networks, memory limit and planner settings), and
 adds up FLOPs, elements written, memory and time without contracting
 anything big: time is the time model (:func:`~tnsim.execution.timemodel.forecast_seconds`:
 FLOPs plus a cost per element written, at this machine's matmul rate) plus the
-fixed Python time of every pairwise step (:data:`~tnsim.execution.timemodel.STEP_SECONDS`).
+fixed time of every pairwise step, measured on this machine
+(:func:`~tnsim.execution.stepcost.step_seconds`).
 
 Gate-by-gate sampling of wide circuits plans one network per layer as it goes
 and its work depends on the bitstrings drawn, so its forecast is measured
@@ -31,9 +32,10 @@ from tnsim.execution.options import (
     run_options,
 )
 from tnsim.execution.rate import matmul_rate
+from tnsim.execution.stepcost import step_seconds
 from tnsim.execution.steps import largest_intermediate
 from tnsim.execution.timemodel import elements_written, fixed_seconds, forecast_seconds
-from tnsim.fitted import DIRECT_WIDTH, NARROW, ROW_SECONDS, STEP_SECONDS
+from tnsim.fitted import DIRECT_WIDTH, NARROW, ROW_SECONDS
 from tnsim.network.builders import amplitude_network
 from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import canonical_cone
@@ -83,7 +85,7 @@ class QueryForecast:
     compute_seconds : float
         The time model's part (FLOPs and elements written at the matmul rate).
     fixed_seconds : float
-        Python time of the steps (:data:`~tnsim.execution.timemodel.STEP_SECONDS`
+        Python time of the steps (:func:`~tnsim.execution.stepcost.step_seconds`
         each) and of rebuilding networks; what a tiny plan's run is made of.
     planning_seconds : float
         Time this forecast spent planning (about what the run spends again).
@@ -204,7 +206,7 @@ def forecast_amplitudes(
     tally.compute += route.seconds
     n = engine.tree.num_leaves
     varying = sum(engine.varying[n:])
-    tally.fixed += STEP_SECONDS * ((len(engine.steps) - varying) + varying * runs)
+    tally.fixed += step_seconds(dt) * ((len(engine.steps) - varying) + varying * runs)
     return tally.report("amplitudes", f"batched: {runs} run(s) of {engine.chunk} ({differ})")
 
 
