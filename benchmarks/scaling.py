@@ -27,6 +27,16 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     ``tnsim.forecast`` gives them); run only if it is short.  Then a 7 x 7, 12-cycle
     amplitude sliced to fit 64 MiB, run: forecast against measured time.
 
+``sliced``
+    One amplitude of an 8 x 8 grid circuit of 10 cycles (complex128, all-zero
+    bitstring), planned and run three times: without a memory limit, and under
+    1/50 and 1/1000 of the unlimited plan's peak.  Reports each run's planning
+    and contraction seconds, the sliced totals against the unlimited total
+    (target <= 3x at 1/50), and the forecast (``tnsim.execution.timemodel.forecast_run``:
+    compute part + fixed per-step part) against the measured contraction
+    (target within 2x at 1/50 and 1/1000).  With ``--no-reuse`` the sliced runs
+    are repeated without slice-invariant reuse, side by side, bit-for-bit compared.
+
 The machine's load average is printed before and after: other processes on the
 same cores lower every figure here.
 """
@@ -207,13 +217,77 @@ def section_grid() -> None:
     _grid_run(7, 7, 12, 64 * 1024**2, run=True)  # a sliced stand-in that runs in minutes
 
 
+def _timed(fn):
+    start = time.perf_counter()
+    out = fn()
+    return out, time.perf_counter() - start
+
+
+def _sliced_row(network, limit, label, baseline, no_reuse):
+    from tnsim.execution.budget import fit_plan
+    from tnsim.execution.slices import execute
+    from tnsim.execution.timemodel import forecast_run
+    from tnsim.units import format_bytes
+
+    plan, planning = _timed(lambda: fit_plan(network, limit))
+    forecast = forecast_run(plan.tree, plan.sliced, network.dtype, memory_limit=limit)
+    value, seconds = _timed(
+        lambda: execute(network, plan.tree, plan.sliced, memory_limit=limit, progress=False)
+    )
+    total = planning + seconds
+    print(
+        f"sliced: {label} ({format_bytes(limit) if limit else 'default limit'}): "
+        f"{plan.num_slices} slices, peak {format_bytes(plan.peak_bytes)}, "
+        f"{forecast.flops:.3g} FLOPs run ({forecast.steps_per_slice} steps per slice); "
+        f"planned {planning:.1f} s + ran {seconds:.1f} s = {total:.1f} s"
+        + (f" = {total / baseline:.2f} x the unlimited run" if baseline else "")
+    )
+    print(
+        f"sliced: {label}: forecast {forecast.seconds:.3g} s = {forecast.compute_seconds:.3g} s "
+        f"compute + {forecast.fixed_seconds:.3g} s fixed ({forecast.step_seconds * 1e6:.3g} us "
+        f"per step); measured/forecast {seconds / forecast.seconds:.2f} (target 0.5 to 2)"
+    )
+    if no_reuse:
+        plain, plain_s = _timed(
+            lambda: execute(
+                network, plan.tree, plan.sliced, memory_limit=limit, progress=False, reuse=False
+            )
+        )
+        same = plain.mantissa.tobytes() == value.mantissa.tobytes()
+        print(
+            f"sliced: {label}: without slice-invariant reuse {plain_s:.1f} s "
+            f"({plain_s / seconds:.2f} x with reuse), bit-for-bit equal: {same}"
+        )
+    return plan, total
+
+
+def section_sliced() -> None:
+    import numpy as np
+
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
+
+    rows, cols, cycles = (4, 4, 8) if QUICK[0] else (8, 8, 10)
+    circuit = grid_circuit(rows, cols, cycles, seed=0)
+    bits = "0" * (rows * cols)
+    network = absorb_small(amplitude_network(circuit, bits, dtype=np.complex128))
+    print(f"sliced: grid {rows}x{cols}, {cycles} cycles, one amplitude, complex128")
+    full, baseline = _sliced_row(network, None, "unlimited", 0.0, False)
+    for share in (4, 16) if QUICK[0] else (50, 1000):
+        limit = max(full.peak_bytes // share, 1)
+        _sliced_row(network, limit, f"1/{share} of the peak", baseline, NO_REUSE[0])
+
+
 QUICK = [False]
+NO_REUSE = [False]
 
 SECTIONS = {
     "rate": section_rate,
     "overhead": section_overhead,
     "workers": section_workers,
     "grid": section_grid,
+    "sliced": section_sliced,
 }
 
 
@@ -224,12 +298,16 @@ def main(argv=None) -> int:
         "--threads", type=int, default=1, help="BLAS threads per process (0: library default)"
     )
     parser.add_argument("--quick", action="store_true", help="small smoke version (CI)")
+    parser.add_argument(
+        "--no-reuse", action="store_true", help="sliced: also run without slice-invariant reuse"
+    )
     args = parser.parse_args(argv)
     unknown = sorted(set(args.sections) - set(SECTIONS))
     if unknown:
         parser.error(f"unknown sections {unknown}; choose from {', '.join(SECTIONS)}")
     _set_threads(args.threads)
     QUICK[0] = args.quick
+    NO_REUSE[0] = args.no_reuse
     cores = len(os.sched_getaffinity(0))
     print(
         f"machine: {cores} cores, load average {os.getloadavg()[0]:.2f}, "

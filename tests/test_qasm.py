@@ -179,8 +179,14 @@ def test_empty_gate_and_empty_parameter_list():
 
 
 def test_empty_gate_on_a_huge_register_is_cheap():
-    text = HEADER + "qreg q[1000000000000];\ngate g a { barrier a; }\ng q;\n"
+    text = HEADER + "qreg q[2147483647];\ngate g a { barrier a; }\ng q;\n"
     assert read_qasm(text).ops == []
+
+
+def test_register_beyond_any_machine_is_refused_where_it_is_declared():
+    text = HEADER + "qreg q[10000000000];\nh q[0];\n"
+    with pytest.raises(QasmError, match=r"<text>:3:8: register 'q' of 10,000,000,000 qubits"):
+        read_qasm(text)
 
 
 def test_every_qelib1_gate_reads_as_its_tnsim_gate():

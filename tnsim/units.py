@@ -9,9 +9,13 @@ TiB) are powers of 1024 and decimal ones (kB, MB, GB, TB) powers of 1000
 from __future__ import annotations
 
 import math
+import numbers
 import re
 
+import numpy as np
+
 from tnsim.errors import InputError
+from tnsim.validate import quote
 
 __all__ = ["format_bytes", "parse_memory"]
 
@@ -63,23 +67,27 @@ def parse_memory(value: int | float | str) -> int:
     >>> parse_memory(2048)
     2048
     """
-    if isinstance(value, bool):
+    if isinstance(value, (bool, np.bool_)):
         raise InputError(f"memory limit must be bytes or text such as '4GiB', got {value!r}")
-    if isinstance(value, (int, float)):
+    if isinstance(value, numbers.Integral):
+        if value < 1:
+            raise InputError(f"memory limit must be at least 1 byte, got {quote(value)}")
+        return int(value)
+    if isinstance(value, numbers.Real):
         number, unit = float(value), ""
     elif isinstance(value, str):
-        match = _PATTERN.match(value)
+        match = _PATTERN.match(value) if len(value) <= 100 else None
         if match is None or match.group(2).lower() not in _UNITS:
             raise InputError(
-                f"cannot read memory limit {value!r}; give bytes or a number with a unit "
+                f"cannot read memory limit {quote(value)}; give bytes or a number with a unit "
                 "such as '4GiB', '512MiB' or '8GB'"
             )
         number, unit = float(match.group(1)), match.group(2).lower()
     else:
-        raise InputError(f"memory limit must be bytes or text such as '4GiB', got {value!r}")
+        raise InputError(f"memory limit must be bytes or text such as '4GiB', got {quote(value)}")
     total = number * _UNITS[unit]
     if not math.isfinite(total) or total < 1:
-        raise InputError(f"memory limit must be at least 1 byte, got {value!r}")
+        raise InputError(f"memory limit must be at least 1 byte, got {quote(value)}")
     return int(total)
 
 

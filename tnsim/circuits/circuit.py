@@ -13,8 +13,16 @@ import numpy as np
 from tnsim.circuits.gates import GATES, gate_matrix, is_unitary
 from tnsim.circuits.parameters import AngleExpr, as_angle
 from tnsim.errors import InputError
+from tnsim.validate import integer, quote, real_number, sequence
 
-__all__ = ["Circuit", "Operation"]
+__all__ = ["MAX_QUBITS", "Circuit", "Operation"]
+
+#: The most qubits a circuit may have: every query needs at least one small tensor
+#: (hundreds of bytes) per qubit, so beyond this no machine can answer any query.
+MAX_QUBITS = 2**31 - 1
+
+#: The most qubits of one custom unitary (a ``2**k`` square matrix).
+MAX_UNITARY_QUBITS = 12
 
 
 @dataclass(frozen=True)
@@ -128,11 +136,7 @@ class Circuit:
     """
 
     def __init__(self, num_qubits: int):
-        if isinstance(num_qubits, bool) or not isinstance(num_qubits, numbers.Integral):
-            raise InputError(f"num_qubits must be an integer, got {num_qubits!r}")
-        if num_qubits < 1:
-            raise InputError(f"num_qubits must be at least 1, got {num_qubits}")
-        self.num_qubits: int = int(num_qubits)
+        self.num_qubits: int = integer(num_qubits, "num_qubits", 1, MAX_QUBITS)
         self.ops: list[Operation] = []
         self.measurements: dict[int, int] = {}
         """Classical bit -> the qubit read into it (``measure`` statements), final values."""
@@ -142,16 +146,16 @@ class Circuit:
         def __getattr__(self, name: str) -> Callable[..., Circuit]: ...
 
     def _check_qubits(self, name: str, qubits: Iterable[int], arity: int) -> tuple[int, ...]:
-        qs = tuple(qubits)
+        qs = tuple(sequence(qubits, f"gate '{name}': the qubits"))
         if len(qs) != arity:
-            raise InputError(f"gate '{name}' acts on {arity} qubit(s), got {len(qs)}: {qs}")
+            raise InputError(f"gate '{name}' acts on {arity} qubit(s), got {len(qs)}: {quote(qs)}")
         for q in qs:
-            if isinstance(q, bool) or not isinstance(q, numbers.Integral):
-                raise InputError(f"gate '{name}': qubit index {q!r} is not an integer")
+            if isinstance(q, (bool, np.bool_)) or not isinstance(q, numbers.Integral):
+                raise InputError(f"gate '{name}': qubit index {quote(q)} is not an integer")
             if not 0 <= q < self.num_qubits:
                 raise InputError(
-                    f"gate '{name}': qubit {q} is out of range for a {self.num_qubits}-qubit "
-                    f"circuit (valid: 0..{self.num_qubits - 1})"
+                    f"gate '{name}': qubit {quote(q)} is out of range for a "
+                    f"{self.num_qubits}-qubit circuit (valid: 0..{self.num_qubits - 1})"
                 )
         if len(set(qs)) != len(qs):
             raise InputError(f"gate '{name}' repeats a qubit: {qs}")
@@ -170,11 +174,11 @@ class Circuit:
             or a parameter that is neither a finite real number nor an affine
             expression of names.
         """
-        spec = GATES.get(name)
+        spec = GATES.get(name) if isinstance(name, str) else None
         if spec is None:
-            raise InputError(f"unknown gate '{name}'; known gates: {', '.join(sorted(GATES))}")
+            raise InputError(f"unknown gate {quote(name)}; known gates: {', '.join(sorted(GATES))}")
         qs = self._check_qubits(name, qubits, spec.num_qubits)
-        ps = tuple(params)
+        ps = sequence(params, f"gate '{name}': the parameters")
         if len(ps) != spec.num_params:
             raise InputError(f"gate '{name}' takes {spec.num_params} parameter(s), got {len(ps)}")
         values = []
@@ -184,12 +188,8 @@ class Circuit:
                     values.append(as_angle(p))
                 except InputError as exc:
                     raise InputError(f"gate '{name}': {exc}") from None
-            elif isinstance(p, bool) or not isinstance(p, numbers.Real) or not math.isfinite(p):
-                raise InputError(
-                    f"gate '{name}': parameter {p!r} is not a finite real number or a named angle"
-                )
             else:
-                values.append(float(p))
+                values.append(real_number(p, f"gate '{name}': parameter"))
         self.ops.append(Operation(name, qs, tuple(values)))
         return self
 
@@ -251,8 +251,17 @@ class Circuit:
         InputError
             If the matrix is not a ``2**k`` square unitary (to 1e-8).
         """
-        m = np.array(matrix, dtype=complex)
-        qs = tuple(qubits)
+        qs = tuple(sequence(qubits, f"'{name}': the qubits"))
+        if len(qs) > MAX_UNITARY_QUBITS:
+            raise InputError(
+                f"unitary on {len(qs)} qubits: at most {MAX_UNITARY_QUBITS} qubits per matrix"
+            )
+        try:
+            m = np.array(matrix, dtype=complex)
+        except (TypeError, ValueError, OverflowError):
+            raise InputError(f"matrix for '{name}' is not an array of numbers") from None
+        if not np.isfinite(m).all():
+            raise InputError(f"matrix for '{name}' holds a value that is not finite")
         if m.ndim != 2 or m.shape != (2 ** len(qs), 2 ** len(qs)):
             raise InputError(
                 f"unitary on {len(qs)} qubit(s) needs a {2 ** len(qs)}x{2 ** len(qs)} matrix, "
@@ -289,7 +298,7 @@ class Circuit:
         'cx'
         """
         circuit = cls(num_qubits)
-        for k, op in enumerate(ops):
+        for k, op in enumerate(sequence(ops, "ops")):
             circuit._add_plain(k, op)
         return circuit
 
@@ -306,9 +315,9 @@ class Circuit:
         elif isinstance(op, (tuple, list)) and len(op) in (2, 3):
             name, qubits, params, matrix = op[0], op[1], op[2] if len(op) == 3 else (), None
         else:
-            raise InputError(f"operation {k}: expected (name, qubits[, params]), got {op!r}")
+            raise InputError(f"operation {k}: expected (name, qubits[, params]), got {quote(op)}")
         if not isinstance(name, str) or qubits is None:
-            raise InputError(f"operation {k}: needs a name and qubits, got {op!r}")
+            raise InputError(f"operation {k}: needs a name and qubits, got {quote(op)}")
         targets: Sequence[Any] = (qubits,) if isinstance(qubits, numbers.Integral) else qubits
         try:
             if matrix is not None:
@@ -333,7 +342,7 @@ class Circuit:
         """
         (q,) = self._check_qubits("measure", (qubit,), 1)
         if isinstance(clbit, bool) or not isinstance(clbit, numbers.Integral) or clbit < 0:
-            raise InputError(f"measure: classical bit {clbit!r} is not a non-negative integer")
+            raise InputError(f"measure: classical bit {quote(clbit)} is not a non-negative integer")
         self.measurements[int(clbit)] = q
         return self
 

@@ -39,6 +39,7 @@ from tnsim.errors import InputError
 from tnsim.execution.keptplans import PlanKeeper
 from tnsim.execution.memory import default_memory_limit
 from tnsim.units import parse_memory
+from tnsim.validate import path_like, quote, time_budget
 
 __all__ = [
     "ContractionRecord",
@@ -89,7 +90,7 @@ def _check_workers(workers: Any) -> int | None:
     if workers is None:
         return None
     if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
-        raise InputError(f"workers must be a positive integer, got {workers!r}")
+        raise InputError(f"workers must be a positive integer, got {quote(workers)}")
     return int(workers)
 
 
@@ -225,13 +226,21 @@ def run_options(**changes: Any) -> Iterator[RunOptions]:
         changes["dtype"] = check_dtype(changes["dtype"])
     if "workers" in changes:
         changes["workers"] = _check_workers(changes["workers"])
+    for name in ("checkpoint", "plan_file", "save_plans"):
+        if changes.get(name) is not None:
+            changes[name] = path_like(changes[name], name)
     if changes.get("checkpoint") is not None:
-        folder = os.fspath(changes["checkpoint"])
+        folder = changes["checkpoint"]
         if os.path.exists(folder) and not os.path.isdir(folder):
             raise InputError(f"checkpoint {folder!r} exists and is not a folder; give a folder")
-        os.makedirs(folder, exist_ok=True)
-        changes["checkpoint"] = folder
-    _check_time_budget(changes.get("time_budget"))
+        try:
+            os.makedirs(folder, exist_ok=True)
+        except OSError as exc:
+            raise InputError(
+                f"cannot make checkpoint folder {quote(folder)}: {exc.strerror}"
+            ) from None
+    if "time_budget" in changes:
+        changes["time_budget"] = time_budget(changes["time_budget"])
     options = replace(current_options(), counter=[0], **changes)
     with contextlib.ExitStack() as stack:
         if {"checkpoint", "plan_file", "save_plans"} & set(changes):
@@ -242,15 +251,6 @@ def run_options(**changes: Any) -> Iterator[RunOptions]:
             yield options
         finally:
             _CURRENT.reset(token)
-
-
-def _check_time_budget(value) -> None:
-    if value is None:
-        return
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise InputError(f"time_budget must be a number of seconds, got {str(value)[:40]!r}")
-    if not (0 < value < float("inf")):
-        raise InputError(f"time_budget must be a finite positive number of seconds, got {value}")
 
 
 @dataclass(frozen=True)

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import opt_einsum.paths as oe_paths
 
-from tnsim.errors import ResourceLimitError
+from tnsim.errors import InputError, ResourceLimitError
 from tnsim.fitted import WRITE_FLOPS
 from tnsim.network.graph import TensorGraph
 from tnsim.plan import clock
@@ -313,6 +313,8 @@ def make_plan(
     >>> p.tree.path, p.flops, p.num_slices
     (((1, 2), (0, 3)), 96, 1)
     """
+    if not isinstance(network, TensorGraph):
+        raise InputError(f"make_plan needs a TensorGraph, got {type(network).__name__}")
     start = clock.now()
     limit = None if memory_limit is None else parse_memory(memory_limit)
     itemsize = int(network.dtype.itemsize)

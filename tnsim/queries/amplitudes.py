@@ -16,7 +16,7 @@ from typing import Literal, overload
 
 import numpy as np
 
-from tnsim.circuits.bits import Bitstring, Bitstrings, parse_many
+from tnsim.circuits.bits import Bitstring, Bitstrings, parse_bits, parse_many
 from tnsim.circuits.circuit import Circuit
 from tnsim.execution.batch import BatchContraction, fitted_engine
 from tnsim.execution.budget import fit_plan
@@ -30,7 +30,7 @@ from tnsim.network.graph import TensorGraph
 from tnsim.network.scaled import Scaled
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import Plan
-from tnsim.queries.checks import check_circuit
+from tnsim.queries.checks import check_circuit, check_positive
 
 __all__ = [
     "AmplitudeRoute",
@@ -167,7 +167,8 @@ def amplitude(
     """
     check_circuit(circuit)
     opts = resolve_options(memory_limit, dtype=dtype)
-    network = amplitude_network(circuit, bitstring, dtype=opts.dtype)
+    row = parse_bits(bitstring, circuit.num_qubits)
+    network = amplitude_network(circuit, row, dtype=opts.dtype)
     result = contract_network(network, opts)
     return result if scaled else complex(result)
 
@@ -239,6 +240,7 @@ def iter_amplitudes(
     check_circuit(circuit)
     opts = resolve_options(memory_limit, dtype=dtype)
     rows = parse_many(bitstrings, circuit.num_qubits)
+    chunk = check_positive(chunk, "chunk")
     return _iter_rows(circuit, rows, opts, chunk)
 
 

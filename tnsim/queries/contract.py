@@ -20,6 +20,8 @@ from tnsim.execution.slices import execute
 from tnsim.network.graph import TensorGraph
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import make_plan
+from tnsim.validate import integer, quote
+from tnsim.validate import time_budget as check_time_budget
 
 __all__ = ["contract", "einsum_network", "operand_dtype"]
 
@@ -38,6 +40,17 @@ def _parse(equation: str, arrays) -> tuple[list[str], str]:
             f"{len(arrays)} array(s) were given"
         )
     return terms, out
+
+
+def _numeric(value, k: int) -> np.ndarray:
+    """Operand ``k`` as a numeric numpy array (booleans, integers, reals, complex numbers)."""
+    try:
+        arr = np.asarray(value)
+    except (TypeError, ValueError, OverflowError):
+        arr = None
+    if arr is None or arr.dtype.kind not in "biufc":
+        raise InputError(f"operand {k} is not an array of numbers: {quote(value)}")
+    return arr
 
 
 def operand_dtype(arrays: Sequence[np.ndarray]) -> np.dtype:
@@ -74,7 +87,7 @@ def einsum_network(
     >>> tn.indices, tn.output, tn.size
     ([(0, 1), (1, 2)], (0, 2), {0: 2, 1: 3, 2: 4})
     """
-    operands = [np.asarray(a) for a in arrays]
+    operands = [_numeric(a, k) for k, a in enumerate(arrays)]
     terms, out = _parse(equation, operands)
     table: dict[str, int] = {}
     size: dict[int, int] = {}
@@ -158,7 +171,9 @@ def contract(
     >>> contract("ii->i", np.eye(2) * 3)
     array([3., 3.])
     """
-    operands = [np.asarray(a) for a in arrays]
+    time_budget = check_time_budget(time_budget)
+    seed = integer(seed, "seed")
+    operands = [_numeric(a, k) for k, a in enumerate(arrays)]
     opts = resolve_options(memory_limit, dtype=dtype, default_dtype=operand_dtype(operands))
     net = einsum_network(equation, *operands, dtype=opts.dtype)
     real = not any(np.iscomplexobj(a) for a in operands)

@@ -16,6 +16,7 @@ import numpy as np
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.families import qaoa_maxcut
 from tnsim.circuits.gates import gate_matrix
+from tnsim.errors import InputError
 from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.fitted import NARROW
 from tnsim.network.builders import doubled_network
@@ -26,6 +27,7 @@ from tnsim.queries.amplitudes import contract_simplified
 from tnsim.queries.checks import check_circuit
 from tnsim.queries.marginals import all_amplitudes, deep_and_narrow
 from tnsim.queries.observables import Observable, parse_observable
+from tnsim.validate import quote, real_number, sequence
 
 __all__ = ["TermCache", "expectation", "maxcut_energy"]
 
@@ -169,6 +171,24 @@ def expectation(
     return float(sum(t.coefficient * cache.value(t.paulis) for t in obs.terms))
 
 
+def _check_graph(graph) -> None:
+    """A MaxCut graph: an undirected networkx graph, no parallel edges or self-loops."""
+    if not isinstance(graph, nx.Graph):
+        raise InputError(f"graph must be a networkx.Graph, got {quote(graph)}")
+    if graph.is_directed():
+        raise InputError(
+            "graph is directed; MaxCut is defined on undirected graphs: pass "
+            "graph.to_undirected() (each edge counted once)"
+        )
+    if graph.is_multigraph():
+        raise InputError("graph has parallel edges (a MultiGraph); pass a networkx.Graph")
+    if graph.number_of_nodes() == 0:
+        raise InputError("the graph has no nodes")
+    loops = nx.number_of_selfloops(graph)
+    if loops:
+        raise InputError(f"graph has {loops} self-loop(s); an edge (u, u) is never cut: drop it")
+
+
 def maxcut_energy(
     graph: nx.Graph,
     gammas: Sequence[float],
@@ -204,8 +224,12 @@ def maxcut_energy(
     >>> round(maxcut_energy(nx.cycle_graph(8), [0.0], [0.0]), 12)  # |+...+>: half of 8 edges
     4.0
     """
+    _check_graph(graph)
+    gammas = [real_number(g, "gamma") for g in sequence(gammas, "gammas")]
+    betas = [real_number(b, "beta") for b in sequence(betas, "betas")]
     options = resolve_options(memory_limit, dtype=dtype)
-    circuit, g = qaoa_maxcut(graph, list(gammas), list(betas))
+    circuit, g = qaoa_maxcut(graph, gammas, betas)
+    check_circuit(circuit)
     cache = TermCache(circuit, options.dtype, options.memory_limit)
     total = 0.0
     for u, v in g.edges():

@@ -12,15 +12,19 @@ from dataclasses import asdict, dataclass
 
 import opt_einsum
 
-from tnsim.circuits.bits import Bitstring
+from tnsim.circuits.bits import Bitstring, parse_bits
 from tnsim.circuits.circuit import Circuit
+from tnsim.errors import InputError
 from tnsim.execution.budget import check_slices, kept_plan
 from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.execution.timemodel import forecast_run
 from tnsim.network.builders import amplitude_network
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import Plan, make_plan
+from tnsim.plan.search import OBJECTIVES
 from tnsim.queries.checks import check_circuit
+from tnsim.validate import integer, quote
+from tnsim.validate import time_budget as check_time_budget
 
 __all__ = ["ForecastReport", "forecast", "opt_einsum_cost"]
 
@@ -189,9 +193,14 @@ def forecast(
     opts = resolve_options(memory_limit, dtype=dtype)
     dt = opts.dtype
     limit = opts.slice_limit
+    time_budget = check_time_budget(time_budget)
+    seed = integer(seed, "seed")
+    if objective not in OBJECTIVES:
+        raise InputError(f"objective must be one of {OBJECTIVES}, got {quote(objective)}")
     if bitstring is None:
         bitstring = "0" * circuit.num_qubits
-    network = amplitude_network(circuit, bitstring, dtype=dt)
+    row = parse_bits(bitstring, circuit.num_qubits)
+    network = amplitude_network(circuit, row, dtype=dt)
     small = absorb_small(network)
     budget = time_budget if time_budget is not None else opts.block.time_budget
     p = kept_plan(

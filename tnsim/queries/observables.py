@@ -22,6 +22,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 
 from tnsim.errors import InputError
+from tnsim.validate import quote, real_number, sequence
 
 __all__ = ["Observable", "PauliTerm", "parse_observable"]
 
@@ -156,12 +157,41 @@ def _from_mapping(spec: Mapping) -> Observable:
     factors = {}
     for q, letter in spec.items():
         if isinstance(q, bool) or not isinstance(q, numbers.Integral) or q < 0:
-            raise InputError(f"observable: qubit {q!r} is not a non-negative integer")
+            raise InputError(f"observable: qubit {quote(q)} is not a non-negative integer")
         if not isinstance(letter, str) or letter.upper() not in ("X", "Y", "Z", "I"):
-            raise InputError(f"observable: qubit {q} has {letter!r}; use 'X', 'Y', 'Z' or 'I'")
+            raise InputError(f"observable: qubit {q} has {quote(letter)}; use 'X', 'Y', 'Z' or 'I'")
         if letter.upper() != "I":
             factors[int(q)] = letter.upper()
     return Observable((PauliTerm(1.0, tuple(sorted(factors.items()))),))
+
+
+def _checked(obs: Observable) -> Observable:
+    """An Observable built by hand, checked term by term as the text reader checks."""
+    terms = obs.terms
+    if not isinstance(terms, (tuple, list)) or not terms:
+        raise InputError("an Observable needs at least one PauliTerm")
+    out = []
+    for k, term in enumerate(terms):
+        if not isinstance(term, PauliTerm):
+            raise InputError(f"observable term {k} is not a PauliTerm: {quote(term)}")
+        coefficient = real_number(term.coefficient, f"observable term {k}: the coefficient")
+        paulis = sequence(term.paulis, f"observable term {k}: the Pauli factors")
+        seen = set()
+        for item in paulis:
+            if not (isinstance(item, (tuple, list)) and len(item) == 2):
+                raise InputError(f"observable term {k}: factor {quote(item)} is not (qubit, 'Z')")
+            q, letter = item
+            if isinstance(q, bool) or not isinstance(q, numbers.Integral) or q < 0 or q in seen:
+                raise InputError(
+                    f"observable term {k}: qubit {quote(q)} is not a non-negative integer "
+                    "given once"
+                )
+            if letter not in ("X", "Y", "Z"):
+                raise InputError(f"observable term {k}: {quote(letter)} is not 'X', 'Y' or 'Z'")
+            seen.add(q)
+        factors = tuple(sorted((int(q), letter) for q, letter in paulis))
+        out.append(PauliTerm(coefficient, factors))
+    return Observable(tuple(out))
 
 
 def parse_observable(
@@ -195,7 +225,7 @@ def parse_observable(
     ((2, 'Y'),)
     """
     if isinstance(spec, Observable):
-        obs = spec
+        obs = _checked(spec)
     elif isinstance(spec, str):
         obs = _parse_text(spec)
     elif isinstance(spec, Mapping):

@@ -21,14 +21,13 @@ doubled networks and no conditionals on growing prefixes; it is the default
 
 from __future__ import annotations
 
-import numbers
-
 import numpy as np
 
 from tnsim.circuits.circuit import Circuit
 from tnsim.errors import InputError, ResourceLimitError
 from tnsim.execution.batch import BatchContraction, fitted_engine
 from tnsim.execution.budget import fit_plan
+from tnsim.execution.memory import available_memory
 from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.execution.slices import execute
 from tnsim.execution.steps import compile_tree, count_flops, largest_intermediate
@@ -38,9 +37,10 @@ from tnsim.network.graph import TensorGraph
 from tnsim.network.lightcone import CircuitIndex, canonical_cone, cone_circuit, index_circuit
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import Plan
-from tnsim.queries.checks import check_circuit
+from tnsim.queries.checks import check_circuit, check_positive
 from tnsim.queries.gatewise import sample_by_gates
 from tnsim.queries.marginals import all_probabilities
+from tnsim.validate import integer, make_rng, quote
 
 __all__ = ["sample", "sample_blocks"]
 
@@ -172,6 +172,25 @@ def _sample_from_all(
     return ((index[:, None] >> shifts) & 1).astype(np.uint8)
 
 
+#: Bytes each shot needs while sampling, besides its bits: random numbers, indices, groups.
+SHOT_BYTES = 64
+
+
+def _check_shots(shots: int, num_qubits: int) -> None:
+    """Refuse, before allocating, shots whose bits and bookkeeping exceed the memory available.
+
+    (The memory limit is for the contractions' intermediates; the samples are the output.)
+    """
+    have = available_memory()
+    need = shots * (num_qubits + SHOT_BYTES)
+    if need > have:
+        raise ResourceLimitError(
+            f"{shots} shots of {num_qubits} qubits need about {need:.3g} bytes, more than the "
+            f"{have:.3g} bytes available; draw at most {have // (num_qubits + SHOT_BYTES)} "
+            "shots at a time (with a different seed each time)"
+        )
+
+
 def sample(
     circuit: Circuit,
     shots: int,
@@ -191,8 +210,9 @@ def sample(
         The circuit.
     shots : int
         Number of samples.
-    seed : int or numpy.random.Generator
-        Source of randomness (same seed, same samples).
+    seed : int or numpy.random.Generator or None
+        Source of randomness (same seed, same samples); any integer, negative
+        ones included; ``None`` draws fresh entropy from the system.
     block : int
         Qubits sampled together per chain-rule step (``2**block`` outcomes).
     dtype : numpy dtype, optional
@@ -228,13 +248,13 @@ def sample(
     """
     check_circuit(circuit)
     opts = resolve_options(memory_limit, dtype=dtype)
-    if isinstance(shots, bool) or not isinstance(shots, numbers.Integral) or shots < 0:
-        raise InputError(f"shots must be a non-negative integer, got {shots!r}")
-    if isinstance(block, bool) or not isinstance(block, numbers.Integral) or not 1 <= block <= 16:
-        raise InputError(f"block must be an integer from 1 to 16, got {block!r}")
+    shots = integer(shots, "shots", 0)
+    block = integer(block, "block", 1, 16)
+    chunk = check_positive(chunk, "chunk")
     if method not in ("auto", "gates", "marginals"):
-        raise InputError(f"method must be 'auto', 'gates' or 'marginals', got {method!r}")
-    rng = np.random.default_rng(seed)
+        raise InputError(f"method must be 'auto', 'gates' or 'marginals', got {quote(method)}")
+    _check_shots(shots, circuit.num_qubits)
+    rng = make_rng(seed)
     n = circuit.num_qubits
     if shots == 0:
         return np.zeros((0, n), dtype=np.uint8)

@@ -37,6 +37,10 @@ _TOKEN_RE = re.compile(
     re.VERBOSE | re.ASCII,
 )
 _KINDS = (None, "real", "int", "id", "string", "sym", "eof")
+
+MAX_TOKEN = 1024
+"""Longest name, number or string read (characters): longer ones are refused at once, so a
+message never echoes megabytes of one token."""
 _SKIP_RE = re.compile(SKIP, re.ASCII)
 
 
@@ -61,6 +65,8 @@ class Source:
     """
 
     def __init__(self, text: str, name: str):
+        if "\r" in text:  # universal newlines: line numbers as an editor shows them
+            text = text.replace("\r\n", "\n").replace("\r", "\n")
         self.text, self.name = text, name
         self._mark, self._line = 0, 1
 
@@ -103,7 +109,17 @@ class Lexer:
             raise self._bad_character(skipped.end() if skipped else self._end)
         self._end = match.end()
         group = match.lastindex
+        if match.end(group) - match.start(group) > MAX_TOKEN:
+            raise self._too_long(match.start(group), match.end(group))
         return _new_token(Token, (_KINDS[group], match.group(group), match.start(group)))
+
+    def _too_long(self, start: int, end: int) -> QasmError:
+        head = self._text[start : start + 20]
+        return self.source.error(
+            f"a name, number or string of {end - start} characters ('{head}...'); tnsim reads "
+            f"at most {MAX_TOKEN} characters per token",
+            start,
+        )
 
     def _bad_character(self, offset: int) -> QasmError:
         char = self._text[offset]

@@ -190,7 +190,14 @@ class _Parser(StatementParser):
                 "built in, other includes must sit beside the circuit file",
                 tok,
             )
-        return path
+        real = path.resolve()  # symbolic links followed: the file actually read
+        if real.parent != self.directory.resolve():
+            raise self.error(
+                f"include '{filename}' is a link to a file outside the circuit's folder; "
+                "includes must sit beside the circuit file: copy the file there",
+                tok,
+            )
+        return real
 
 
 def read_qasm(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from tnsim.circuits.circuit import MAX_QUBITS
 from tnsim.circuits.qasm.arith import MathError, constant
 from tnsim.circuits.qasm.definitions import expand
 from tnsim.circuits.qasm.gatedef import DefinitionParser
@@ -27,6 +28,13 @@ class StatementParser(DefinitionParser):
         size, size_tok = self.expect_int("the register size")
         if size < 1:
             raise self.error(f"register '{name.text}' needs at least one element", size_tok)
+        if kind == "qreg" and self.program.num_qubits + size > MAX_QUBITS:
+            raise self.error(
+                f"register '{name.text}' of {size:,} qubits makes "
+                f"{self.program.num_qubits + size:,} qubits in all; tnsim handles at most "
+                f"{MAX_QUBITS:,} (every qubit needs a tensor)",
+                size_tok,
+            )
         self.expect("]", "after the register size")
         self.expect(";", f"after the declaration of '{name.text}'")
         if kind == "qreg":
