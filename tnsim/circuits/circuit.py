@@ -152,7 +152,7 @@ class Circuit:
         for q in qs:
             if isinstance(q, (bool, np.bool_)) or not isinstance(q, numbers.Integral):
                 raise InputError(f"gate '{name}': qubit index {quote(q)} is not an integer")
-            if not 0 <= q < self.num_qubits:
+            if not 0 <= int(q) < self.num_qubits:
                 raise InputError(
                     f"gate '{name}': qubit {quote(q)} is out of range for a "
                     f"{self.num_qubits}-qubit circuit (valid: 0..{self.num_qubits - 1})"
@@ -189,7 +189,13 @@ class Circuit:
                 except InputError as exc:
                     raise InputError(f"gate '{name}': {exc}") from None
             else:
-                values.append(real_number(p, f"gate '{name}': parameter"))
+                try:
+                    values.append(real_number(p, "parameter"))
+                except InputError:
+                    raise InputError(
+                        f"gate '{name}': parameter {quote(p)} is not a finite real number or a "
+                        "named angle"
+                    ) from None
         self.ops.append(Operation(name, qs, tuple(values)))
         return self
 

@@ -33,12 +33,13 @@ it removes temporary files that a killed run left behind.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import io
 import json
 import os
 import zipfile
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -260,7 +261,7 @@ class Checkpoint:
         self.fingerprint = ""
         self.network = ""
         self.chunk_size = 0
-        self.make_value = None
+        self.make_value: Callable[[np.ndarray, int], Any] = _unbound
         if os.path.lexists(self.path):
             self._read()
 
@@ -403,6 +404,10 @@ class Checkpoint:
         )
 
 
+def _unbound(mantissa: np.ndarray, exponent: int) -> Any:
+    raise RuntimeError("bind() the checkpoint to its run before restoring chunks")
+
+
 def _int(value) -> int:
     if isinstance(value, bool) or not isinstance(value, int):
         raise TypeError(f"{str(value)[:20]!r} is not an integer")
@@ -436,7 +441,7 @@ class _Opened:
 
     def __init__(self, path: str, fresh: str | None):
         self.path, self.fresh = path, fresh
-        self._lock = None
+        self._lock: contextlib.AbstractContextManager[None] = contextlib.nullcontext()
 
     def __enter__(self) -> Checkpoint:
         folder = os.path.dirname(os.path.abspath(self.path))

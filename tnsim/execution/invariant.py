@@ -66,7 +66,7 @@ def frontier(tree: PairTree, variant: Sequence[bool]) -> list[int]:
     Leaves are not in the frontier (they need no computing).
     """
     n = tree.num_leaves
-    out = []
+    out: list[int] = []
     for s, (x, y) in enumerate(tree.path):
         if variant[n + s]:
             out.extend(node for node in (x, y) if node >= n and not variant[node])
@@ -129,7 +129,8 @@ def reduce_tree(
     done = set(computed)
     leaves = [k for k in range(n) if k not in gone] + sorted(done)
     position = {node: k for k, node in enumerate(leaves)}
-    path, steps = [], []
+    path: list[tuple[int, int]] = []
+    steps: list[int] = []
     for s, (x, y) in enumerate(tree.path):
         node = n + s
         if node in gone or node in done:

@@ -50,7 +50,7 @@ def part_name(k: int) -> str:
     return f"part-{k:05d}.ckpt"
 
 
-def start_afresh(folder: str) -> str:
+def start_afresh(folder: str | None) -> str:
     """The advice that starts a checkpoint folder afresh."""
     return f"to start afresh, delete the folder (rm -r {folder!r}) or give another --checkpoint"
 

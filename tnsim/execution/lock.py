@@ -25,7 +25,7 @@ from tnsim.fileio import current_umask
 try:
     import fcntl
 except ImportError:  # pragma: no cover - not POSIX
-    fcntl = None
+    fcntl = None  # type: ignore[assignment]
 
 __all__ = ["hold_lock"]
 

@@ -57,7 +57,9 @@ def _slicer(
     return out
 
 
-def _slice_arrays(arrays: Sequence[np.ndarray], slicer, values: Sequence[int]) -> list[np.ndarray]:
+def _slice_arrays(
+    arrays: Sequence[np.ndarray], slicer, values: Sequence[int | np.integer]
+) -> list[np.ndarray]:
     """The leaves of one slice: views of the arrays with the sliced axes fixed to ``values``."""
     out = list(arrays)
     for leaf, rank, axes in slicer:
@@ -343,7 +345,7 @@ class _Run:
     limit: int
     executor: Executor | None
     workers: int | None
-    progress: object
+    progress: Progress
     reuse: bool
 
     def go(self, chunk_size: int | None, store: Checkpoint | None, opts) -> Scaled:
@@ -407,7 +409,7 @@ class _Run:
             big = self.slice_flops * num_slices >= 1e11 and num_chunks > 1
             cap = max(1, self.limit // max(self.need, 1))
             workers = min(local_workers(), num_chunks, cap) if big else 1
-        pool = 1 if executor is not None else max(1, int(workers))
+        pool = 1 if executor is not None else max(1, int(workers or 1))
         _check_memory(self.need, self.limit, pool)
         return executor, pool
 

@@ -27,7 +27,7 @@ __all__ = ["step_seconds"]
 def _ladder(length: int, dtype) -> TensorGraph:
     """Two rows of rank-3 tensors of dimension 2 joined by rungs: small tensors as in circuits."""
     rng = np.random.default_rng(0)
-    indices = []
+    indices: list[tuple[int, ...]] = []
     for k in range(length):
         indices.append((k, k + 1, 2 * length + k))  # top row, rung k
         indices.append((length + 1 + k, length + 2 + k, 2 * length + k))  # bottom row

@@ -109,10 +109,12 @@ def run_steps(
     ``results[k]``, exactly as :func:`contract_tree` runs its steps (same
     products, same rescaling, same BLAS threads), so the arrays match bit for bit.
     """
+    if not steps:
+        raise ValueError("run_steps needs at least one step")
     exponent = 0
     full = blas_threads()
     current = full
-    c = None
+    c = np.empty(0)
     try:
         for (x, y), step, node in zip(pairs, steps, results):
             (nb, nl, nk), nr = step.mat_a, step.mat_b[2]

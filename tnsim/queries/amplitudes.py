@@ -167,8 +167,8 @@ def amplitude(
     """
     check_circuit(circuit)
     opts = resolve_options(memory_limit, dtype=dtype)
-    row = parse_bits(bitstring, circuit.num_qubits)
-    network = amplitude_network(circuit, row, dtype=opts.dtype)
+    parse_bits(bitstring, circuit.num_qubits)  # checked here, before anything is built
+    network = amplitude_network(circuit, bitstring, dtype=opts.dtype)
     result = contract_network(network, opts)
     return result if scaled else complex(result)
 

@@ -199,8 +199,8 @@ def forecast(
         raise InputError(f"objective must be one of {OBJECTIVES}, got {quote(objective)}")
     if bitstring is None:
         bitstring = "0" * circuit.num_qubits
-    row = parse_bits(bitstring, circuit.num_qubits)
-    network = amplitude_network(circuit, row, dtype=dt)
+    parse_bits(bitstring, circuit.num_qubits)  # checked here, before anything is built
+    network = amplitude_network(circuit, bitstring, dtype=dt)
     small = absorb_small(network)
     budget = time_budget if time_budget is not None else opts.block.time_budget
     p = kept_plan(
