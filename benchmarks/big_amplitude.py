@@ -5,7 +5,8 @@ ABCDCDAB layer sequence, complex128) under 2 GiB.  For each planner seed the
 script plans the simplified amplitude network (``make_plan`` with the memory limit
 and ``--budget`` seconds), prints the plan and its time forecast (FLOPs at this
 machine's matmul rate plus the fitted cost per element written), then contracts
-it with a progress bar and a checkpoint folder per seed (a stopped run resumes),
+it with a progress bar and a checkpoint folder per seed (a stopped run resumes: the
+folder keeps the plan, so the rerun takes it instead of planning again),
 and records the wall time beside the forecast.  With ``--workers`` local worker
 processes each slice is planned for the limit divided among them.  Two plans from different seeds
 must give the same amplitude to ``--rtol`` (there is no state vector to compare
@@ -37,6 +38,8 @@ import time
 import numpy as np
 
 from tnsim.circuits.families import grid_circuit
+from tnsim.execution.budget import kept_plan
+from tnsim.execution.options import run_options
 from tnsim.execution.rate import matmul_rate
 from tnsim.execution.slices import execute
 from tnsim.execution.timemodel import forecast_seconds
@@ -50,11 +53,49 @@ from tnsim.units import parse_memory
 def plan_and_forecast(net, limit: int, budget: float, seed: int):
     """The plan of one seed and its forecast seconds."""
     t = time.perf_counter()
-    plan = make_plan(net, memory_limit=limit, time_budget=budget, seed=seed)
+    plan = kept_plan(net, lambda: make_plan(net, memory_limit=limit, time_budget=budget, seed=seed))
     seconds = time.perf_counter() - t
     written = sum(plan.tree.intermediate_sizes(plan.sliced)) * plan.num_slices
     rate = matmul_rate(np.dtype(net.dtype))
     return plan, seconds, forecast_seconds(plan.flops, written, rate)
+
+
+def _one_seed(args, net, limit: int, per_worker: int, seed: int):
+    """Plan (or take the kept plan), forecast and run one seed; return its row and value."""
+    plan, plan_s, forecast = plan_and_forecast(net, per_worker, args.budget, seed)
+    timings = getattr(plan, "timings", ())  # a kept plan has none: it was not planned now
+    row = {
+        "seed": seed,
+        "flops": plan.flops,
+        "log10_flops": math.log10(plan.flops),
+        "slices": plan.num_slices,
+        "peak_bytes": plan.peak_bytes,
+        "overhead": plan.overhead,
+        "planning_seconds": plan_s,
+        "planning_stages": dict(timings),
+        "forecast_seconds": forecast,
+    }
+    print(
+        f"seed {seed}: 10^{row['log10_flops']:.2f} FLOPs in {plan.num_slices} slices, "
+        f"peak {plan.peak_bytes / 2**30:.3g} GiB, planned in {plan_s:.1f} s "
+        f"({', '.join(f'{k} {v:.1f} s' for k, v in timings)}); forecast "
+        f"{forecast:.0f} s on one worker",
+        flush=True,
+    )
+    if args.plan_only:
+        return row, None
+    t = time.perf_counter()
+    value = execute(
+        net, plan.tree, plan.sliced, memory_limit=limit, workers=args.workers, progress=True
+    ).value()
+    row["run_seconds"] = time.perf_counter() - t
+    row["amplitude"] = [value.real, value.imag]
+    print(
+        f"seed {seed}: amplitude {value:.12e}, ran in {row['run_seconds']:.1f} s "
+        f"({args.workers} workers) against a forecast of {forecast:.0f} s on one",
+        flush=True,
+    )
+    return row, complex(value)
 
 
 def main(argv=None) -> int:
@@ -90,47 +131,12 @@ def main(argv=None) -> int:
     # Local workers run slices at once: each gets its share of the limit.
     per_worker = limit // max(1, args.workers)
     for seed in [int(s) for s in args.seeds.split(",")]:
-        plan, plan_s, forecast = plan_and_forecast(net, per_worker, args.budget, seed)
-        row = {
-            "seed": seed,
-            "flops": plan.flops,
-            "log10_flops": math.log10(plan.flops),
-            "slices": plan.num_slices,
-            "peak_bytes": plan.peak_bytes,
-            "overhead": plan.overhead,
-            "planning_seconds": plan_s,
-            "planning_stages": dict(plan.timings),
-            "forecast_seconds": forecast,
-        }
-        print(
-            f"seed {seed}: 10^{row['log10_flops']:.2f} FLOPs in {plan.num_slices} slices, "
-            f"peak {plan.peak_bytes / 2**30:.3g} GiB, planned in {plan_s:.1f} s "
-            f"({', '.join(f'{k} {v:.1f} s' for k, v in plan.timings)}); forecast "
-            f"{forecast:.0f} s on one worker",
-            flush=True,
-        )
-        if not args.plan_only:
-            folder = os.path.join(args.checkpoint, f"seed-{seed}")
-            os.makedirs(folder, exist_ok=True)
-            t = time.perf_counter()
-            value = execute(
-                net,
-                plan.tree,
-                plan.sliced,
-                memory_limit=limit,
-                workers=args.workers,
-                checkpoint=os.path.join(folder, "amplitude.ckpt"),
-                progress=True,
-            ).value()
-            row["run_seconds"] = time.perf_counter() - t
-            row["amplitude"] = [value.real, value.imag]
-            values.append(complex(value))
-            print(
-                f"seed {seed}: amplitude {value:.12e}, ran in {row['run_seconds']:.1f} s "
-                f"({args.workers} workers) against a forecast of {forecast:.0f} s on one",
-                flush=True,
-            )
+        folder = os.path.join(args.checkpoint, f"seed-{seed}")
+        with run_options(checkpoint=folder):  # the folder keeps the plan and the finished chunks
+            row, value = _one_seed(args, net, limit, per_worker, seed)
         rows.append(row)
+        if value is not None:
+            values.append(value)
     status = 0
     if len(values) >= 2:
         ref = values[0]
