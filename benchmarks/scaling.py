@@ -225,11 +225,12 @@ def _timed(fn):
 
 def _sliced_row(network, limit, label, baseline, no_reuse):
     from tnsim.execution.budget import fit_plan
+    from tnsim.execution.options import resolve_options
     from tnsim.execution.slices import execute
     from tnsim.execution.timemodel import forecast_run
     from tnsim.units import format_bytes
 
-    plan, planning = _timed(lambda: fit_plan(network, limit))
+    plan, planning = _timed(lambda: fit_plan(network, resolve_options(limit)))
     forecast = forecast_run(plan.tree, plan.sliced, network.dtype, memory_limit=limit)
     value, seconds = _timed(
         lambda: execute(network, plan.tree, plan.sliced, memory_limit=limit, progress=False)
