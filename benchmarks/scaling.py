@@ -36,6 +36,8 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     compute part + fixed per-step part) against the measured contraction
     (target within 2x at 1/50 and 1/1000).  With ``--no-reuse`` the sliced runs
     are repeated without slice-invariant reuse, side by side, bit-for-bit compared.
+    ``--trials N`` plans with N search trials and no time limit (the same plans on
+    any machine and under any load) instead of the planner's timed search.
 
 The machine's load average is printed before and after: other processes on the
 same cores lower every figure here.
@@ -230,7 +232,15 @@ def _sliced_row(network, limit, label, baseline, no_reuse):
     from tnsim.execution.timemodel import forecast_run
     from tnsim.units import format_bytes
 
-    plan, planning = _timed(lambda: fit_plan(network, resolve_options(limit)))
+    if TRIALS[0]:  # untimed planning: the same plans on any machine and under any load
+        from tnsim.plan.driver import make_plan
+
+        slice_limit = resolve_options(limit).slice_limit
+        plan, planning = _timed(
+            lambda: make_plan(network, memory_limit=slice_limit, max_trials=TRIALS[0], seed=0)
+        )
+    else:
+        plan, planning = _timed(lambda: fit_plan(network, resolve_options(limit)))
     forecast = forecast_run(plan.tree, plan.sliced, network.dtype, memory_limit=limit)
     value, seconds = _timed(
         lambda: execute(network, plan.tree, plan.sliced, memory_limit=limit, progress=False)
@@ -282,6 +292,7 @@ def section_sliced() -> None:
 
 QUICK = [False]
 NO_REUSE = [False]
+TRIALS = [0]
 
 SECTIONS = {
     "rate": section_rate,
@@ -302,6 +313,13 @@ def main(argv=None) -> int:
     parser.add_argument(
         "--no-reuse", action="store_true", help="sliced: also run without slice-invariant reuse"
     )
+    parser.add_argument(
+        "--trials",
+        type=int,
+        default=0,
+        help="sliced: plan with this many search trials and no time limit (same plans under "
+        "any load; default: the planner's own timed search, as a user gets it)",
+    )
     args = parser.parse_args(argv)
     unknown = sorted(set(args.sections) - set(SECTIONS))
     if unknown:
@@ -309,6 +327,7 @@ def main(argv=None) -> int:
     _set_threads(args.threads)
     QUICK[0] = args.quick
     NO_REUSE[0] = args.no_reuse
+    TRIALS[0] = args.trials
     cores = len(os.sched_getaffinity(0))
     print(
         f"machine: {cores} cores, load average {os.getloadavg()[0]:.2f}, "
