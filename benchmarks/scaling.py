@@ -285,7 +285,7 @@ def section_sliced() -> None:
     network = absorb_small(amplitude_network(circuit, bits, dtype=np.complex128))
     print(f"sliced: grid {rows}x{cols}, {cycles} cycles, one amplitude, complex128")
     full, baseline = _sliced_row(network, None, "unlimited", 0.0, False)
-    for share in (4, 16) if QUICK[0] else (50, 1000):
+    for share in (4, 16) if QUICK[0] else SHARES:
         limit = max(full.peak_bytes // share, 1)
         _sliced_row(network, limit, f"1/{share} of the peak", baseline, NO_REUSE[0])
 
@@ -293,6 +293,7 @@ def section_sliced() -> None:
 QUICK = [False]
 NO_REUSE = [False]
 TRIALS = [0]
+SHARES = [50, 1000]
 
 SECTIONS = {
     "rate": section_rate,
@@ -314,6 +315,11 @@ def main(argv=None) -> int:
         "--no-reuse", action="store_true", help="sliced: also run without slice-invariant reuse"
     )
     parser.add_argument(
+        "--shares",
+        default="50,1000",
+        help="sliced: limits as shares of the unlimited peak (default 50,1000: 1/50, 1/1000)",
+    )
+    parser.add_argument(
         "--trials",
         type=int,
         default=0,
@@ -328,6 +334,7 @@ def main(argv=None) -> int:
     QUICK[0] = args.quick
     NO_REUSE[0] = args.no_reuse
     TRIALS[0] = args.trials
+    SHARES[:] = [int(x) for x in args.shares.split(",")]
     cores = len(os.sched_getaffinity(0))
     print(
         f"machine: {cores} cores, load average {os.getloadavg()[0]:.2f}, "
