@@ -200,6 +200,8 @@ class NoisyIndex:
         Signature numbering of channels.
     memo : dict
         Channel facts by channel and kept qubits.
+    whole : list of ChannelFacts or None
+        Facts of channel items kept on all their qubits, once looked up.
     """
 
     noisy: NoisyCircuit
@@ -211,15 +213,22 @@ class NoisyIndex:
     last: list[int]
     table: dict
     memo: dict
+    whole: list
+
+    def whole_facts(self, g: int) -> ChannelFacts:
+        """Facts of channel item ``g`` kept on all its qubits (memoised in :attr:`whole`)."""
+        facts = self.facts(g, (True,) * len(self.qubits[g]))
+        self.whole[g] = facts
+        return facts
 
     def facts(self, g: int, keep: tuple[bool, ...]) -> ChannelFacts | None:
         """Memoised :func:`channel_facts` of channel item ``g`` kept on ``keep``."""
         channel = self.noisy.items[g].channel
         key = (id(channel), keep)
-        memo = self.memo
-        if key not in memo:
-            memo[key] = (channel, channel_facts(channel, keep, self.table))
-        return memo[key][1]
+        found = self.memo.get(key)
+        if found is None:
+            found = self.memo[key] = (channel, channel_facts(channel, keep, self.table))
+        return found[1]
 
 
 def _never_flips(channel: Channel) -> tuple[bool, ...]:
@@ -272,7 +281,8 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
             link.append((q, d, last[q]))
             last[q] = g
         links.append(tuple(link))
-    return NoisyIndex(noisy, qubits, channel, signature, symmetric, links, last, {}, {})
+    whole = [None] * len(qubits)
+    return NoisyIndex(noisy, qubits, channel, signature, symmetric, links, last, {}, {}, whole)
 
 
 def noisy_light_cone(
@@ -295,7 +305,7 @@ def noisy_light_cone(
         is the last; ``facts`` for channels (the kept qubits may be fewer
         than the channel's).
     """
-    links, is_channel, qubits = index.links, index.channel, index.qubits
+    links, is_channel, qubits, whole = index.links, index.channel, index.qubits, index.whole
     any_layer: dict[int, int] = {}
     flip_layer: dict[int, int] = {}
     barrier: dict[int, int] = {}
@@ -327,7 +337,18 @@ def noisy_light_cone(
                     push(heap, -prev)
             continue
         if is_channel[g]:
-            _keep_channel(index, g, link, any_layer, flip_layer, barrier, cone, push, heap)
+            if len(link) > 1:
+                _keep_channel(index, g, link, any_layer, flip_layer, barrier, cone, push, heap)
+                continue
+            q, _, prev = link[0]  # a one-qubit channel on a cone qubit: kept whole
+            facts = whole[g] or index.whole_facts(g)
+            layer = any_layer[q] + 1
+            cone.append((g, layer, qubits[g], facts))
+            any_layer[q] = barrier[q] = layer
+            if not facts.keeps_diagonal[0]:
+                flip_layer[q] = layer
+            if prev >= 0:
+                push(heap, -prev)
             continue
         for q, d, _ in link:
             if d and q in barrier and barrier[q] > dep:
@@ -350,25 +371,31 @@ def noisy_light_cone(
 
 def _keep_channel(index, g, link, any_layer, flip_layer, barrier, cone, push, heap) -> None:
     """Add channel ``g`` (reduced to the cone's qubits where it can be) to ``cone``."""
-    keep = tuple(q in any_layer for q, _, _ in link)
+    keep = tuple([q in any_layer for q, _, _ in link])
     facts = index.facts(g, keep)
     if facts is None:
         keep = (True,) * len(link)
         facts = index.facts(g, keep)
-    kept = [(q, prev) for (q, _, prev), k in zip(link, keep) if k]
-    layer = 1 + max(any_layer.get(q, 0) for q, _ in kept)
-    cone.append((g, layer, tuple(q for q, _ in kept), facts))
-    for (q, prev), stays in zip(kept, facts.keeps_diagonal):
-        if q in any_layer:
-            any_layer[q] = layer
-            if not stays:
-                flip_layer[q] = layer
+    layer = 0
+    for (q, _, _), k in zip(link, keep):
+        if k and q in any_layer and any_layer[q] > layer:
+            layer = any_layer[q]
+    layer += 1
+    kept = []
+    stays = iter(facts.keeps_diagonal)
+    for (q, _, prev), k in zip(link, keep):
+        if not k:
+            continue
+        kept.append(q)
+        if next(stays):
+            if q not in any_layer:
+                flip_layer[q] = -1
         else:
-            any_layer[q] = layer
-            flip_layer[q] = -1 if stays else layer
-        barrier[q] = layer
+            flip_layer[q] = layer
+        any_layer[q] = barrier[q] = layer
         if prev >= 0:
             push(heap, -prev)
+    cone.append((g, layer, tuple(kept), facts))
 
 
 def canonical_noisy_cone(

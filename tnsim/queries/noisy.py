@@ -7,8 +7,8 @@ light cone of the qubits asked about (:mod:`tnsim.network.noisy`): gates and
 channels outside it drop out.  Cones with equal gates and equal noise up to
 renaming qubits are contracted once (:class:`NoisyTermCache`).  A cone whose
 density matrix is small is contracted in time order instead (gate by gate
-on its ``4**m`` entries), without planning: that is cheaper for the few-qubit
-cones of local observables.
+on its ``4**m`` entries, :mod:`tnsim.queries.timeorder`), without planning:
+that is cheaper for the few-qubit cones of local observables.
 
 Readout errors (``readout=True``, the default) are applied to what a chip
 reports: marginals and bitstring probabilities become ``C @ p`` per qubit,
@@ -27,8 +27,7 @@ import numpy as np
 
 from tnsim.circuits.bits import parse_many
 from tnsim.circuits.circuit import Circuit
-from tnsim.circuits.gates import gate_matrix
-from tnsim.circuits.noise import ChannelOp, NoiseModel, NoisyCircuit
+from tnsim.circuits.noise import NoiseModel, NoisyCircuit
 from tnsim.errors import InputError
 from tnsim.execution.batch import fitted_engine
 from tnsim.execution.memory import default_memory_limit
@@ -44,6 +43,7 @@ from tnsim.plan.driver import greedy_tree
 from tnsim.queries.amplitudes import contract_simplified
 from tnsim.queries.checks import check_dtype, check_qubits
 from tnsim.queries.observables import Observable, parse_observable
+from tnsim.queries.timeorder import evolve_pairs, pair_flops, pauli_value, probabilities
 
 __all__ = [
     "DENSE_FLOPS",
@@ -51,7 +51,6 @@ __all__ = [
     "NoisyTermCache",
     "apply_confusion",
     "as_noisy",
-    "cone_density_matrix",
     "noisy_distribution",
     "noisy_expectation",
     "noisy_marginal",
@@ -89,67 +88,14 @@ def as_noisy(circuit: Circuit | NoisyCircuit, noise: NoiseModel | None = None) -
     return noise.apply(circuit)
 
 
-def _dense_flops(local: NoisyCircuit) -> int:
-    """Real FLOPs of contracting a cone in time order (complex multiply-add = 8)."""
-    entries = 4**local.num_qubits
-    total = 0
-    for item in local.items:
-        k = len(item.qubits)
-        total += entries * (4**k if isinstance(item, ChannelOp) else 2 * 2**k)
-    return 8 * total
-
-
-def cone_density_matrix(local: NoisyCircuit) -> np.ndarray:
-    """The final density matrix of a small noisy circuit, contracted item by item in time order.
-
-    Returns the ``2**m`` square matrix (qubit 0 the most significant bit);
-    readout errors are not applied.
-
-    Examples
-    --------
-    >>> from tnsim.circuits.channels import depolarizing
-    >>> noisy = NoiseModel().after_gates(depolarizing(0.5)).apply(Circuit(1).h(0))
-    >>> np.round(cone_density_matrix(noisy).real, 3)
-    array([[0.5 , 0.25],
-           [0.25, 0.5 ]])
-    """
-    m = local.num_qubits
-    rho = np.zeros(4**m, dtype=np.complex128)
-    rho[0] = 1.0
-    rho = rho.reshape((2,) * (2 * m))
-    for item in local.items:
-        qs = list(item.qubits)
-        k = len(qs)
-        if isinstance(item, ChannelOp):
-            t = item.channel.superoperator().reshape((2,) * (4 * k))
-            axes = qs + [m + q for q in qs]
-            rho = np.tensordot(t, rho, axes=(list(range(2 * k, 4 * k)), axes))
-            rho = np.moveaxis(rho, list(range(2 * k)), axes)
-            continue
-        u = item.matrix().reshape((2,) * (2 * k))
-        for mat, axes in ((u, qs), (u.conj(), [m + q for q in qs])):
-            rho = np.tensordot(mat, rho, axes=(list(range(k, 2 * k)), axes))
-            rho = np.moveaxis(rho, list(range(k)), axes)
-    return rho.reshape(2**m, 2**m)
-
-
 def _dense_first(local: NoisyCircuit, small=None) -> bool:
     """Whether the time-order contraction is the cheaper way (see :data:`DENSE_FLOPS`)."""
     if local.num_qubits > DENSE_QUBITS:
         return False
-    flops = _dense_flops(local)
+    flops = pair_flops(local)
     if flops <= DENSE_FLOPS or small is None:
         return flops <= DENSE_FLOPS
     return flops < greedy_tree(small.indices, small.output, small.size).cost().flops
-
-
-def _pauli_value(rho: np.ndarray, letters: Mapping[int, str]) -> float:
-    """``Tr(P rho)`` of a ``2**m`` square density matrix and a Pauli string."""
-    m = rho.shape[0].bit_length() - 1
-    t = rho.reshape((2,) * (2 * m))
-    for q, letter in letters.items():
-        t = np.moveaxis(np.tensordot(gate_matrix(letter.lower()), t, axes=(1, q)), 0, q)
-    return float(np.trace(t.reshape(rho.shape)).real)
 
 
 def _confusions(local: NoisyCircuit, count: int, readout: bool) -> list[np.ndarray | None]:
@@ -173,8 +119,7 @@ def apply_confusion(table: np.ndarray, matrices: Sequence[np.ndarray | None]) ->
 
 
 def _dense_table(local: NoisyCircuit, t: int, confusion) -> np.ndarray:
-    table = np.clip(np.diagonal(cone_density_matrix(local)).real, 0.0, None)
-    return apply_confusion(table.reshape(1 << t, -1).sum(axis=1), confusion)
+    return apply_confusion(probabilities(evolve_pairs(local), t), confusion)
 
 
 def _cone_table(local: NoisyCircuit, t: int, readout: bool, dtype, memory_limit) -> np.ndarray:
@@ -198,10 +143,10 @@ def _cone_table(local: NoisyCircuit, t: int, readout: bool, dtype, memory_limit)
 def _cone_pauli(local: NoisyCircuit, letters: dict[int, str], dtype, memory_limit) -> float:
     """``Tr(P ρ)`` of a cone (readout not applied)."""
     if _dense_first(local):
-        return _pauli_value(cone_density_matrix(local), letters)
+        return pauli_value(evolve_pairs(local), letters)
     small = absorb_small(noisy_doubled_network(local, paulis=letters, dtype=dtype))
     if _dense_first(local, small):
-        return _pauli_value(cone_density_matrix(local), letters)
+        return pauli_value(evolve_pairs(local), letters)
     return float(complex(contract_simplified(small, memory_limit)).real)
 
 
