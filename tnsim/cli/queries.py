@@ -29,6 +29,7 @@ from tnsim.cli.common import (
     write_output,
 )
 from tnsim.cli.inputs import gather_bits, observable_text, parse_qubit_list, read_records
+from tnsim.cli.noiseflag import add_noise_argument, noisy_circuit
 from tnsim.cli.numbers import (
     amplitude_record,
     bits_cell,
@@ -58,7 +59,13 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
             "print; list at most 24 (or sample the circuit)"
         )
     circuit = load_circuit(args.circuit)
-    probs = marginal(circuit, qubits, dtype=dtype_of(args))
+    noisy = noisy_circuit(args, circuit)
+    if noisy is None:
+        probs = marginal(circuit, qubits, dtype=dtype_of(args))
+    else:
+        from tnsim.queries.noisy import noisy_marginal
+
+        probs = noisy_marginal(noisy, qubits, dtype=dtype_of(args))
     k = len(qubits)
     outcomes = [format_bits([(i >> (k - 1 - j)) & 1 for j in range(k)]) for i in range(1 << k)]
     if args.json:
@@ -88,14 +95,22 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
 
 def _cmd_expect(args: argparse.Namespace) -> int:
     from tnsim.queries.expectation import TermCache
+    from tnsim.queries.noisy import NoisyTermCache
     from tnsim.queries.observables import parse_observable
 
     circuit = load_circuit(args.circuit)
     obs = parse_observable(observable_text(args), circuit.num_qubits)
-    cache = TermCache(circuit, dtype=dtype_of(args))
+    noisy = noisy_circuit(args, circuit)
+    cache: TermCache | NoisyTermCache
+    if noisy is None:
+        cache = TermCache(circuit, dtype=dtype_of(args))
+        get = cache.value
+    else:
+        cache = NoisyTermCache(noisy, dtype=dtype_of(args))
+        get = cache.reported  # readout errors included
     rows: list[dict[str, Any]] = []
     for term in obs.terms:
-        value = cache.value(term.paulis)
+        value = get(term.paulis)
         pauli = " ".join(f"{p}{q}" for q, p in term.paulis) or "I"
         rows.append({"coefficient": term.coefficient, "pauli": pauli, "expectation": value})
     total = float(sum(r["coefficient"] * r["expectation"] for r in rows))
@@ -131,14 +146,19 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     circuit = load_circuit(args.circuit)
     width = order_width(circuit, args.bit_order)
     check_array(args.shots, max(width, circuit.num_qubits), "--shots")
-    out = sample(
-        circuit,
-        args.shots,
-        seed=args.seed,
-        block=args.block,
-        method=args.method,
-        dtype=dtype_of(args),
-    )
+    noisy = noisy_circuit(args, circuit)
+    extra: dict[str, Any] = {}
+    if noisy is None:
+        out = sample(
+            circuit,
+            args.shots,
+            seed=args.seed,
+            block=args.block,
+            method=args.method,
+            dtype=dtype_of(args),
+        )
+    else:
+        out, extra = _noisy_samples(args, noisy)
     lines = [format_bits(row) for row in from_qubit_order(out, circuit, args.bit_order)]
     if args.json:
         doc = {
@@ -146,6 +166,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             "bit_order": args.bit_order,
             "seed": args.seed,
             "method": args.method,
+            **extra,
             "precision": args.precision,
             "samples": lines,
         }
@@ -157,6 +178,22 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     return 0
 
 
+def _noisy_samples(args: argparse.Namespace, noisy) -> tuple[Any, dict[str, Any]]:
+    """``sample --noise``: exact up to 20 qubits (or ``--method marginals``), else trajectories."""
+    from tnsim.queries.noisy_sampling import noisy_sample
+
+    method = {"gates": "trajectories", "marginals": "marginals"}.get(args.method, "auto")
+    drawn = noisy_sample(
+        noisy, args.shots, seed=args.seed, block=args.block, method=method, dtype=dtype_of(args)
+    )
+    if drawn.method == "trajectories" and not args.json:
+        print(
+            f"tnsim: {args.shots} noisy shots from {drawn.trajectories} distinct trajectories",
+            file=sys.stderr,
+        )
+    return drawn.bits, {"noisy_method": drawn.method, "trajectories": drawn.trajectories}
+
+
 # --- xeb ---
 
 
@@ -165,9 +202,26 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
     from tnsim.queries.xeb import xeb
 
     circuit = load_circuit(args.circuit)
+    noisy = noisy_circuit(args, circuit)
+    if args.samples is None:
+        if noisy is None:
+            raise OptionError("give a SAMPLES file, or --noise FILE for the predicted fidelity")
+        return _predicted_xeb(args, noisy, {}, [])
     shown, counts = read_records(args.samples, circuit, args.bit_order)
     rows = to_qubit_order(shown, circuit, args.bit_order)
     r = xeb(circuit, rows, counts=counts, dtype=dtype_of(args))
+    if noisy is not None:
+        doc = {
+            "fidelity": json_float(r.fidelity),
+            "standard_error": json_float(r.standard_error),
+            "num_samples": r.num_samples,
+        }
+        lines = [
+            f"linear XEB fidelity F   {_fidelity_text(r)}",
+            f"standard error          {log10_text(r.log10_standard_error)}",
+            f"samples                 {r.num_samples} ({len(rows)} distinct bitstrings)",
+        ]
+        return _predicted_xeb(args, noisy, doc, lines)
     if args.json:
         doc = {
             "fidelity": json_float(r.fidelity),
@@ -189,6 +243,32 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
         f"standard error          {log10_text(r.log10_standard_error)}   "
         f"(log10 = {r.log10_standard_error:.6f})",
         f"samples                 {r.num_samples} ({len(rows)} distinct bitstrings)",
+    ]
+    write_output("\n".join(lines) + "\n", args.output)
+    emit_stats(args)
+    return 0
+
+
+def _predicted_xeb(args: argparse.Namespace, noisy, doc: dict, lines: list[str]) -> int:
+    """``xeb --noise``: the predicted fidelity (exact where narrow; digital error model)."""
+    from tnsim.queries.noisy_xeb import predict_xeb
+
+    pred = predict_xeb(noisy, dtype=dtype_of(args))
+    if args.json:
+        doc.update(
+            predicted_exact=None if pred.exact is None else json_float(pred.exact),
+            noiseless_exact=None if pred.ideal is None else json_float(pred.ideal),
+            predicted_digital=json_float(pred.digital),
+            precision=args.precision,
+        )
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
+        return 0
+    wide = "(too wide to compute)"
+    lines += [
+        f"predicted F, exact      {wide if pred.exact is None else f'{pred.exact:+.6f}'}",
+        f"noiseless F, exact      {wide if pred.ideal is None else f'{pred.ideal:+.6f}'}",
+        f"predicted F, digital    {pred.digital:+.6f}  (product of gate and readout fidelities)",
     ]
     write_output("\n".join(lines) + "\n", args.output)
     emit_stats(args)
@@ -260,6 +340,9 @@ def _cmd_amp(args: argparse.Namespace) -> int:
         args.precision = "single"
     circuit = load_circuit(args.circuit)
     rows, shown = gather_bits(args, circuit)
+    noisy = noisy_circuit(args, circuit)
+    if noisy is not None:
+        return _noisy_probabilities(args, noisy, rows, shown)
     records = _amp_records(circuit, rows, shown, dtype_of(args))
     if args.json:
         doc = {
@@ -284,6 +367,34 @@ def _cmd_amp(args: argparse.Namespace) -> int:
         write_output(buffer.getvalue(), args.output)
     else:
         _amp_table(records, len(rows), shown.shape[1], args.full_bits, args.bit_order, sys.stdout)
+    emit_stats(args)
+    return 0
+
+
+def _noisy_probabilities(args: argparse.Namespace, noisy, rows, shown) -> int:
+    """``amp --noise``: a mixed state has no amplitudes; print the probabilities of reading x."""
+    from tnsim.circuits.bits import format_bits
+    from tnsim.queries.noisy import noisy_probabilities
+
+    probs = noisy_probabilities(noisy, rows, dtype=dtype_of(args))
+    pairs = [(format_bits(b), float(p)) for b, p in zip(shown, probs)]
+    if args.json:
+        doc = {
+            "num_qubits": noisy.num_qubits,
+            "bit_order": args.bit_order,
+            "precision": args.precision,
+            "units": {"probability": "<x|rho|x> of reading x, readout errors included"},
+            "probabilities": [{"bits": b, "probability": json_float(p)} for b, p in pairs],
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
+        return 0
+    cells = [b if args.full_bits else bits_cell(b) for b, _ in pairs]
+    bw = max(9, *(len(c) for c in cells)) if cells else 9
+    lines = [f"# probabilities <x|rho|x> of reading x (noisy; {args.bit_order} order)"]
+    lines.append(f"{'bitstring':<{bw}}  probability")
+    lines += [f"{c:<{bw}}  {p:.12e}" for c, (_, p) in zip(cells, pairs)]
+    write_output("\n".join(lines) + "\n", args.output)
     emit_stats(args)
     return 0
 
@@ -317,6 +428,7 @@ def register(sub) -> None:
         "always holds whole ones)",
     )
     amp.add_argument("--single", action="store_true", help=argparse.SUPPRESS)
+    add_noise_argument(amp, "prints the probabilities <x|rho|x> of reading x instead")
     add_query_arguments(amp)
     amp.set_defaults(func=_cmd_amp)
 
@@ -335,6 +447,7 @@ def register(sub) -> None:
         metavar="LIST",
         help="e.g. 0,3,5 (repeatable; the lists accumulate in order)",
     )
+    add_noise_argument(m, "readout errors included")
     add_query_arguments(m, bit_order=False)
     m.set_defaults(func=_cmd_marginal)
 
@@ -359,6 +472,7 @@ def register(sub) -> None:
         help="one term per line ('#' starts a comment; - for standard input); added to "
         "any --observable terms",
     )
+    add_noise_argument(e, "readout errors included")
     add_query_arguments(e, bit_order=False)
     e.set_defaults(func=_cmd_expect)
 
@@ -391,6 +505,11 @@ def register(sub) -> None:
         help="gates: gate by gate from amplitudes; marginals: chain rule over light cones; "
         "auto (default): all amplitudes at once up to 20 qubits, gate by gate beyond",
     )
+    add_noise_argument(
+        s,
+        "auto: exact up to 20 qubits, else quantum trajectories; gates: trajectories; "
+        "marginals: chain rule",
+    )
     add_query_arguments(s)
     s.set_defaults(func=_cmd_sample)
 
@@ -404,8 +523,11 @@ def register(sub) -> None:
     x.add_argument("circuit", help=circuit_help)
     x.add_argument(
         "samples",
+        nargs="?",
         help="bitstrings (- for standard input): one per line, bits,count lines (device "
-        "counts), JSON of tnsim sample --json, or a JSON object of counts",
+        "counts), JSON of tnsim sample --json, or a JSON object of counts (optional with "
+        "--noise)",
     )
+    add_noise_argument(x, "adds the predicted fidelity: exact up to 16 qubits, and digital")
     add_query_arguments(x)
     x.set_defaults(func=_cmd_xeb)
