@@ -216,7 +216,7 @@ def test_toml_without_tomllib_says_to_use_json(tmp_path, monkeypatch):
     path = tmp_path / "noise.toml"
     path.write_text(_TOML)
     monkeypatch.setitem(sys.modules, "tomllib", None)
-    with pytest.raises(InputError, match="Python 3.11 or later.*as JSON"):
+    with pytest.raises(InputError, match=r"Python 3\.11 or later.*as JSON"):
         read_noise_model(path)
 
 

@@ -14,6 +14,7 @@ from tnsim.circuits import channels as ch
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.gates import GATES
 from tnsim.circuits.noise import ChannelOp, NoiseModel, NoisyCircuit
+from tnsim.execution.blas import blas_threads, set_blas_threads
 
 __all__ = [
     "dense_density_matrix",
@@ -139,6 +140,15 @@ def dense_density_matrix(noisy: NoisyCircuit) -> np.ndarray:
     array([[0.25, 0.  ],
            [0.  , 0.75]])
     """
+    full = blas_threads()  # small products: one BLAS thread (see tnsim.execution.blas)
+    set_blas_threads(1)
+    try:
+        return _dense_density_matrix(noisy)
+    finally:
+        set_blas_threads(full)
+
+
+def _dense_density_matrix(noisy: NoisyCircuit) -> np.ndarray:
     n = noisy.num_qubits
     rho = np.zeros((2,) * (2 * n), dtype=np.complex128)
     rho[(0,) * (2 * n)] = 1.0
@@ -155,12 +165,16 @@ def dense_density_matrix(noisy: NoisyCircuit) -> np.ndarray:
     return rho.reshape(2**n, 2**n)
 
 
-def dense_read_probabilities(noisy: NoisyCircuit, readout: bool = True) -> np.ndarray:
+def dense_read_probabilities(
+    noisy: NoisyCircuit, readout: bool = True, rho: np.ndarray | None = None
+) -> np.ndarray:
     """Probabilities of reading each bitstring (for tests).
 
-    ``A diag(ρ)``, ``A`` the Kronecker product of the qubits' confusion matrices.
+    ``A diag(ρ)``, ``A`` the Kronecker product of the qubits' confusion matrices;
+    ``rho`` is :func:`dense_density_matrix` of ``noisy`` if already computed.
     """
-    p = np.diagonal(dense_density_matrix(noisy)).real.copy()
+    rho = dense_density_matrix(noisy) if rho is None else rho
+    p = np.diagonal(rho).real.copy()
     if not readout:
         return p
     a = np.ones((1, 1))
@@ -170,17 +184,21 @@ def dense_read_probabilities(noisy: NoisyCircuit, readout: bool = True) -> np.nd
 
 
 def dense_reported_pauli(
-    noisy: NoisyCircuit, paulis: dict[int, str], readout: bool = True
+    noisy: NoisyCircuit,
+    paulis: dict[int, str],
+    readout: bool = True,
+    rho: np.ndarray | None = None,
 ) -> float:
     """The mean reported parity of measuring ``paulis`` (for tests).
 
     Each qubit is turned to its Pauli's eigenbasis, all qubits are read (with
     their confusion matrices), and the product of the measured qubits' ``±1``
-    is averaged.
+    is averaged.  ``rho`` is :func:`dense_density_matrix` of ``noisy`` if already computed.
     """
     n = noisy.num_qubits
     turn = {"X": GATES["h"].make(), "Y": GATES["h"].make() @ GATES["sdg"].make(), "Z": np.eye(2)}
-    rho = dense_density_matrix(noisy).reshape((2,) * (2 * n))
+    rho = dense_density_matrix(noisy) if rho is None else rho
+    rho = rho.reshape((2,) * (2 * n))
     for q, letter in paulis.items():
         u = turn[letter]
         rho = _apply_tensor(_apply_tensor(rho, u, [q]), u.conj(), [n + q])
