@@ -80,5 +80,5 @@ def test_prediction_and_digital_estimate_agree_for_small_errors():
         .after_gates(ch.depolarizing(0.008, 2), gates=["cz"])
     )
     r = predict_xeb(c, noise=model)
-    ideal = predict_xeb(c)
-    assert r.exact / ideal.exact == pytest.approx(r.digital, rel=0.05)
+    assert r.ideal == pytest.approx(predict_xeb(c).exact, abs=1e-12)
+    assert r.exact / r.ideal == pytest.approx(r.digital, rel=0.05)

@@ -44,6 +44,8 @@ _PUBLIC = {
     "angle": "tnsim.circuits.parameters",
     "read_qasm": "tnsim.circuits.qasm",
     "write_qasm": "tnsim.circuits.qasm",
+    "NoiseModel": "tnsim.circuits.noise",
+    "read_noise_model": "tnsim.circuits.noisefile",
     "Scaled": "tnsim.network.scaled",
     "TensorGraph": "tnsim.network.graph",
     "PairTree": "tnsim.plan.tree",
@@ -74,6 +76,11 @@ _PUBLIC = {
     "AngleOptimum": "tnsim.queries.optimize",
     "optimize_maxcut": "tnsim.queries.maxcut",
     "MaxCutOptimum": "tnsim.queries.maxcut",
+    "noisy_marginal": "tnsim.queries.noisy",
+    "noisy_expectation": "tnsim.queries.noisy",
+    "noisy_probabilities": "tnsim.queries.noisy",
+    "noisy_sample": "tnsim.queries.noisy_sampling",
+    "predict_xeb": "tnsim.queries.noisy_xeb",
 }
 
 __all__ = [
@@ -119,6 +126,8 @@ def __dir__() -> list[str]:
 if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.circuits.circuit import Circuit, Operation
     from tnsim.circuits.parameters import AngleExpr, angle
+    from tnsim.circuits.noise import NoiseModel
+    from tnsim.circuits.noisefile import read_noise_model
     from tnsim.circuits.qasm import read_qasm, write_qasm
     from tnsim.execution.options import ContractionRecord, RunOptions, run_options
     from tnsim.network.graph import TensorGraph
@@ -134,6 +143,9 @@ if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.queries.landscape import EnergyLandscape
     from tnsim.queries.marginals import marginal
     from tnsim.queries.maxcut import MaxCutOptimum, optimize_maxcut
+    from tnsim.queries.noisy import noisy_expectation, noisy_marginal, noisy_probabilities
+    from tnsim.queries.noisy_sampling import noisy_sample
+    from tnsim.queries.noisy_xeb import predict_xeb
     from tnsim.queries.observables import Observable, PauliTerm, parse_observable
     from tnsim.queries.optimize import AngleOptimum, optimize_angles
     from tnsim.queries.sampling import sample

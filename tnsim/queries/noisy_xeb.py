@@ -40,8 +40,14 @@ class XebPrediction:
     exact : float or None
         Expected linear XEB of samples of the noisy distribution (``None``
         when the circuit is wider than asked to compute).
+    ideal : float or None
+        Expected linear XEB of samples of the ideal distribution,
+        ``2**n Σ p(x)² - 1`` (about 1 for random circuits); ``exact / ideal``
+        is the fidelity the digital error model estimates.
     digital : float
-        Digital error model estimate: product of ``1 - e`` over channels and readouts.
+        Digital error model estimate: product of ``1 - e`` over channels and
+        readouts (an estimate of the XEB of random circuits, whose ideal XEB is
+        about 1).
     channels : int
         Channels in the noisy circuit.
     readout_qubits : int
@@ -49,6 +55,7 @@ class XebPrediction:
     """
 
     exact: float | None
+    ideal: float | None
     digital: float
     channels: int
     readout_qubits: int
@@ -114,10 +121,12 @@ def predict_xeb(
     noisy = as_noisy(circuit, noise)
     dt = check_dtype(dtype)
     n = noisy.num_qubits
-    exact = None
+    exact = ideal = None
     if n <= exact_width:
-        ideal = all_probabilities(noisy.ideal_circuit(), dtype=dt, memory_limit=memory_limit)
+        p = all_probabilities(noisy.ideal_circuit(), dtype=dt, memory_limit=memory_limit)
         q = noisy_distribution(noisy, dtype=dt, memory_limit=memory_limit, max_qubits=exact_width)
-        exact = float(2.0**n * float(np.dot(q, ideal)) - 1.0)
+        exact = float(2.0**n * float(np.dot(q, p)) - 1.0)
+        ideal = float(2.0**n * float(np.dot(p, p)) - 1.0)
     channels = len(noisy.channel_ops())
-    return XebPrediction(exact, digital_error_fidelity(noisy), channels, len(noisy.readout))
+    digital = digital_error_fidelity(noisy)
+    return XebPrediction(exact, ideal, digital, channels, len(noisy.readout))
