@@ -125,9 +125,9 @@ def __dir__() -> list[str]:
 
 if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.circuits.circuit import Circuit, Operation
-    from tnsim.circuits.parameters import AngleExpr, angle
     from tnsim.circuits.noise import NoiseModel
     from tnsim.circuits.noisefile import read_noise_model
+    from tnsim.circuits.parameters import AngleExpr, angle
     from tnsim.circuits.qasm import read_qasm, write_qasm
     from tnsim.execution.options import ContractionRecord, RunOptions, run_options
     from tnsim.network.graph import TensorGraph

@@ -163,9 +163,10 @@ def _dense_density_matrix(noisy: NoisyCircuit) -> np.ndarray:
         ket = list(item.qubits)
         bra = [n + q for q in ket]
         if isinstance(item, ChannelOp):
-            rho = sum(
-                _apply_tensor(_apply_tensor(rho, k, ket), k.conj(), bra) for k in item.channel.kraus
-            )
+            out = np.zeros_like(rho)
+            for k in item.channel.kraus:
+                out += _apply_tensor(_apply_tensor(rho, k, ket), k.conj(), bra)
+            rho = out
         else:
             u = item.matrix()
             rho = _apply_tensor(_apply_tensor(rho, u, ket), u.conj(), bra)

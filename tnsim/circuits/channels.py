@@ -125,7 +125,10 @@ class Channel:
         array([0.75, 0.  , 0.  , 0.25])
         """
         if self._superoperator is None:
-            s = sum(np.kron(k, k.conj()) for k in self.kraus)
+            d = 1 << self.num_qubits
+            s = np.zeros((d * d, d * d), dtype=complex)
+            for k in self.kraus:
+                s += np.kron(k, k.conj())
             s.setflags(write=False)
             self._superoperator = s
         return self._superoperator
@@ -211,7 +214,7 @@ def _check_complete(ops: list[np.ndarray], name: str) -> None:
 def _probability(value, what: str, upper: float = 1.0) -> float:
     if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
         raise InputError(f"{what} must be a real number, got {value!r}")
-    if not 0.0 <= value <= upper:
+    if not 0.0 <= float(value) <= upper:
         raise InputError(f"{what} must be between 0 and {upper:g}, got {value!r}")
     return float(value)
 

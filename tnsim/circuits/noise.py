@@ -321,7 +321,7 @@ class NoiseModel:
             self.readout_all = m
             return self
         groups = _qubit_groups(qubits, "readout")
-        for g in groups:
+        for g in groups or ():
             if len(g) != 1:
                 raise InputError(f"readout: give single qubits, got the group {list(g)}")
             self.readout_qubits[g[0]] = m

@@ -48,6 +48,7 @@ older Pythons write the model as JSON.  Errors name the file, the place
 
 from __future__ import annotations
 
+import importlib
 import json
 import os
 from collections.abc import Mapping
@@ -253,7 +254,7 @@ def read_noise_model(path: str | os.PathLike) -> NoiseModel:
 
 def _load_toml(text: str, path: str):
     try:
-        import tomllib
+        tomllib = importlib.import_module("tomllib")
     except ImportError:
         raise InputError(
             f"{path}: reading TOML needs Python 3.11 or later (tomllib); write the noise "
@@ -291,7 +292,7 @@ def _member(text: str, pos: int, key, decoder: json.JSONDecoder) -> int:
     index = 0
     while text[pos] not in "]}":
         if opener == "{":
-            name, pos = json.decoder.scanstring(text, pos + 1)
+            name, pos = decoder.raw_decode(text, pos)
             pos = _skip(text, _skip(text, pos) + 1)
             if name == key:
                 return pos

@@ -29,6 +29,7 @@ import heapq
 import weakref
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import cast
 
 import numpy as np
 import opt_einsum
@@ -218,12 +219,14 @@ class NoisyIndex:
     def whole_facts(self, g: int) -> ChannelFacts:
         """Facts of channel item ``g`` kept on all its qubits (memoised in :attr:`whole`)."""
         facts = self.facts(g, (True,) * len(self.qubits[g]))
+        if facts is None:  # a channel kept on all its qubits always has facts
+            raise AssertionError(f"no facts for channel item {g}")
         self.whole[g] = facts
         return facts
 
     def facts(self, g: int, keep: tuple[bool, ...]) -> ChannelFacts | None:
         """Memoised :func:`channel_facts` of channel item ``g`` kept on ``keep``."""
-        channel = self.noisy.items[g].channel
+        channel = cast(ChannelOp, self.noisy.items[g]).channel
         key = (id(channel), keep)
         found = self.memo.get(key)
         if found is None:
@@ -494,7 +497,7 @@ def noisy_cone(
     out: list[Operation | ChannelOp] = []
     for g, qs, facts in items:
         if facts is None:
-            op = source[g]
+            op = cast(Operation, source[g])
             out.append(Operation(op.name, qs, op.params, op.custom))
         else:
             out.append(ChannelOp(facts.channel, qs))

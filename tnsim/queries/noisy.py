@@ -30,7 +30,7 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.noise import NoiseModel, NoisyCircuit
 from tnsim.errors import InputError
 from tnsim.execution.batch import fitted_engine
-from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.network.noisy import (
     NoisyIndex,
     canonical_noisy_cone,
@@ -41,7 +41,7 @@ from tnsim.network.noisy import (
 from tnsim.network.simplify import absorb_small
 from tnsim.plan.driver import greedy_tree
 from tnsim.queries.amplitudes import contract_simplified
-from tnsim.queries.checks import check_dtype, check_qubits
+from tnsim.queries.checks import check_circuit, check_qubits
 from tnsim.queries.observables import Observable, parse_observable
 from tnsim.queries.timeorder import evolve_pairs, pair_flops, pauli_value, probabilities
 
@@ -79,8 +79,7 @@ def as_noisy(circuit: Circuit | NoisyCircuit, noise: NoiseModel | None = None) -
         if noise is not None:
             raise InputError("give either a NoisyCircuit or a Circuit with a noise model, not both")
         return circuit
-    if not isinstance(circuit, Circuit):
-        raise InputError(f"expected a tnsim.Circuit, got {type(circuit).__name__}")
+    check_circuit(circuit)
     if noise is None:
         return NoisyCircuit.ideal(circuit)
     if not isinstance(noise, NoiseModel):
@@ -122,7 +121,7 @@ def _dense_table(local: NoisyCircuit, t: int, confusion) -> np.ndarray:
     return apply_confusion(probabilities(evolve_pairs(local), t), confusion)
 
 
-def _cone_table(local: NoisyCircuit, t: int, readout: bool, dtype, memory_limit) -> np.ndarray:
+def _cone_table(local: NoisyCircuit, t: int, readout: bool, opts: QueryOptions) -> np.ndarray:
     """Probabilities of the outcomes of local qubits ``0..t-1`` (read, when ``readout``)."""
     confusion = _confusions(local, t, readout)
     if _dense_first(local):
@@ -131,23 +130,23 @@ def _cone_table(local: NoisyCircuit, t: int, readout: bool, dtype, memory_limit)
         local,
         open_qubits=range(t),
         confusion={q: c for q, c in enumerate(confusion) if c is not None},
-        dtype=dtype,
+        dtype=opts.dtype,
     )
     small = absorb_small(network)
     if _dense_first(local, small):
         return _dense_table(local, t, confusion)
-    value = contract_simplified(small, memory_limit).value()
+    value = contract_simplified(small, opts).value()
     return np.clip(np.asarray(value).real.reshape(-1), 0.0, None)
 
 
-def _cone_pauli(local: NoisyCircuit, letters: dict[int, str], dtype, memory_limit) -> float:
+def _cone_pauli(local: NoisyCircuit, letters: dict[int, str], opts: QueryOptions) -> float:
     """``Tr(P ρ)`` of a cone (readout not applied)."""
     if _dense_first(local):
         return pauli_value(evolve_pairs(local), letters)
-    small = absorb_small(noisy_doubled_network(local, paulis=letters, dtype=dtype))
+    small = absorb_small(noisy_doubled_network(local, paulis=letters, dtype=opts.dtype))
     if _dense_first(local, small):
         return pauli_value(evolve_pairs(local), letters)
-    return float(complex(contract_simplified(small, memory_limit)).real)
+    return float(complex(contract_simplified(small, opts)).real)
 
 
 class NoisyTermCache:
@@ -157,10 +156,10 @@ class NoisyTermCache:
     ----------
     noisy : NoisyCircuit
         The circuit with its channels (see :func:`as_noisy`).
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates (passed to the planner).
+    dtype : numpy dtype, optional
+        Contraction dtype (default: the enclosing ``run_options`` block's, else complex128).
+    memory_limit : int or str, optional
+        Bytes for live intermediates (default: the block's, else half the available memory).
 
     Attributes
     ----------
@@ -176,11 +175,15 @@ class NoisyTermCache:
     (0.9, 0.9, 1)
     """
 
-    def __init__(self, noisy: NoisyCircuit, dtype=np.complex128, memory_limit: int | None = None):
+    def __init__(
+        self,
+        noisy: NoisyCircuit,
+        dtype: DTypeLike | None = None,
+        memory_limit: MemoryLimit | None = None,
+    ):
         self.noisy = noisy
         self.index: NoisyIndex = index_noisy(noisy)
-        self.dtype = check_dtype(dtype)
-        self.memory_limit = memory_limit
+        self.options = resolve_options(memory_limit, dtype=dtype)
         self.values: dict[tuple, float] = {}
         self.hits = 0
         self.misses = 0
@@ -197,7 +200,7 @@ class NoisyTermCache:
         self.misses += 1
         local = noisy_cone(self.index, items, qubits)
         letters = {k: letter for k, (_, letter) in enumerate(paulis)}
-        v = _cone_pauli(local, letters, self.dtype, self.memory_limit)
+        v = _cone_pauli(local, letters, self.options)
         self.values[key] = v
         return v
 
@@ -229,8 +232,8 @@ def noisy_expectation(
     *,
     noise: NoiseModel | None = None,
     readout: bool = True,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> float:
     """Return ``Tr(H ρ)`` for a real-weighted Pauli sum ``H`` and the noisy circuit's state ``ρ``.
 
@@ -244,10 +247,10 @@ def noisy_expectation(
         Applied to ``circuit``.
     readout : bool
         Include readout errors (the value a chip reports; module notes).
-    dtype : numpy dtype
-        Contraction dtype.
-    memory_limit : int, optional
-        Bytes for live intermediates.
+    dtype, memory_limit : optional
+        Contraction dtype and memory limit, as for
+        :func:`tnsim.queries.expectation.expectation` (default: the enclosing
+        ``run_options`` block's).
 
     Returns
     -------
@@ -273,8 +276,8 @@ def noisy_marginal(
     *,
     noise: NoiseModel | None = None,
     readout: bool = True,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> np.ndarray:
     """Outcome probabilities of a few qubits of a noisy circuit, summed over the others.
 
@@ -308,12 +311,12 @@ def noisy_marginal(
     [0.25, 0.75]
     """
     noisy = as_noisy(circuit, noise)
-    dt = check_dtype(dtype)
+    opts = resolve_options(memory_limit, dtype=dtype)
     qs = check_qubits(qubits, noisy.num_qubits, "marginal")
     index = index_noisy(noisy)
     _, items, local_qubits = canonical_noisy_cone(index, [(q, "P") for q in qs])
     local = noisy_cone(index, items, local_qubits)
-    return _cone_table(local, len(qs), readout, dt, memory_limit)
+    return _cone_table(local, len(qs), readout, opts)
 
 
 def noisy_distribution(
@@ -321,8 +324,8 @@ def noisy_distribution(
     *,
     noise: NoiseModel | None = None,
     readout: bool = True,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
     max_qubits: int = 20,
 ) -> np.ndarray:
     """All ``2**n`` outcome probabilities of a narrow noisy circuit (index: qubit 0 is the MSB).
@@ -364,8 +367,8 @@ def noisy_probabilities(
     *,
     noise: NoiseModel | None = None,
     readout: bool = True,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> np.ndarray:
     """Probabilities ``<x|ρ|x>`` of chosen bitstrings (of reading them, with ``readout``).
 
@@ -397,7 +400,7 @@ def noisy_probabilities(
     array([0.45, 0.05])
     """
     noisy = as_noisy(circuit, noise)
-    dt = check_dtype(dtype)
+    opts = resolve_options(memory_limit, dtype=dtype)
     n = noisy.num_qubits
     if isinstance(bitstrings, np.ndarray) and bitstrings.ndim == 2:
         rows = np.asarray(bitstrings, dtype=np.uint8)
@@ -412,14 +415,15 @@ def noisy_probabilities(
     local = noisy_cone(index, items, list(range(n)))
     vary = _varying(rows)
     if n <= DENSE_QUBITS and _dense_first(local):
-        table = _cone_table(local, n, readout, dt, memory_limit)
+        table = _cone_table(local, n, readout, opts)
         return table[rows.astype(np.int64) @ (1 << np.arange(n - 1, -1, -1))]
     confusion = dict(local.readout) if readout else {}
     if len(vary) <= OPEN_LIMIT:
-        return _open_rows(local, rows, vary, confusion, dt, memory_limit)
-    network = noisy_doubled_network(local, open_qubits=range(n), confusion=confusion, dtype=dt)
-    limit = memory_limit or default_memory_limit()
-    engine = fitted_engine(network, network.output, (), min(64, len(rows)), limit, runs=len(rows))
+        return _open_rows(local, rows, vary, confusion, opts)
+    network = noisy_doubled_network(
+        local, open_qubits=range(n), confusion=confusion, dtype=opts.dtype
+    )
+    engine = fitted_engine(network, network.output, (), min(64, len(rows)), opts, runs=len(rows))
     out = np.zeros(len(rows))
     for start in range(0, len(rows), engine.chunk):
         part = engine.run(rows[start : start + engine.chunk])
@@ -429,7 +433,7 @@ def noisy_probabilities(
     return np.clip(out, 0.0, None)
 
 
-def _open_rows(local, rows, vary, confusion, dt, memory_limit) -> np.ndarray:
+def _open_rows(local, rows, vary, confusion, opts: QueryOptions) -> np.ndarray:
     """Rows differing only on ``vary``: one contraction with those legs open."""
     n = local.num_qubits
     first = rows[0]
@@ -443,9 +447,9 @@ def _open_rows(local, rows, vary, confusion, dt, memory_limit) -> np.ndarray:
         open_qubits=vary,
         closing=closing,
         confusion={q: confusion[q] for q in vary if q in confusion},
-        dtype=dt,
+        dtype=opts.dtype,
     )
-    result = contract_simplified(absorb_small(network), memory_limit)
+    result = contract_simplified(absorb_small(network), opts)
     table = np.ldexp(np.asarray(result.mantissa).real.reshape(-1), result.exponent)
     weights = 1 << np.arange(len(vary) - 1, -1, -1)
     flat = rows[:, vary].astype(np.int64) @ weights if vary else np.zeros(len(rows), np.int64)

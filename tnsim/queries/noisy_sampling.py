@@ -38,9 +38,8 @@ from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.circuits.noise import ChannelOp, NoiseModel, NoisyCircuit
 from tnsim.errors import InputError, ResourceLimitError
 from tnsim.execution.batch import fitted_engine
-from tnsim.execution.memory import default_memory_limit
+from tnsim.execution.options import DTypeLike, MemoryLimit, QueryOptions, resolve_options
 from tnsim.network.noisy import canonical_noisy_cone, index_noisy, noisy_cone, noisy_doubled_network
-from tnsim.queries.checks import check_dtype
 from tnsim.queries.gatewise import sample_by_gates
 from tnsim.queries.noisy import _cone_table, as_noisy
 from tnsim.queries.sampling import sample_blocks
@@ -94,32 +93,31 @@ def _draw_rows(table: np.ndarray, rng: np.random.Generator, shots: int) -> np.nd
     return np.searchsorted(cum, rng.random(shots), side="right")
 
 
-def _exact_narrow(noisy, shots, rng, readout, dtype, memory_limit) -> np.ndarray:
+def _exact_narrow(noisy, shots, rng, readout, opts: QueryOptions) -> np.ndarray:
     n = noisy.num_qubits
     index = index_noisy(noisy)
     _, items, qubits = canonical_noisy_cone(index, [(q, "P") for q in range(n)])
-    table = _cone_table(noisy_cone(index, items, qubits), n, readout, dtype, memory_limit)
+    table = _cone_table(noisy_cone(index, items, qubits), n, readout, opts)
     flat = _draw_rows(table, rng, shots)
     return ((flat[:, None] >> np.arange(n - 1, -1, -1)) & 1).astype(np.uint8)
 
 
-def _conditional(index, prior, block, prefixes, readout, dtype, memory_limit) -> np.ndarray:
+def _conditional(index, prior, block, prefixes, readout, opts: QueryOptions) -> np.ndarray:
     """``p(x_block | x_prior)`` for each row of ``prefixes``: shape ``(rows, 2**len(block))``."""
     _, items, qubits = canonical_noisy_cone(index, [(q, "P") for q in prior + block])
     local = noisy_cone(index, items, qubits)
     a, b = len(prior), len(block)
     if a + b <= TABLE_WIDTH:
-        table = _cone_table(local, a + b, readout, dtype, memory_limit).reshape(1 << a, 1 << b)
+        table = _cone_table(local, a + b, readout, opts).reshape(1 << a, 1 << b)
         weights = 1 << np.arange(a - 1, -1, -1)
         rows = table[prefixes.astype(np.int64) @ weights if a else np.zeros(1, np.int64)]
     else:
         confusion = {q: local.readout[q] for q in range(a + b) if readout and q in local.readout}
         network = noisy_doubled_network(
-            local, open_qubits=range(a + b), confusion=confusion, dtype=dtype
+            local, open_qubits=range(a + b), confusion=confusion, dtype=opts.dtype
         )
-        limit = memory_limit or default_memory_limit()
         out = network.output
-        engine = fitted_engine(network, out[:a], out[a:], min(64, len(prefixes)), limit)
+        engine = fitted_engine(network, out[:a], out[a:], min(64, len(prefixes)), opts)
         parts = []
         for start in range(0, len(prefixes), engine.chunk):
             value = engine.run(prefixes[start : start + engine.chunk])
@@ -131,7 +129,7 @@ def _conditional(index, prior, block, prefixes, readout, dtype, memory_limit) ->
     return rows / totals
 
 
-def _chain_rule(noisy, shots, rng, readout, block, dtype, memory_limit) -> np.ndarray:
+def _chain_rule(noisy, shots, rng, readout, block, opts: QueryOptions) -> np.ndarray:
     n = noisy.num_qubits
     index = index_noisy(noisy)
     out = np.zeros((shots, n), dtype=np.uint8)
@@ -142,7 +140,7 @@ def _chain_rule(noisy, shots, rng, readout, block, dtype, memory_limit) -> np.nd
             group = group.reshape(-1)
         else:
             prefixes, group = np.zeros((1, 0), np.uint8), np.zeros(shots, np.intp)
-        table = _conditional(index, prior, qs, prefixes, readout, dtype, memory_limit)
+        table = _conditional(index, prior, qs, prefixes, readout, opts)
         cum = np.cumsum(table, axis=1)
         cum[:, -1] = 1.0
         outcome = (rng.random(shots)[:, None] >= cum[group]).sum(axis=1)
@@ -190,7 +188,8 @@ def _trajectory_parts(noisy: NoisyCircuit):
 
 def _part(channel: Channel) -> tuple:
     d = 1 << channel.num_qubits
-    probs, inserts = [], []
+    probs: list[float] = []
+    inserts: list[list[tuple[str, int]] | np.ndarray | None] = []
     for j, k in enumerate(channel.kraus):
         gram = k.conj().T @ k
         w = float(np.trace(gram).real) / d
@@ -241,7 +240,7 @@ def _trajectory_circuit(noisy, parts, choice: np.ndarray, width: int) -> Circuit
     return c
 
 
-def _trajectories(noisy, shots, rng, dtype, memory_limit) -> tuple[np.ndarray, int, int]:
+def _trajectories(noisy, shots, rng, opts: QueryOptions) -> tuple[np.ndarray, int, int]:
     parts = _trajectory_parts(noisy)
     channels = [item for item in noisy.items if isinstance(item, ChannelOp)]
     mixed = [parts[id(item.channel)] for item in channels if parts[id(item.channel)][0] == "mix"]
@@ -259,7 +258,7 @@ def _trajectories(noisy, shots, rng, dtype, memory_limit) -> tuple[np.ndarray, i
     for t, choice in enumerate(distinct):
         rows = np.flatnonzero(group == t)
         circuit = _trajectory_circuit(noisy, parts, choice, width)
-        bits = sample_by_gates(circuit, len(rows), rng, dtype=dtype, memory_limit=memory_limit)
+        bits = sample_by_gates(circuit, len(rows), rng, opts)
         out[rows] = bits[:, : noisy.num_qubits]
     return out, len(distinct), ancillas
 
@@ -273,8 +272,8 @@ def noisy_sample(
     method: str = "auto",
     readout: bool = True,
     block: int = 4,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> NoisySamples:
     """Draw samples of what a chip running the noisy circuit would read out.
 
@@ -297,8 +296,9 @@ def noisy_sample(
         Apply readout errors to the sampled bits.
     block : int
         Qubits per chain-rule step.
-    dtype, memory_limit
-        Contraction dtype and the bytes intermediates may use.
+    dtype, memory_limit : optional
+        Contraction dtype and memory limit (default: the enclosing ``run_options``
+        block's, else complex128 and half of the available memory).
 
     Returns
     -------
@@ -315,7 +315,7 @@ def noisy_sample(
     2
     """
     noisy = as_noisy(circuit, noise)
-    dt = check_dtype(dtype)
+    opts = resolve_options(memory_limit, dtype=dtype)
     if isinstance(shots, bool) or not isinstance(shots, numbers.Integral) or shots < 0:
         raise InputError(f"shots must be a non-negative integer, got {shots!r}")
     if isinstance(block, bool) or not isinstance(block, numbers.Integral) or not 1 <= block <= 16:
@@ -331,14 +331,14 @@ def noisy_sample(
     if shots == 0:
         return NoisySamples(np.zeros((0, n), np.uint8), method)
     if method == "trajectories":
-        bits, count, ancillas = _trajectories(noisy, int(shots), rng, dt, memory_limit)
+        bits, count, ancillas = _trajectories(noisy, int(shots), rng, opts)
         bits = _read(bits, noisy, rng) if readout else bits
         return NoisySamples(bits, "trajectories", count, ancillas)
     if method == "exact" and n <= DIRECT_WIDTH:
-        bits = _exact_narrow(noisy, int(shots), rng, readout, dt, memory_limit)
+        bits = _exact_narrow(noisy, int(shots), rng, readout, opts)
         return NoisySamples(bits, "distribution")
     try:
-        bits = _chain_rule(noisy, int(shots), rng, readout, int(block), dt, memory_limit)
+        bits = _chain_rule(noisy, int(shots), rng, readout, int(block), opts)
     except MemoryError:
         raise ResourceLimitError(
             "exact noisy sampling by the chain rule ran out of memory; use "

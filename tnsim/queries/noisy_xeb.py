@@ -21,7 +21,7 @@ import numpy as np
 
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.noise import NoiseModel, NoisyCircuit
-from tnsim.queries.checks import check_dtype
+from tnsim.execution.options import DTypeLike, MemoryLimit, resolve_options
 from tnsim.queries.marginals import all_probabilities
 from tnsim.queries.noisy import as_noisy, noisy_distribution
 
@@ -89,8 +89,8 @@ def predict_xeb(
     *,
     noise: NoiseModel | None = None,
     exact_width: int = EXACT_WIDTH,
-    dtype: type | np.dtype = np.complex128,
-    memory_limit: int | None = None,
+    dtype: DTypeLike | None = None,
+    memory_limit: MemoryLimit | None = None,
 ) -> XebPrediction:
     """Predict the linear XEB a chip running the noisy circuit should score.
 
@@ -103,8 +103,9 @@ def predict_xeb(
     exact_width : int
         Compute the exact expectation for circuits of at most this many qubits
         (it needs all ``2**n`` ideal and noisy probabilities).
-    dtype, memory_limit
-        Contraction dtype and the bytes intermediates may use.
+    dtype, memory_limit : optional
+        Contraction dtype and memory limit (default: the enclosing ``run_options``
+        block's).
 
     Returns
     -------
@@ -119,12 +120,14 @@ def predict_xeb(
     (0.9, 0.90625)
     """
     noisy = as_noisy(circuit, noise)
-    dt = check_dtype(dtype)
+    opts = resolve_options(memory_limit, dtype=dtype)
     n = noisy.num_qubits
     exact = ideal = None
     if n <= exact_width:
-        p = all_probabilities(noisy.ideal_circuit(), dtype=dt, memory_limit=memory_limit)
-        q = noisy_distribution(noisy, dtype=dt, memory_limit=memory_limit, max_qubits=exact_width)
+        p = all_probabilities(noisy.ideal_circuit(), opts)
+        q = noisy_distribution(
+            noisy, dtype=opts.dtype, memory_limit=opts.memory_limit, max_qubits=exact_width
+        )
         exact = float(2.0**n * float(np.dot(q, p)) - 1.0)
         ideal = float(2.0**n * float(np.dot(p, p)) - 1.0)
     channels = len(noisy.channel_ops())

@@ -99,11 +99,12 @@ def _fold(items: Sequence[Operation | ChannelOp], m: int):
             touched[q] = True
         steps.append((s, qs))
     for q in range(m):
-        if pending[q] is not None:
+        p = pending[q]
+        if p is not None:
             if touched[q]:
-                steps.append((pending[q], (q,)))
+                steps.append((p, (q,)))
             else:
-                start[q] = pending[q] @ start[q]
+                start[q] = p @ start[q]
     return start, steps
 
 
