@@ -26,6 +26,7 @@ cones with equal noise get equal canonical keys (:func:`canonical_noisy_cone`).
 from __future__ import annotations
 
 import heapq
+import operator
 import weakref
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -435,7 +436,7 @@ def canonical_noisy_cone(
     True
     """
     cone = noisy_light_cone(index, {q: letter in "ZP" for q, letter in targets})
-    cone.sort(key=_second)
+    cone.sort(key=_LAYER)
     label = {q: k for k, (q, _) in enumerate(targets)}
     signature, symmetric = index.signature, index.symmetric
     emitted: list = []
@@ -458,7 +459,7 @@ def canonical_noisy_cone(
                 qs, ranks = (qs[1], qs[0]), (ranks[1], ranks[0])
             ranked.append((ranks, sig, g, qs, facts))
         if len(ranked) > 1:
-            ranked.sort(key=_rank_key)
+            ranked.sort()  # item numbers are unique: qubits and facts are never compared
         for ranks, sig, g, qs, facts in ranked:
             if _BIG in ranks:
                 local = []
@@ -476,12 +477,7 @@ def canonical_noisy_cone(
     return tuple(key_parts), emitted, sorted(label, key=label.__getitem__)
 
 
-def _second(entry) -> int:
-    return entry[1]
-
-
-def _rank_key(entry) -> tuple:
-    return entry[:3]
+_LAYER = operator.itemgetter(1)
 
 
 def noisy_cone(
