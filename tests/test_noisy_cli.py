@@ -74,7 +74,7 @@ def test_amp_with_noise_prints_probabilities(files, capsys):
     got = [r["probability"] for r in out["probabilities"]]
     np.testing.assert_allclose(got, [full[0b010011], full[0b111111]], atol=1e-13)
     assert main(["amp", circuit, "--bits", "010011", "--noise", noise]) == 0
-    assert "probability (noisy" in capsys.readouterr().out
+    assert "probabilities <x|rho|x> of reading x (noisy" in capsys.readouterr().out
 
 
 def test_sample_and_xeb_with_noise(files, tmp_path, capsys):
@@ -85,13 +85,13 @@ def test_sample_and_xeb_with_noise(files, tmp_path, capsys):
     assert len(lines) == 200 and all(len(x) == 6 for x in lines)
     assert main(["sample", circuit, "--shots", "20", "--noise", noise, "--json"]) == 0
     record = json.loads(capsys.readouterr().out)
-    assert record["method"] == "distribution" and record["trajectories"] == 0
+    assert record["noisy_method"] == "distribution" and record["trajectories"] == 0
     assert main(["xeb", circuit, str(out), "--noise", noise, "--json"]) == 0
     r = json.loads(capsys.readouterr().out)
     assert {"fidelity", "predicted_exact", "predicted_digital"} <= set(r)
     assert main(["xeb", circuit, "--noise", noise]) == 0
     text = capsys.readouterr().out
-    assert "predicted, exact" in text and "predicted, digital" in text
+    assert "predicted F, exact" in text and "predicted F, digital" in text
 
 
 def test_sample_by_trajectories_states_their_number(files, capsys):
@@ -99,7 +99,7 @@ def test_sample_by_trajectories_states_their_number(files, capsys):
     args = ["sample", circuit, "--shots", "30", "--noise", noise, "--method", "gates", "--json"]
     assert main(args) == 0
     record = json.loads(capsys.readouterr().out)
-    assert record["method"] == "trajectories" and 1 <= record["trajectories"] <= 30
+    assert record["noisy_method"] == "trajectories" and 1 <= record["trajectories"] <= 30
 
 
 def test_bad_noise_files_are_one_line_errors(files, tmp_path, capsys):

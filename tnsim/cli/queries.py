@@ -211,7 +211,7 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
     rows = to_qubit_order(shown, circuit, args.bit_order)
     r = xeb(circuit, rows, counts=counts, dtype=dtype_of(args))
     if noisy is not None:
-        doc = {
+        doc: dict[str, Any] = {
             "fidelity": json_float(r.fidelity),
             "standard_error": json_float(r.standard_error),
             "num_samples": r.num_samples,
