@@ -18,6 +18,7 @@ from typing import Any
 
 from tnsim.cli.common import (
     OptionError,
+    add_input_argument,
     add_query_arguments,
     check_array,
     count_type,
@@ -57,7 +58,7 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
             f"--qubits lists {len(qubits)} qubits: 2^{len(qubits)} outcomes are too many to "
             "print; list at most 24 (or sample the circuit)"
         )
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     probs = marginal(circuit, qubits, dtype=dtype_of(args))
     k = len(qubits)
     outcomes = [format_bits([(i >> (k - 1 - j)) & 1 for j in range(k)]) for i in range(1 << k)]
@@ -90,7 +91,7 @@ def _cmd_expect(args: argparse.Namespace) -> int:
     from tnsim.queries.expectation import TermCache
     from tnsim.queries.observables import parse_observable
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     obs = parse_observable(observable_text(args), circuit.num_qubits)
     cache = TermCache(circuit, dtype=dtype_of(args))
     rows: list[dict[str, Any]] = []
@@ -128,7 +129,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     from tnsim.circuits.bits import format_bits
     from tnsim.queries.sampling import sample
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     width = order_width(circuit, args.bit_order)
     check_array(args.shots, max(width, circuit.num_qubits), "--shots")
     out = sample(
@@ -164,7 +165,7 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
     from tnsim.circuits.bitfiles import to_qubit_order
     from tnsim.queries.xeb import xeb
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     shown, counts = read_records(args.samples, circuit, args.bit_order)
     rows = to_qubit_order(shown, circuit, args.bit_order)
     r = xeb(circuit, rows, counts=counts, dtype=dtype_of(args))
@@ -258,7 +259,7 @@ def _cmd_amp(args: argparse.Namespace) -> int:
     if args.single:
         warn("--single is deprecated and will be removed; use --precision single")
         args.precision = "single"
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     rows, shown = gather_bits(args, circuit)
     records = _amp_records(circuit, rows, shown, dtype_of(args))
     if args.json:
@@ -293,7 +294,7 @@ def _cmd_amp(args: argparse.Namespace) -> int:
 
 def register(sub) -> None:
     """Add ``amp``, ``marginal``, ``expect``, ``sample`` and ``xeb`` to a subparsers object."""
-    circuit_help = "OpenQASM 2.0 file, or - to read it from standard input"
+    circuit_help = "OpenQASM 2.0 or 3 file, or - to read it from standard input"
     amp = sub.add_parser(
         "amp",
         help="amplitudes <x|C|0...0> of bitstrings",
@@ -301,6 +302,7 @@ def register(sub) -> None:
         "width), with |a|^2, log10|a| and the phase in radians.",
     )
     amp.add_argument("circuit", help=circuit_help)
+    add_input_argument(amp)
     amp.add_argument(
         "--bits", action="append", metavar="BITS", help="a bitstring (repeatable; they accumulate)"
     )
@@ -328,6 +330,7 @@ def register(sub) -> None:
         "j-th listed qubit.",
     )
     m.add_argument("circuit", help=circuit_help)
+    add_input_argument(m)
     m.add_argument(
         "--qubits",
         required=True,
@@ -347,6 +350,7 @@ def register(sub) -> None:
         "A value that starts with '-' is written --observable=-Z0 (or --observable -Z0).",
     )
     e.add_argument("circuit", help=circuit_help)
+    add_input_argument(e)
     e.add_argument(
         "--observable",
         action="append",
@@ -370,6 +374,7 @@ def register(sub) -> None:
         "--json; xeb and amp --bits-file read either back.",
     )
     s.add_argument("circuit", help=circuit_help)
+    add_input_argument(s)
     s.add_argument(
         "--shots",
         type=count_type("--shots", 0, 10**12),
@@ -402,6 +407,7 @@ def register(sub) -> None:
         "stays exact where F leaves the range of a float. Count files weight each bitstring.",
     )
     x.add_argument("circuit", help=circuit_help)
+    add_input_argument(x)
     x.add_argument(
         "samples",
         help="bitstrings (- for standard input): one per line, bits,count lines (device "

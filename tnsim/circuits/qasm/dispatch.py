@@ -58,6 +58,7 @@ def read_qasm(
     *,
     max_ops: int = DEFAULT_MAX_OPS,
     inputs: Mapping[str, float] | None = None,
+    name: str | None = None,
 ) -> Circuit:
     """Read an OpenQASM 2.0 or 3 program (the header says which) into a Circuit.
 
@@ -71,6 +72,8 @@ def read_qasm(
     inputs : mapping of str to float, optional
         Values of an OpenQASM 3 program's ``input`` declarations (an OpenQASM 2.0
         program has none).
+    name : str, optional
+        How errors name program text (default ``<text>``), e.g. ``<stdin>``.
 
     Returns
     -------
@@ -107,13 +110,13 @@ def read_qasm(
             f"read_qasm takes OpenQASM text or a file path, got {type(path_or_text).__name__}"
         )
     if qasm_version(head) == "3":
-        return read_qasm3(path_or_text, inputs=inputs, max_ops=max_ops)
+        return read_qasm3(path_or_text, inputs=inputs, max_ops=max_ops, name=name)
     if inputs:
         raise InputError(
             f"inputs {sorted(inputs)} given, but an OpenQASM 2.0 program has no inputs; "
             "declare them in an OpenQASM 3 program ('input float[64] theta;')"
         )
-    return read_qasm2(path_or_text, max_ops=max_ops)
+    return read_qasm2(path_or_text, max_ops=max_ops, name=name)
 
 
 def write_qasm(circuit: Circuit, version: int = 2) -> str:

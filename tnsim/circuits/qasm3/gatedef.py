@@ -6,7 +6,7 @@ from tnsim.circuits.qasm.lexer import Token, describe
 from tnsim.circuits.qasm3.expr import Code, is_constant
 from tnsim.circuits.qasm3.extensions import EXTENSION_TOKENS3
 from tnsim.circuits.qasm3.library import MAX_GATE_DEPTH, SIZE_CAP, Call, Gate, call_size
-from tnsim.circuits.qasm3.parser import REFUSED, TokenParser
+from tnsim.circuits.qasm3.parser import REFUSED, RESERVED, TokenParser
 
 __all__ = ["DefinitionParser"]
 
@@ -106,10 +106,14 @@ class DefinitionParser(TokenParser):
         return names
 
     def check_formals(self, params: list[Token], qargs: list[Token]) -> None:
-        """Refuse parameter or qubit names that repeat or clash."""
+        """Refuse parameter or qubit names that repeat or are reserved (they may shadow others)."""
         seen: set[str] = set()
         for tok in params + qargs:
-            self.new_name(tok, "gate parameter or argument")
+            if tok.text in RESERVED:
+                raise self.error(
+                    f"'{tok.text}' is a reserved word and cannot name a gate parameter or argument",
+                    tok,
+                )
             if tok.text in seen:
                 raise self.error(f"'{tok.text}' is listed twice in the gate's signature", tok)
             seen.add(tok.text)

@@ -33,8 +33,9 @@ __all__ = [
 ]
 
 
-class NodeError(Exception):
-    """Raised inside a node; the node turns it into a located :class:`QasmError`."""
+def start(code: Code) -> int:
+    """Offset of the first character of an expression (its leftmost step)."""
+    return min(offset for _, _, offset in code)
 
 
 def _note(env: dict) -> str:
@@ -98,7 +99,7 @@ class Node:
         if isinstance(value, float):
             if not value.is_integer():
                 raise self.source.error(
-                    f"{what} must be an integer, got {value!r}{_note(env)}", code[0][2]
+                    f"{what} must be an integer, got {value!r}{_note(env)}", start(code)
                 )
             value = int(value)
         return value
@@ -132,7 +133,7 @@ class Node:
                 f"index {i} is out of range for {what} register '{operand.token.text}' of size "
                 f"{reg.size} (valid: 0..{reg.size - 1}, or -{reg.size}..-1 from the end)"
                 + _note(env),
-                code[0][2],
+                start(code),
             )
         return j
 

@@ -195,6 +195,7 @@ def read_qasm3(
     *,
     inputs: Mapping[str, float] | None = None,
     max_ops: int = DEFAULT_MAX_OPS,
+    name: str | None = None,
 ) -> Circuit:
     """Read an OpenQASM 3 program into a :class:`~tnsim.circuits.circuit.Circuit`.
 
@@ -210,6 +211,8 @@ def read_qasm3(
         Refuse programs that expand to more operations (or run more loop
         iterations) than this (default 10,000,000).  Sizes are bounded before
         anything is expanded, so definition "bombs" and huge loops fail at once.
+    name : str, optional
+        How errors name program text (default ``<text>``), e.g. ``<stdin>``.
 
     Returns
     -------
@@ -255,7 +258,7 @@ def read_qasm3(
     values = dict(inputs or {})
     if not all(isinstance(k, str) for k in values):
         raise InputError("inputs must map input names (str) to numbers")
-    source, directory = _source(path_or_text)
+    source, directory = _source(path_or_text, name)
     program = Program(max_ops, values)
     eof = _Parser(source, directory, program).parse(main=True)
     unused = sorted(set(values) - program.used_inputs)
@@ -270,7 +273,7 @@ def read_qasm3(
     return program.circuit()
 
 
-def _source(path_or_text) -> tuple[Source, Path | None]:
+def _source(path_or_text, name: str | None = None) -> tuple[Source, Path | None]:
     """The source to read and the folder its includes come from (``None`` for text)."""
     if isinstance(path_or_text, os.PathLike) or (
         isinstance(path_or_text, str) and names_file(path_or_text)
@@ -283,7 +286,7 @@ def _source(path_or_text) -> tuple[Source, Path | None]:
                 f"no such file: '{path_or_text}' (and it is not OpenQASM text, which starts "
                 "with 'OPENQASM 3.0;'); check the path"
             )
-        return Source(path_or_text, "<text>"), None
+        return Source(path_or_text.removeprefix("\ufeff"), name or "<text>"), None
     raise InputError(
         f"read_qasm3 takes OpenQASM text or a file path, got {type(path_or_text).__name__}"
     )

@@ -32,6 +32,8 @@ class StatementParser(DeclarationParser):
             raise self.error(f"expected a gate name, found {describe(head)}", head)
         gate = None if head.text == "gphase" else self.lookup(head)
         codes = self.param_list(variables)
+        if self.at("["):
+            raise self.refuse(self.tok, "gate durations (timing)")
         operands = [] if self.at(";") else self.operand_list(variables, quantum=True)
         self.expect(";", f"after the call of '{head.text}'")
         controls = sum(v for k, v, _ in mods if k in ("ctrl", "negctrl"))
@@ -145,9 +147,9 @@ class StatementParser(DeclarationParser):
             if self.tok.kind == "sym" and self.tok.text.endswith("="):
                 raise self.refuse(self.tok, "classical assignments")
             raise self.error(f"expected '=' after the bits, found {describe(self.tok)}")
-        self.advance()
+        equals = self.advance()
         if not self.at("measure"):
-            raise self.refuse(self.tok, "classical assignments (only '= measure ...' is read)")
+            raise self.refuse(equals, "classical assignments (only '= measure ...' is read)")
         tok = self.advance()
         qubits = self.operand(variables, True)
         self.expect(";", "after the measurement")
