@@ -27,6 +27,7 @@ STAGES = {
     "execution": 4,
     "queries": 5,
     "cli": 6,
+    "service": 6,
     "testing": 7,
     "__init__": 7,
     "__main__": 7,
