@@ -21,6 +21,7 @@ STAGES = {
     "fileio": 0,
     "fitted": 0,
     "units": 0,
+    "version": 0,
     "circuits": 1,
     "network": 2,
     "plan": 3,

@@ -34,9 +34,16 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.qasm import qasm_version, read_qasm
 from tnsim.errors import CheckpointError, InputError, QasmError, TnsimError
 from tnsim.execution.options import run_options
+from tnsim.queries.amplitudes import iter_amplitudes
+from tnsim.queries.expectation import expectation
+from tnsim.queries.forecast import forecast
+from tnsim.queries.marginals import marginal
 from tnsim.queries.observables import Observable, PauliTerm, parse_observable
+from tnsim.queries.sampling import sample
+from tnsim.queries.xeb import xeb
 from tnsim.service.schema import JOB_VERSION, json_path, schema_errors, shorten
 from tnsim.units import format_bytes, parse_memory
+from tnsim.version import tnsim_version
 
 __all__ = [
     "JobStopped",
@@ -342,8 +349,6 @@ def _amplitude_entries(mantissa: np.ndarray, exponent: np.ndarray) -> list[dict]
 
 
 def _amplitudes(job: Prepared, query: dict) -> dict:
-    from tnsim.queries.amplitudes import iter_amplitudes
-
     rows = parse_many(query["bitstrings"], job.circuit.num_qubits)
     entries: list[dict] = []
     for _, mantissa, exponent in iter_amplitudes(
@@ -354,8 +359,6 @@ def _amplitudes(job: Prepared, query: dict) -> dict:
 
 
 def _marginal(job: Prepared, query: dict) -> dict:
-    from tnsim.queries.marginals import marginal
-
     qubits = list(query["qubits"])
     probs = marginal(job.circuit, qubits, dtype=job.dtype, memory_limit=job.memory_limit)
     k = len(qubits)
@@ -364,8 +367,6 @@ def _marginal(job: Prepared, query: dict) -> dict:
 
 
 def _expectation(job: Prepared, query: dict) -> dict:
-    from tnsim.queries.expectation import expectation
-
     value = expectation(
         job.circuit, query["observable"], dtype=job.dtype, memory_limit=job.memory_limit
     )
@@ -373,8 +374,6 @@ def _expectation(job: Prepared, query: dict) -> dict:
 
 
 def _samples(job: Prepared, query: dict) -> dict:
-    from tnsim.queries.sampling import sample
-
     seed = query.get("seed", job.seed)
     rows = sample(
         job.circuit, query["shots"], seed=seed, dtype=job.dtype, memory_limit=job.memory_limit
@@ -383,8 +382,6 @@ def _samples(job: Prepared, query: dict) -> dict:
 
 
 def _xeb(job: Prepared, query: dict) -> dict:
-    from tnsim.queries.xeb import xeb
-
     result = xeb(job.circuit, query["bitstrings"], dtype=job.dtype)
     return {
         "fidelity": _number(result.fidelity),
@@ -394,8 +391,6 @@ def _xeb(job: Prepared, query: dict) -> dict:
 
 
 def _forecast(job: Prepared, query: dict) -> dict:
-    from tnsim.queries.forecast import forecast
-
     report = forecast(
         job.circuit,
         query.get("bitstring"),
@@ -520,9 +515,7 @@ def _answer(job: Prepared, k: int, query: dict, monitor: Monitor, checkpoint: st
 
 def result_document(status: str, began: float, **fields) -> dict:
     """A result document with ``status``, timed from ``began`` (``time.perf_counter()``)."""
-    from tnsim import __version__
-
-    out = {"version": JOB_VERSION, "tnsim_version": __version__, "status": status, "errors": []}
+    out = {"version": JOB_VERSION, "tnsim_version": tnsim_version(), "status": status, "errors": []}
     out.update(fields)
     out.setdefault("answers", [])
     out["seconds"] = time.perf_counter() - began

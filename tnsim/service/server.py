@@ -31,8 +31,10 @@ from tnsim.errors import InputError
 from tnsim.fileio import write_atomic
 from tnsim.service.http import JobApp
 from tnsim.service.jobs import Limits
+from tnsim.service.schema import schema_errors
 from tnsim.service.store import JobStore
 from tnsim.service.workers import WorkerPool
+from tnsim.version import tnsim_version
 
 __all__ = [
     "DEFAULT_MAX_BODY",
@@ -154,19 +156,11 @@ class Service:
         self.app = JobApp(self)
 
     def start(self) -> None:
-        """Load the query code and the schema, then start running queued jobs.
+        """Load the schema validator, then start running queued jobs.
 
-        Loading now (not on the first job) keeps the first answer quick and the
+        Loading it now (not on the first job) keeps the first answer quick and the
         server's memory flat once it serves.
         """
-        import tnsim.queries.amplitudes
-        import tnsim.queries.expectation
-        import tnsim.queries.forecast
-        import tnsim.queries.marginals
-        import tnsim.queries.sampling
-        import tnsim.queries.xeb  # noqa: F401
-        from tnsim.service.schema import schema_errors
-
         schema_errors({})
         self.pool.start()
 
@@ -178,11 +172,9 @@ class Service:
 
     def health(self) -> dict:
         """State of the service."""
-        from tnsim import __version__
-
         return {
             "status": "ok",
-            "tnsim_version": __version__,
+            "tnsim_version": tnsim_version(),
             "job_document_version": 1,
             "queued": self.store.count("queued"),
             "running": self.store.count("running"),

@@ -31,14 +31,13 @@ from tnsim.service.jobs import (
     run_prepared,
 )
 from tnsim.service.store import FINISHED, JobStore, dumps
+from tnsim.version import tnsim_version
 
 __all__ = ["JobWatch", "WorkerPool", "cancelled_result"]
 
 
 def cancelled_result(document: dict | None = None) -> dict:
     """The result document of a job cancelled before it ran."""
-    from tnsim import __version__
-
     queries = (document or {}).get("queries", [])
     answers = [
         {"kind": q.get("kind", "?"), "status": "not run", "seconds": 0.0, "contractions": []}
@@ -47,7 +46,7 @@ def cancelled_result(document: dict | None = None) -> dict:
     ]
     return {
         "version": 1,
-        "tnsim_version": __version__,
+        "tnsim_version": tnsim_version(),
         "status": "cancelled",
         "errors": [],
         "answers": answers,
@@ -264,11 +263,9 @@ class WorkerPool:
 
 
 def _internal_error() -> dict:
-    from tnsim import __version__
-
     return {
         "version": 1,
-        "tnsim_version": __version__,
+        "tnsim_version": tnsim_version(),
         "status": "failed",
         "errors": [{"path": "$", "message": "internal error; the server log has the details"}],
         "answers": [],
