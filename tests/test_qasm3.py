@@ -26,6 +26,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import tnsim
+import tnsim.circuits.qasm3.reader as qasm3_reader
 from tnsim import read_qasm, write_qasm
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.gates import GATES, gate_matrix
@@ -965,3 +966,100 @@ def test_mutation_fuzz_gives_only_tnsim_errors():
 @pytest.mark.slow
 def test_mutation_fuzz_gives_only_tnsim_errors_long():
     assert mutation_fuzz(100_000, seed=2) == 0
+
+
+# ---------------------------------------------------------------------------- fast path
+
+SIGNATURES = {"h": (0, 1), "rz": (1, 1), "cx": (0, 2), "ccx": (0, 3), "U": (3, 1), "cu": (4, 2)}
+SIGNATURES |= {"g": (1, 2), "rzz": (1, 2), "measure": (0, 1), "gphase": (1, 0), "reset": (0, 1)}
+NUMBERS = ["0.5", "-1", "+2", ".5", "5.", "1e3", "1e400", "-0", "0", "pi/2", " 3 ", "1.5e-3"]
+NUMBERS += [
+    "1/0",
+    "2**2000",
+    "pi*-",
+    "t",
+    "-pi/4",
+    "- 2**2",
+    "1 //x",
+    "2**70",
+    "99999999999999999999",
+]
+NUMBERS += ["0x1F", "1_000", "π", "7 % 2", "half", "tau"]
+ARGS = ["q[0]", "q[1]", "r[0]", "r[2]", "r[3]", "q", "c[0]", "q[01]", "q[ 1 ]", "s[0]", "$0"]
+ARGS += ["q[-1]", "r[0:1]"]
+GAPS = [" ", "", "\t", "\n", " // c\n", "\n// h q[0];\n", "\n//x r[1];", "/* x q[0]; */", "\n/**/"]
+DEFINITIONS = (
+    "const float[64] half = 0.5;\ngate g(t) a, b { rzz(t/2) a, b; rx(1/t) b; rz(t ** 70) a; }\n"
+    + "\n".join(EXTENSION_DEFINITIONS3[n] for n in ("rzz",))
+)
+
+
+@st.composite
+def statements(draw) -> str:
+    """A gate statement near the forms the fast path takes, now and then a little off."""
+    name = draw(st.sampled_from(sorted(SIGNATURES)))
+    n_params, n_qubits = SIGNATURES[name]
+    n_params = max(0, n_params + draw(st.sampled_from([0] * 8 + [-1, 1])))
+    n_qubits = max(0, n_qubits + draw(st.sampled_from([0] * 8 + [-1, 1])))
+    gap = st.sampled_from(GAPS)
+    params = ",".join(
+        draw(st.lists(st.sampled_from(NUMBERS), min_size=n_params, max_size=n_params))
+    )
+    prefix = draw(st.sampled_from([""] * 6 + ["ctrl @ ", "inv @ ", "pow(2) @ "]))
+    text = prefix + name + (f"({params})" if params or draw(st.booleans()) else draw(gap))
+    args = draw(st.lists(st.sampled_from(ARGS), min_size=n_qubits, max_size=n_qubits))
+    if name == "measure":
+        return f"c[1] = measure {args[0] if args else 'q[0]'};"
+    return text + draw(gap) + ("," + draw(gap)).join(args) + draw(gap) + ";" + draw(gap)
+
+
+def outcome(text: str):
+    try:
+        c = read_qasm(text, max_ops=50)
+        return [(op.name, op.qubits, op.params) for op in c.ops], c.measurements
+    except (QasmError, InputError) as exc:
+        return str(exc)
+
+
+@contextlib.contextmanager
+def general_parser_only():
+    saved = qasm3_reader.read_simple_statements
+    qasm3_reader.read_simple_statements = lambda text, pos, *rest: pos
+    try:
+        yield
+    finally:
+        qasm3_reader.read_simple_statements = saved
+
+
+@FAST
+@given(st.lists(statements(), max_size=12))
+def test_fast_path_changes_nothing_but_speed(program):
+    # Differential check: the statement fast path against the general parser alone: the
+    # same operations, or the same error at the same place.
+    text = PRE3 + DEFINITIONS + "\nh q[0]; rzz(0.25) q[0], r[1];\n" + "\n".join(program)
+    fast = outcome(text)
+    with general_parser_only():
+        general = outcome(text)
+    assert fast == general
+
+
+def test_fast_path_is_used_and_agrees_on_a_long_program(monkeypatch):
+    lines = [f"rzz({k / 7!r}) q[{k % 2}], r[{k % 3}];\nh r[{k % 3}];" for k in range(300)]
+    text = (
+        PRE3 + EXTENSION_DEFINITIONS3["rzz"] + "\n" + "\n".join(lines) + "\nc[1] = measure q[1];\n"
+    )
+    taken = []
+    real = qasm3_reader.read_simple_statements
+
+    def counting(text, pos, *rest):
+        end = real(text, pos, *rest)
+        taken.append(text[pos:end].count(";"))
+        return end
+
+    monkeypatch.setattr(qasm3_reader, "read_simple_statements", counting)
+    fast = read_qasm(text).ops
+    monkeypatch.undo()
+    with general_parser_only():
+        general = read_qasm(text).ops
+    assert fast == general and len(fast) == 600
+    assert sum(taken) == 600  # every gate statement went by the fast path

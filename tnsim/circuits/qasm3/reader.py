@@ -18,10 +18,12 @@ from pathlib import Path
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.qasm.files import looks_like_missing_file, names_file, read_text
 from tnsim.circuits.qasm.lexer import Source, Token, describe
+from tnsim.circuits.qasm3.expr import MathError, evaluate
+from tnsim.circuits.qasm3.fast import read_simple_statements
 from tnsim.circuits.qasm3.library import STDGATES
 from tnsim.circuits.qasm3.program import Program
 from tnsim.circuits.qasm3.statements import StatementParser
-from tnsim.errors import InputError
+from tnsim.errors import InputError, QasmError
 
 __all__ = ["DEFAULT_MAX_OPS", "MAX_INCLUDE_DEPTH", "STANDARD_INCLUDES", "read_qasm3"]
 
@@ -46,13 +48,44 @@ class _Parser(StatementParser):
     def __init__(self, source: Source, directory: Path | None, program: Program):
         super().__init__(source, program)
         self.directory = directory
+        self.param_cache: dict[str, tuple] = {}
 
     def parse(self, *, main: bool) -> Token:
         """Parse and run every statement; return the ``eof`` token."""
         self.header(required=main)
         while self.tok.kind != "eof":
+            if main and self.tok.kind == "id" and self.simple_statements():
+                continue
             self.statement(main)
         return self.tok
+
+    def simple_statements(self) -> bool:
+        """Read a run of simple gate statements by the fast path; whether any was read."""
+        start = self.tok.offset
+        end = read_simple_statements(
+            self.source.text, start, self.program, self.constant_params, self.param_cache
+        )
+        self.lexer.seek(end)
+        self.tok = self.lexer.next()
+        return end != start
+
+    def constant_params(self, start: int, end: int) -> tuple | None:
+        """Values of the parameter list ``text[start:end]`` (then ``)``), or ``None`` if wrong.
+
+        Used by the fast path, which moves the lexer anywhere and reseeks it after.
+        """
+        self.lexer.seek(start)
+        self.tok = self.lexer.next()
+        try:
+            codes = [self.expression()]
+            while self.at(","):
+                self.advance()
+                codes.append(self.expression())
+            if not self.at(")") or self.tok.offset != end:
+                return None
+            return tuple(evaluate(code, {}) for code in codes)
+        except (QasmError, MathError):
+            return None
 
     def header(self, *, required: bool) -> None:
         """Read ``OPENQASM 3.0;`` (or ``OPENQASM 3;``)."""
