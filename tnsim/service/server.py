@@ -22,6 +22,7 @@ import ipaddress
 import json
 import os
 import signal
+import sqlite3
 import sys
 import threading
 import time
@@ -149,7 +150,14 @@ class Service:
         self.lock = _FolderLock(self.folder)
         self.limits = limits or Limits()
         self.queue_size, self.token, self.max_body = queue_size, token, max_body
-        self.store = JobStore(str(self.folder / "jobs.sqlite3"), fsync=fsync)
+        try:
+            self.store = JobStore(str(self.folder / "jobs.sqlite3"), fsync=fsync)
+        except (sqlite3.Error, ValueError) as exc:
+            self.lock.release()
+            raise InputError(
+                f"cannot open the job database in {str(state)!r}: {exc}; give another --state "
+                "folder (or move the damaged jobs.sqlite3 away)"
+            ) from None
         self.resumed = self.store.requeue_running()
         self.pool = WorkerPool(self.store, self.limits, self.folder / "checkpoints", jobs)
         self.admission = threading.Lock()

@@ -5,8 +5,9 @@ gate definitions in :mod:`~tnsim.circuits.qasm3.gatedef`, declarations in
 :mod:`~tnsim.circuits.qasm3.declarations`, statements in
 :mod:`~tnsim.circuits.qasm3.statements`) turns each statement into a node
 (:mod:`~tnsim.circuits.qasm3.nodes`) and runs it at once; a loop body is kept
-and run once per iteration.  The accepted language is described in
-:mod:`tnsim.circuits.qasm3`.
+and run once per iteration.  Runs of simple gate statements in the main program
+are read by :func:`~tnsim.circuits.qasm3.fast.read_simple_statements` without
+tokens.  The accepted language is described in :mod:`tnsim.circuits.qasm3`.
 """
 
 from __future__ import annotations
