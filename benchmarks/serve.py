@@ -150,9 +150,7 @@ def api_call(_: int, document: dict) -> tuple[float, dict]:
 
 
 def amplitudes_of(result: dict) -> list:
-    return [
-        (a["real"], a["imag"]) for q in result["answers"] for a in q.get("amplitudes", [])
-    ]
+    return [(a["real"], a["imag"]) for q in result["answers"] for a in q.get("amplitudes", [])]
 
 
 def summary(label: str, seconds: list[float]) -> tuple[float, float]:
@@ -173,8 +171,10 @@ def main(argv=None) -> int:
     if args.quick:
         args.jobs, args.clients = 40, 4
     jobs = make_jobs(args.jobs, args.bitstrings)
-    print(f"{args.jobs} jobs (20-qubit amplitudes, {args.bitstrings} bitstrings each), "
-          f"load average {os.getloadavg()[0]:.2f}")
+    print(
+        f"{args.jobs} jobs (20-qubit amplitudes, {args.bitstrings} bitstrings each), "
+        f"load average {os.getloadavg()[0]:.2f}"
+    )
     api_serial, api_results = concurrent(jobs, 1, api_call)
     with tempfile.TemporaryDirectory() as folder:
         proc, host, port = start_server(folder, args.workers)
@@ -206,12 +206,15 @@ def main(argv=None) -> int:
     print(f"{args.clients} concurrent clients, server running {args.workers} jobs at once:")
     api_many_median, _ = summary(f"Python API, {args.clients} threads", api_many)
     many_median, _ = summary("tnsim serve", many)
-    print(f"  service latency above the threaded API (median): "
-          f"{many_median - api_many_median:.1f} ms")
+    print(
+        f"  service latency above the threaded API (median): {many_median - api_many_median:.1f} ms"
+    )
     mib = 1024 * 1024
-    print(f"server RSS: {rss0 / mib:.1f} MiB at start, {rss_warm / mib:.1f} MiB after {warm} "
-          f"warm-up jobs, {rss_end / mib:.1f} MiB after {warm + 2 * args.jobs} jobs "
-          f"(growth after warm-up {(rss_end - rss_warm) / mib:.1f} MiB)")
+    print(
+        f"server RSS: {rss0 / mib:.1f} MiB at start, {rss_warm / mib:.1f} MiB after {warm} "
+        f"warm-up jobs, {rss_end / mib:.1f} MiB after {warm + 2 * args.jobs} jobs "
+        f"(growth after warm-up {(rss_end - rss_warm) / mib:.1f} MiB)"
+    )
     print(f"load average at the end {os.getloadavg()[0]:.2f}")
     return 0 if same else 1
 
