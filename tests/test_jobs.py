@@ -177,7 +177,9 @@ INVALID = [
     ("bad gate", {"circuit": {"num_qubits": 2, "operations": [["h", [0]], ["cx", [0, 0]]]},
                   "inputs": {}}, "$.circuit.operations[1]", "repeats a qubit"),
     ("inputs with operations", {"circuit": {"num_qubits": 1, "operations": []}},
-     "$.inputs", "operation list has none"),
+     "$.inputs", "no named angle"),
+    ("angle without input", {"circuit": {"num_qubits": 1, "operations": [["rx", [0], ["2*t"]]]},
+                             "inputs": {}}, "$.inputs", "no value for t"),
     ("NaN", {"inputs": {"theta": float("nan")}}, "$.inputs.theta", "not a finite number"),
 ]  # fmt: skip
 
@@ -369,3 +371,20 @@ def test_stdio_lines_in_order_with_invalid_lines_answered():
     assert results[1]["errors"][0]["message"].startswith("line 3, column 2: invalid JSON")
     direct = run_job(ONE_OF_EACH)
     assert results[0]["answers"][0]["amplitudes"] == direct["answers"][0]["amplitudes"]
+
+
+def test_operation_lists_take_named_angles_bound_by_inputs():
+    document = {
+        "version": 1,
+        "circuit": {
+            "num_qubits": 2,
+            "operations": [["rx", [0], ["2*gamma + 0.1"]], ["rzz", [0, 1], ["-0.5*beta"]]],
+        },
+        "inputs": {"gamma": 0.3, "beta": -1.2},
+        "queries": [{"kind": "amplitudes", "bitstrings": ["00", "10"]}],
+    }
+    result = run_job(document)
+    circuit = tnsim.Circuit(2).rx("2*gamma + 0.1", 0).rzz("-0.5*beta", 0, 1)
+    expected = tnsim.amplitudes(circuit.bind(document["inputs"]), ["00", "10"])
+    got = [a["real"] + 1j * a["imag"] for a in result["answers"][0]["amplitudes"]]
+    np.testing.assert_array_equal(got, expected)

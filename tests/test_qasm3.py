@@ -838,6 +838,18 @@ def test_extension_definitions_are_exact_decompositions(name):
         np.testing.assert_allclose(dense_unitary(circuit), spec.matrix(params), atol=1e-12)
 
 
+def test_named_angles_are_written_as_inputs_and_read_back_as_bind():
+    circuit = Circuit(3).rx("2*gamma + 0.1", 0).rzz("-0.5*beta + gamma", 0, 2).h(1)
+    circuit.u(0.2, "beta", 0.3, 1)
+    text = write_qasm3(circuit)
+    assert "input float[64] beta;" in text and "input float[64] gamma;" in text
+    values = {"gamma": 0.3, "beta": -1.7}
+    back = read_qasm(text, inputs=values)
+    assert back.ops == circuit.bind(values).ops  # the same bits as binding
+    with pytest.raises(InputError, match="rename"):
+        write_qasm3(Circuit(1).rx("h", 0))
+
+
 def test_global_phase_round_trips():
     circuit = read_qasm(H3 + "qubit[2] q;\ngphase(0.25);\nh q[0];\n")
     back = read_qasm(write_qasm3(circuit))

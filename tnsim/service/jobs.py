@@ -192,11 +192,6 @@ def _qasm_circuit(text: str, inputs: dict, limits: Limits, errors: _Errors):
 
 
 def _ops_circuit(spec: dict, inputs: dict, limits: Limits, errors: _Errors):
-    if inputs:
-        errors.add(
-            ["inputs"],
-            "inputs are values of OpenQASM 3 'input' declarations; an operation list has none",
-        )
     n = spec["num_qubits"]
     if len(spec["operations"]) > limits.max_ops:
         errors.add(["circuit", "operations"], f"more than {limits.max_ops} operations")
@@ -207,6 +202,15 @@ def _ops_circuit(spec: dict, inputs: dict, limits: Limits, errors: _Errors):
             circuit.ops.extend(Circuit.from_ops(n, [op]).ops)
         except InputError as exc:
             errors.add(["circuit", "operations", k], str(exc).removeprefix("operation 0: "))
+    names = circuit.parameters()
+    if not names and inputs:
+        errors.add(["inputs"], "the operation list has no named angle to give a value to")
+    elif names:
+        try:
+            return circuit.bind(inputs)
+        except InputError as exc:
+            errors.add(["inputs"], str(exc))
+            return None
     return circuit
 
 
@@ -326,7 +330,7 @@ def prepare(document: Any, limits: Limits | None = None) -> Prepared | list[dict
 # ---------------------------------------------------------------------------- answering
 
 
-def _number(x: float) -> float | None:
+def _number(x: float | np.floating) -> float | None:
     x = float(x)
     return x if math.isfinite(x) else None
 
@@ -458,13 +462,14 @@ def _run_query(job: Prepared, query: dict, options: dict) -> dict:
 class _Log(list):
     """The block's contraction log, telling the monitor of each record as it arrives."""
 
-    def __init__(self, monitor: Monitor, index: int):
+    def __init__(self, monitor: Monitor, query: int):
         super().__init__()
-        self.monitor, self.index = monitor, index
+        self.monitor, self.query = monitor, query
 
     def append(self, record) -> None:
+        """Keep the record and tell the monitor."""
         super().append(record)
-        self.monitor.contraction_done(self.index, record)
+        self.monitor.contraction_done(self.query, record)
 
 
 def _answer(job: Prepared, k: int, query: dict, monitor: Monitor, checkpoint: str | None) -> dict:

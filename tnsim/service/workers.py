@@ -20,6 +20,7 @@ import threading
 import time
 import traceback
 from pathlib import Path
+from typing import Any
 
 from tnsim.service.jobs import (
     JobStopped,
@@ -64,7 +65,7 @@ class JobWatch(Monitor):
         self.lock = threading.Lock()
         self.began = time.monotonic()
         self.mark = self.began
-        self.figures = {
+        self.figures: dict[str, Any] = {
             "query": 0,
             "queries": num_queries,
             "contractions_done": 0,
@@ -109,12 +110,10 @@ class JobWatch(Monitor):
         now = time.monotonic()
         with self.lock:
             out = dict(self.figures)
-            left = None
-            total, done = out["chunks_total"], out["chunks_done"]
-            if total is not None and self.first_done is not None:
-                new = done - self.first_done + 1
-                if new > 0:
-                    left = (now - self.started_at) / new * (total - done)
+            left: float | None = None
+            total, done, first = out["chunks_total"], out["chunks_done"], self.first_done
+            if total is not None and first is not None and done - first + 1 > 0:
+                left = (now - self.started_at) / (done - first + 1) * (total - done)
         out["seconds_elapsed"] = now - self.began
         out["contraction_seconds_left"] = left
         return out
@@ -235,9 +234,8 @@ class WorkerPool:
     def _run(self, record) -> None:
         document = json.loads(record.document)
         with self.lock:
-            job = self.prepared.pop(record.id, None)
-        if job is None:
-            job = prepare(document, self.limits)
+            cached = self.prepared.pop(record.id, None)
+        job = prepare(document, self.limits) if cached is None else cached
         if isinstance(job, list):  # e.g. the server restarted with smaller limits
             result = result_document("invalid", time.perf_counter(), errors=job)
             self.store.finish(record.id, "failed", dumps(result))

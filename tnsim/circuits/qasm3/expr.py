@@ -22,6 +22,8 @@ parameters by name.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from typing import Any
 
 from tnsim.circuits.qasm.arith import MAX_EXPR_DEPTH
 from tnsim.circuits.qasm.lexer import describe
@@ -38,7 +40,8 @@ __all__ = [
 ]
 
 NUM, NAME, NEG, BIN, FN = range(5)
-Code = tuple[tuple[int, object, int], ...]
+Step = tuple[int, Any, int]
+Code = tuple[Step, ...]
 """Postfix steps ``(kind, value, offset)``; ``offset`` locates the step for errors."""
 
 INT_LIMIT = 1 << 63
@@ -75,7 +78,7 @@ def _pow(a, b):
     return _power(a, b)
 
 
-FUNCTIONS = {
+FUNCTIONS: dict[str, tuple[int, Callable[..., Any]]] = {
     "sin": (1, math.sin),
     "cos": (1, math.cos),
     "tan": (1, math.tan),
@@ -134,6 +137,7 @@ class MathError(Exception):
     def __init__(self, message: str, offset: int):
         super().__init__(message)
         self.message, self.offset = message, offset
+        self.source: Any = None  # the Source of a gate body the step belongs to, once known
 
 
 def _check_int(value: int, offset: int) -> int:
@@ -198,8 +202,11 @@ def _call(name: str, args: list, offset: int):
     return value
 
 
-def evaluate(code: Code, env: dict):
+def evaluate(code: Code, env: Any):
     """Run postfix ``code`` with the variables in ``env``; return an ``int`` or ``float``.
+
+    ``env`` maps each name step's key to its value (a dict, or a tuple of gate
+    parameters indexed by position).
 
     Raises :class:`MathError` (with the failing step's offset) for a value that is
     not a finite number.
@@ -256,7 +263,8 @@ class _ExpressionParser:
     """Precedence climbing over the tokens of ``parser`` (see :func:`parse_expression`)."""
 
     def __init__(self, parser, variables: dict[str, str]):
-        self.p, self.variables, self.code, self.depth = parser, variables, [], 0
+        self.p, self.variables, self.depth = parser, variables, 0
+        self.code: list[Step] = []
 
     def expr(self, min_prec: int) -> None:
         p = self.p
@@ -306,6 +314,7 @@ class _ExpressionParser:
     def primary(self) -> None:
         p = self.p
         tok = p.tok
+        value: int | float
         if tok.kind == "int":
             p.advance()
             try:

@@ -46,12 +46,13 @@ def _numbers(text: str) -> tuple | None:
     """
     if not text.strip(_BLANKS):
         return ()
-    values = []
+    values: list[int | float] = []
     for piece in text.split(","):
         piece = piece.strip(_BLANKS)
         match = _NUMBER_RE.fullmatch(piece)
         if match is None:
             return None
+        value: int | float
         if match.group(1) is not None:
             value = int(piece)
             if not -INT_LIMIT < value < INT_LIMIT or len(match.group(1)) > 70:

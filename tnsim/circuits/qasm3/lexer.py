@@ -72,7 +72,9 @@ class Lexer:
 
     def seek(self, pos: int) -> None:
         """Continue reading at offset ``pos``."""
-        self._end, self._scan = pos, _TOKEN_RE.scanner(self._text, pos).match
+        # Pattern.scanner: CPython's undocumented incremental matcher (no typeshed stub)
+        scanner = _TOKEN_RE.scanner(self._text, pos)  # type: ignore[attr-defined]
+        self._end, self._scan = pos, scanner.match
 
     def next(self) -> Token:
         """Return the next token (an ``eof`` token at the end, again and again)."""
@@ -81,7 +83,8 @@ class Lexer:
             if self._end == len(self._text):
                 self.seek(self._end)
                 return self.next()
-            raise self._bad_character(_SKIP_LOOSE.match(self._text, self._end).end())
+            skipped = _SKIP_LOOSE.match(self._text, self._end)  # always matches (maybe empty)
+            raise self._bad_character(skipped.end() if skipped else self._end)
         self._end = match.end()
         group = match.lastindex
         text = match.group(group)

@@ -186,7 +186,7 @@ def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op]
         try:
             values = tuple(evaluate(code, params) for code in call.params)
         except MathError as exc:
-            if getattr(exc, "source", None) is None:
+            if exc.source is None:
                 exc.source = gate.source
             raise
         sub_ops, sub_phase = apply_call(call, values, tuple(qubits[i] for i in call.args))
@@ -206,6 +206,7 @@ def apply_modifiers(
     """Expand ``gate`` (``None``: ``gphase(values[0])``) under ``modifiers`` on ``qubits``."""
     controls = sum(n for kind, n in modifiers if kind in ("ctrl", "negctrl"))
     target = qubits[controls:]
+    ops: list[Op]
     if gate is None:
         ops, phase = [], float(values[0])
     else:

@@ -68,11 +68,12 @@ class Operand:
 
     def bound(self) -> int:
         """Most elements the operand can name (for size bounds)."""
+        size = 1 if self.register is None else self.register.size
         if self.hardware >= 0 or self.index is None:
-            return 1 if self.register is None else self.register.size
+            return size
         if self.index.kind == "set":
             return len(self.index.codes)
-        return 1 if self.index.kind == "index" else self.register.size
+        return 1 if self.index.kind == "index" else size
 
 
 class Node:
@@ -110,9 +111,9 @@ class Node:
         Whole registers and ranges come back as :class:`range` objects, so a huge
         register costs nothing until its elements are used.
         """
-        if operand.hardware >= 0:
-            return [operand.hardware], False
         reg, spec = operand.register, operand.index
+        if reg is None:  # a hardware qubit
+            return [operand.hardware], False
         if spec is None:
             return range(reg.offset, reg.offset + reg.size), not reg.scalar
         if spec.kind == "index":
