@@ -857,6 +857,14 @@ def test_global_phase_round_trips():
     np.testing.assert_array_equal(back.ops[1].custom, circuit.ops[1].custom)
 
 
+def test_writer_comments_and_the_version_door():
+    text = write_qasm(Circuit(1).h(0), version=3, comments=["made by a test", "second"])
+    assert text.splitlines()[:3] == ["OPENQASM 3.0;", "// made by a test", "// second"]
+    assert read_qasm(text).ops == Circuit(1).h(0).ops
+    with pytest.raises(InputError, match="stdgates.inc"):
+        write_qasm(Circuit(1), version=3, library="original")
+
+
 def test_writer_refuses_custom_unitaries():
     circuit = Circuit(1).h(0).unitary(np.diag([1, 1j]), [0], name="mine")
     with pytest.raises(InputError, match="custom unitary"):

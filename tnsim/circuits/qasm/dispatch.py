@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import os
 import re
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 
 from tnsim.circuits.circuit import Circuit
@@ -119,11 +119,18 @@ def read_qasm(
     return read_qasm2(path_or_text, max_ops=max_ops, name=name)
 
 
-def write_qasm(circuit: Circuit, version: int = 2) -> str:
+def write_qasm(
+    circuit: Circuit,
+    version: int = 2,
+    *,
+    library: str = "extended",
+    comments: Sequence[str] = (),
+) -> str:
     """Return ``circuit`` as OpenQASM text of the given major ``version`` (2 or 3).
 
-    See :func:`tnsim.circuits.qasm.writer.write_qasm` (2.0) and
-    :func:`tnsim.circuits.qasm3.writer.write_qasm3` (3).
+    See :func:`tnsim.circuits.qasm.writer.write_qasm` (2.0: ``library`` and
+    ``comments``) and :func:`tnsim.circuits.qasm3.writer.write_qasm3` (3:
+    ``comments``; its library is stdgates.inc).
 
     Examples
     --------
@@ -131,7 +138,12 @@ def write_qasm(circuit: Circuit, version: int = 2) -> str:
     'OPENQASM 3.0;'
     """
     if version == 3:
-        return write_qasm3(circuit)
+        if library != "extended":
+            raise InputError(
+                f"library={library!r} chooses among OpenQASM 2.0 gate sets; OpenQASM 3 files "
+                "include stdgates.inc"
+            )
+        return write_qasm3(circuit, comments=comments)
     if version == 2:
-        return write_qasm2(circuit)
+        return write_qasm2(circuit, library=library, comments=comments)
     raise InputError(f"OpenQASM version must be 2 or 3, got {version!r}")

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import cmath
 import math
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -84,7 +85,7 @@ def _definitions(used: set[str]) -> list[str]:
     return [text for name, text in EXTENSION_DEFINITIONS3.items() if name in wanted]
 
 
-def write_qasm3(circuit: Circuit) -> str:
+def write_qasm3(circuit: Circuit, *, comments: Sequence[str] = ()) -> str:
     """Return ``circuit`` as OpenQASM 3 text that :func:`read_qasm3` reads back exactly.
 
     One register ``q`` holds every qubit; parameters are written with ``repr`` so
@@ -101,6 +102,8 @@ def write_qasm3(circuit: Circuit) -> str:
     ----------
     circuit : Circuit
         The circuit; every operation must be a named gate (or ``gphase``).
+    comments : sequence of str
+        Lines written as ``//`` comments after the ``OPENQASM 3.0;`` line.
 
     Returns
     -------
@@ -131,7 +134,9 @@ def write_qasm3(circuit: Circuit) -> str:
     """
     body = [_format_op(k, op) for k, op in enumerate(circuit.ops)]
     used = {op.name for op in circuit.ops if op.custom is None}
-    lines = ["OPENQASM 3.0;", 'include "stdgates.inc";', *_definitions(used), *_inputs(circuit)]
+    notes = [f"// {line}" for text in comments for line in str(text).splitlines() or [""]]
+    lines = ["OPENQASM 3.0;", *notes, 'include "stdgates.inc";']
+    lines += [*_definitions(used), *_inputs(circuit)]
     lines.append(f"qubit[{circuit.num_qubits}] q;")
     measurements = circuit.measurements
     if measurements:
