@@ -19,13 +19,7 @@ import numpy as np
 
 from tnsim.execution.options import ContractionRecord, QueryOptions, resolve_options
 from tnsim.execution.slices import execute
-from tnsim.execution.steps import (
-    apply_step,
-    compile_tree,
-    count_flops,
-    largest_intermediate,
-    peak_memory,
-)
+from tnsim.execution.steps import apply_step, compile_tree, count_flops, largest_intermediate
 from tnsim.execution.timemodel import plan_for_runs
 from tnsim.fitted import BATCH_ELEMENTS
 from tnsim.network.graph import TensorGraph
@@ -196,34 +190,7 @@ class BatchContraction:
             )
             out = execute(full, self.tree, self.sliced, memory_limit=self.options.memory_limit)
             return Scaled(out.mantissa[:count], out.exponent)
-        began, first = time.perf_counter(), self.cached is None
-        out = self._run_cached(leaves, count)
-        self._log(first, time.perf_counter() - began)
-        return out
-
-    def _log(self, first: bool, seconds: float) -> None:
-        """Append this run's :class:`ContractionRecord` to the query's log, if it keeps one.
-
-        The FLOPs are those of the steps redone per run, plus the shared part on
-        the run that contracted it.
-        """
-        log = self.options.log
-        if log is None:
-            return
-        fixed, per_run = self.flops()
-        itemsize = np.dtype(self.dtype).itemsize
-        log.append(
-            ContractionRecord(
-                flops=per_run + (fixed if first else 0),
-                num_slices=1,
-                slices_run=1,
-                peak_bytes=peak_memory(self.tree, self.steps, itemsize),
-                memory_limit=self.options.memory_limit,
-                workers=1,
-                seconds=seconds,
-                itemsize=itemsize,
-            )
-        )
+        return self._run_cached(leaves, count)
 
     def _run_cached(self, leaves: list[np.ndarray], count: int) -> Scaled:
         began = time.perf_counter()
