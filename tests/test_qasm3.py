@@ -861,7 +861,7 @@ def test_writer_comments_and_the_version_door():
     text = write_qasm(Circuit(1).h(0), version=3, comments=["made by a test", "second"])
     assert text.splitlines()[:3] == ["OPENQASM 3.0;", "// made by a test", "// second"]
     assert read_qasm(text).ops == Circuit(1).h(0).ops
-    with pytest.raises(InputError, match="stdgates.inc"):
+    with pytest.raises(InputError, match=r"stdgates\.inc"):
         write_qasm(Circuit(1), version=3, library="original")
 
 
