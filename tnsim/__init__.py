@@ -2,7 +2,8 @@
 
 The pipeline, one folder per stage: :mod:`tnsim.circuits` → :mod:`tnsim.network`
 → :mod:`tnsim.plan` → :mod:`tnsim.execution` → :mod:`tnsim.queries`, with the
-command line in :mod:`tnsim.cli`.  The names below are the public API; each is
+command line in :mod:`tnsim.cli` and the job runner and local service in
+:mod:`tnsim.service`.  The names below are the public API; each is
 imported on first use, so ``import tnsim`` stays quick.
 
 Queries: :func:`amplitude`, :func:`amplitudes`, :func:`iter_amplitudes`,
@@ -81,6 +82,7 @@ _PUBLIC = {
     "noisy_probabilities": "tnsim.queries.noisy",
     "noisy_sample": "tnsim.queries.noisy_sampling",
     "predict_xeb": "tnsim.queries.noisy_xeb",
+    "run_job": "tnsim.service.jobs",
 }
 
 __all__ = [
@@ -150,3 +152,4 @@ if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.queries.optimize import AngleOptimum, optimize_angles
     from tnsim.queries.sampling import sample
     from tnsim.queries.xeb import XebResult, xeb
+    from tnsim.service.jobs import run_job

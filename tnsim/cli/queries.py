@@ -18,6 +18,7 @@ from typing import Any
 
 from tnsim.cli.common import (
     OptionError,
+    add_input_argument,
     add_query_arguments,
     check_array,
     count_type,
@@ -58,7 +59,7 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
             f"--qubits lists {len(qubits)} qubits: 2^{len(qubits)} outcomes are too many to "
             "print; list at most 24 (or sample the circuit)"
         )
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     noisy = noisy_circuit(args, circuit)
     if noisy is None:
         probs = marginal(circuit, qubits, dtype=dtype_of(args))
@@ -98,7 +99,7 @@ def _cmd_expect(args: argparse.Namespace) -> int:
     from tnsim.queries.noisy import NoisyTermCache
     from tnsim.queries.observables import parse_observable
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     obs = parse_observable(observable_text(args), circuit.num_qubits)
     noisy = noisy_circuit(args, circuit)
     cache: TermCache | NoisyTermCache
@@ -143,7 +144,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     from tnsim.circuits.bits import format_bits
     from tnsim.queries.sampling import sample
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     width = order_width(circuit, args.bit_order)
     check_array(args.shots, max(width, circuit.num_qubits), "--shots")
     noisy = noisy_circuit(args, circuit)
@@ -201,7 +202,7 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
     from tnsim.circuits.bitfiles import to_qubit_order
     from tnsim.queries.xeb import xeb
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     noisy = noisy_circuit(args, circuit)
     if args.samples is None:
         if noisy is None:
@@ -338,7 +339,7 @@ def _cmd_amp(args: argparse.Namespace) -> int:
     if args.single:
         warn("--single is deprecated and will be removed; use --precision single")
         args.precision = "single"
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     rows, shown = gather_bits(args, circuit)
     noisy = noisy_circuit(args, circuit)
     if noisy is not None:
@@ -404,7 +405,7 @@ def _noisy_probabilities(args: argparse.Namespace, noisy, rows, shown) -> int:
 
 def register(sub) -> None:
     """Add ``amp``, ``marginal``, ``expect``, ``sample`` and ``xeb`` to a subparsers object."""
-    circuit_help = "OpenQASM 2.0 file, or - to read it from standard input"
+    circuit_help = "OpenQASM 2.0 or 3 file, or - to read it from standard input"
     amp = sub.add_parser(
         "amp",
         help="amplitudes <x|C|0...0> of bitstrings",
@@ -412,6 +413,7 @@ def register(sub) -> None:
         "width), with |a|^2, log10|a| and the phase in radians.",
     )
     amp.add_argument("circuit", help=circuit_help)
+    add_input_argument(amp)
     amp.add_argument(
         "--bits", action="append", metavar="BITS", help="a bitstring (repeatable; they accumulate)"
     )
@@ -440,6 +442,7 @@ def register(sub) -> None:
         "j-th listed qubit.",
     )
     m.add_argument("circuit", help=circuit_help)
+    add_input_argument(m)
     m.add_argument(
         "--qubits",
         required=True,
@@ -460,6 +463,7 @@ def register(sub) -> None:
         "A value that starts with '-' is written --observable=-Z0 (or --observable -Z0).",
     )
     e.add_argument("circuit", help=circuit_help)
+    add_input_argument(e)
     e.add_argument(
         "--observable",
         action="append",
@@ -484,6 +488,7 @@ def register(sub) -> None:
         "--json; xeb and amp --bits-file read either back.",
     )
     s.add_argument("circuit", help=circuit_help)
+    add_input_argument(s)
     s.add_argument(
         "--shots",
         type=count_type("--shots", 0, 10**12),
@@ -521,6 +526,7 @@ def register(sub) -> None:
         "stays exact where F leaves the range of a float. Count files weight each bitstring.",
     )
     x.add_argument("circuit", help=circuit_help)
+    add_input_argument(x)
     x.add_argument(
         "samples",
         nargs="?",
