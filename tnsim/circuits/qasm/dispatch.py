@@ -21,7 +21,7 @@ from tnsim.circuits.qasm.reader import DEFAULT_MAX_OPS
 from tnsim.circuits.qasm.reader import read_qasm as read_qasm2
 from tnsim.circuits.qasm.writer import write_qasm as write_qasm2
 from tnsim.circuits.qasm3.lexer import SKIP
-from tnsim.circuits.qasm3.reader import read_qasm3
+from tnsim.circuits.qasm3.reader import check_unbound, read_qasm3
 from tnsim.circuits.qasm3.writer import write_qasm3
 from tnsim.errors import InputError
 
@@ -58,6 +58,7 @@ def read_qasm(
     *,
     max_ops: int = DEFAULT_MAX_OPS,
     inputs: Mapping[str, float] | None = None,
+    unbound: str = "refuse",
     name: str | None = None,
 ) -> Circuit:
     """Read an OpenQASM 2.0 or 3 program (the header says which) into a Circuit.
@@ -72,6 +73,12 @@ def read_qasm(
     inputs : mapping of str to float, optional
         Values of an OpenQASM 3 program's ``input`` declarations (an OpenQASM 2.0
         program has none).
+    unbound : {"refuse", "keep"}
+        An OpenQASM 3 ``input`` given no value: refused at its declaration
+        (default), or kept as a named angle of the same name when declared
+        ``float[64]`` (see :func:`~tnsim.circuits.qasm3.read_qasm3`); bind it
+        later with :meth:`Circuit.bind`.  An OpenQASM 2.0 program has no inputs,
+        so its gate angles are always numbers.
     name : str, optional
         How errors name program text (default ``<text>``), e.g. ``<stdin>``.
 
@@ -98,6 +105,10 @@ def read_qasm(
     >>> v3 = read_qasm('OPENQASM 3.0; include "stdgates.inc"; qubit[2] q; ctrl @ x q[0], q[1];')
     >>> v2.ops == v3.ops
     True
+    >>> p = read_qasm('''OPENQASM 3.0; include "stdgates.inc"; input float[64] g;
+    ... qubit[2] q; crx(2 * g) q[0], q[1];''', unbound="keep")
+    >>> p.parameters(), p.bind({"g": 0.25}).ops[0].params
+    (('g',), (0.5,))
     """
     if isinstance(path_or_text, os.PathLike) or (
         isinstance(path_or_text, str) and names_file(path_or_text)
@@ -109,8 +120,11 @@ def read_qasm(
         raise InputError(
             f"read_qasm takes OpenQASM text or a file path, got {type(path_or_text).__name__}"
         )
+    check_unbound(unbound)
     if qasm_version(head) == "3":
-        return read_qasm3(path_or_text, inputs=inputs, max_ops=max_ops, name=name)
+        return read_qasm3(
+            path_or_text, inputs=inputs, unbound=unbound, max_ops=max_ops, name=name
+        )
     if inputs:
         raise InputError(
             f"inputs {sorted(inputs)} given, but an OpenQASM 2.0 program has no inputs; "

@@ -14,6 +14,17 @@ that names them.  Their declared type is applied to the value:
 Note that reducing an angle into ``[0, 2π)`` changes a rotation such as ``rz(θ)`` by
 a global phase of ``-1`` when ``θ`` was outside it; declare ``float[64]`` to keep
 the value as given.
+
+An input without a value is refused, unless the reader keeps unbound inputs
+(``read_qasm3(..., unbound="keep")``): then an input declared ``float[64]`` (or
+``float``) becomes the named angle of the same name
+(:func:`tnsim.circuits.parameters.angle`), and ``circuit.bind(values)`` later
+gives exactly what reading with ``inputs=values`` gives.  Inputs of other types
+stay refused without a value, since a real-valued name cannot honour their
+type: an ``angle`` is reduced modulo ``2π`` (which changes a controlled rotation
+by a relative phase) and rounded to its width, ``float[32]`` is rounded, an
+``int`` is whole.  A ``const`` computed from a kept input is a named angle too,
+when declared ``float[64]``.
 """
 
 from __future__ import annotations
@@ -23,6 +34,7 @@ import numbers
 
 import numpy as np
 
+from tnsim.circuits.parameters import AngleExpr, angle
 from tnsim.circuits.qasm.lexer import Token, describe
 from tnsim.circuits.qasm3.gatedef import DefinitionParser
 from tnsim.circuits.qasm3.program import Register
@@ -54,6 +66,15 @@ def convert(kind: str, width: int | None, value, what: str):
     >>> convert("uint", 8, 255.0, "n")
     255
     """
+    if isinstance(value, AngleExpr):
+        if kind == "float" and width in (None, 64):
+            return value
+        shown = kind if width is None else f"{kind}[{width}]"
+        raise ValueError(
+            f"{what} is declared {shown} but its value {value} depends on the unbound "
+            f"input(s) {', '.join(value.names)}; declare it float[64], or give the input(s) "
+            "a value (--input NAME=VALUE)"
+        )
     if kind in ("int", "uint"):
         if isinstance(value, float):
             if not value.is_integer():
@@ -179,11 +200,7 @@ class DeclarationParser(DefinitionParser):
         self.expect(";", f"after the input '{name.text}'")
         inputs = self.program.inputs
         if name.text not in inputs:
-            raise self.error(
-                f"input '{name.text}' has no value; pass it as inputs={{'{name.text}': ...}} "
-                f"(command line: --input {name.text}=VALUE)",
-                name,
-            )
+            return self.keep_unbound(name, kind, width)
         value = inputs[name.text]
         if isinstance(value, bool) or not isinstance(value, numbers.Real):
             raise InputError(f"input '{name.text}' must be a real number, got {value!r}")
@@ -192,6 +209,37 @@ class DeclarationParser(DefinitionParser):
         value = int(value) if isinstance(value, numbers.Integral) else float(value)
         self.program.used_inputs.add(name.text)
         self.bind(name, kind, width, value, name, "input")
+
+    def keep_unbound(self, name: Token, kind: str, width: int | None) -> None:
+        """An input without a value: a named angle if the reader keeps them, else refused."""
+        text = name.text
+        give = f"give it a value: --input {text}=VALUE on the command line, inputs={{'{text}': ...}}"
+        if not self.program.keep_unbound:
+            raise self.error(
+                f"input '{text}' has no value; {give} in Python, or read the file with "
+                "unbound='keep' to keep it as a named angle (tnsim optimize does)",
+                name,
+            )
+        if kind != "float" or width not in (None, 64):
+            shown = kind if width is None else f"{kind}[{width}]"
+            raise self.error(
+                f"input '{text}' has no value and is declared {shown}: tnsim keeps only inputs "
+                f"declared float[64] as named angles (an angle is reduced modulo 2π and rounded, "
+                f"a float[32] rounded, an int whole, which a real-valued name cannot honour); "
+                f"declare it 'input float[64] {text};' or {give}",
+                name,
+            )
+        try:
+            value = angle(text)
+        except InputError:
+            raise self.error(
+                f"input '{text}' has no value and its name cannot name an angle (letters A-Z, "
+                f"a-z, digits and '_' only); rename it, or {give}",
+                name,
+            ) from None
+        self.program.constants[text] = value
+        self.program.kinds[text] = "input"
+        self.program.unbound.append(text)
 
     def bind(self, name: Token, kind: str, width, value, where: Token, what: str) -> None:
         """Record a constant or input with its declared type applied."""

@@ -17,6 +17,13 @@ to Python's ``eval``; evaluation runs a stack machine, so long sums cannot
 exhaust the recursion limit.  Names of constants and inputs are replaced by
 their values while parsing; the code keeps only loop variables and gate
 parameters by name.
+
+An input read without a value (``read_qasm3(..., unbound="keep")``) is a named
+angle, an :class:`~tnsim.circuits.parameters.AngleExpr`.  It may go through
+``+``, ``-``, unary ``-``, and ``*`` and ``/`` by numbers, which keep it affine;
+any other operation on it (``theta * theta``, ``theta ** 2``, ``%``, a function
+such as ``sin(theta)``) raises a :class:`MathError` naming the construct, and so
+does its use where a number is needed (:func:`needs_number`).
 """
 
 from __future__ import annotations
@@ -25,9 +32,10 @@ import math
 from collections.abc import Callable
 from typing import Any
 
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm.arith import MAX_EXPR_DEPTH
 from tnsim.circuits.qasm.lexer import describe
-from tnsim.errors import QasmError
+from tnsim.errors import InputError, QasmError
 
 __all__ = [
     "CONSTANTS",
@@ -35,7 +43,10 @@ __all__ = [
     "Code",
     "MathError",
     "evaluate",
+    "give_values",
     "is_constant",
+    "needs_number",
+    "not_affine",
     "parse_expression",
 ]
 
@@ -154,7 +165,98 @@ def _power(a, b):
     return math.pow(a, b)
 
 
+def _names(*values) -> list[str]:
+    """The names the named angles among ``values`` depend on, sorted."""
+    return sorted({n for v in values if isinstance(v, AngleExpr) for n in v.names})
+
+
+def give_values(names: list[str]) -> str:
+    """How to give ``names`` values, in Python and on the command line.
+
+    Examples
+    --------
+    >>> give_values(["a"])
+    "give it a value (inputs={'a': ...}; command line: --input a=VALUE)"
+    """
+    python = ", ".join(f"'{n}': ..." for n in names)
+    line = " ".join(f"--input {n}=VALUE" for n in names)
+    them = "it a value" if len(names) == 1 else "them values"
+    return f"give {them} (inputs={{{python}}}; command line: {line})"
+
+
+def _inputs(names: list[str]) -> str:
+    return f"input{'s' if len(names) > 1 else ''} {', '.join(names)}"
+
+
+def _shown(value) -> str:
+    if not isinstance(value, AngleExpr):
+        return repr(value)
+    return str(value) if value.offset == 0 and value.terms[0][1] == 1 else f"({value})"
+
+
+def not_affine(construct: str, *values) -> str:
+    """Why ``construct`` of named angles is refused, and what to do.
+
+    Examples
+    --------
+    >>> from tnsim.circuits.parameters import angle
+    >>> not_affine("sin(theta)", angle("theta"))[:60]
+    'sin(theta) is not an affine expression of the unbound input '
+    """
+    names = _names(*values)
+    return (
+        f"{construct} is not an affine expression of the unbound {_inputs(names)}: an input "
+        "kept as a named angle may only be added, subtracted, negated, or multiplied and "
+        f"divided by numbers; {give_values(names)}"
+    )
+
+
+def needs_number(what: str, value) -> str:
+    """Why a named angle cannot be used where ``what`` needs a number, and what to do.
+
+    Examples
+    --------
+    >>> from tnsim.circuits.parameters import angle
+    >>> needs_number("a loop bound", 2 * angle("n"))[:69]
+    'a loop bound must be a number known while reading, but 2*n depends on'
+    >>> needs_number("an index", angle("n"))[:70]
+    'an index must be a number known while reading, but the input n has no '
+    """
+    names = _names(value)
+    if value.offset == 0 and value.terms == ((names[0], 1.0),):
+        why = f"the input {names[0]} has no value"
+    else:
+        why = f"{value} depends on the unbound {_inputs(names)}"
+    return f"{what} must be a number known while reading, but {why}; {give_values(names)}"
+
+
+def _symbolic_binary(op: str, a, b, offset: int):
+    """``a op b`` where one operand is a named angle: affine results only."""
+    both = isinstance(a, AngleExpr) and isinstance(b, AngleExpr)
+    construct = f"{_shown(a)} {op} {_shown(b)}"
+    try:
+        if op == "+":
+            value = a + b
+        elif op == "-":
+            value = a - b
+        elif op == "*" and not both:
+            value = a * b
+        elif op == "/" and not isinstance(b, AngleExpr):
+            if b == 0:
+                raise MathError(f"division by zero ({construct}); fix the divisor", offset)
+            value = a / b
+        else:
+            raise MathError(not_affine(construct, a, b), offset)
+    except InputError as exc:
+        raise MathError(f"{construct}: {exc}", offset) from None
+    if isinstance(value, float) and not math.isfinite(value):
+        raise MathError(f"{construct} is not a finite real number", offset)
+    return value
+
+
 def _binary(op: str, a, b, offset: int):
+    if type(a) is AngleExpr or type(b) is AngleExpr:
+        return _symbolic_binary(op, a, b, offset)
     try:
         if op == "+":
             value = a + b
@@ -188,6 +290,9 @@ def _binary(op: str, a, b, offset: int):
 
 
 def _call(name: str, args: list, offset: int):
+    if any(type(a) is AngleExpr for a in args):
+        shown = ", ".join(str(a) if isinstance(a, AngleExpr) else repr(a) for a in args)
+        raise MathError(not_affine(f"{name}({shown})", *args), offset)
     try:
         value = FUNCTIONS[name][1](*args)
     except ZeroDivisionError:

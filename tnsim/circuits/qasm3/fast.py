@@ -17,9 +17,10 @@ import re
 from collections.abc import Callable
 
 from tnsim.circuits.circuit import Operation
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm3.expr import INT_LIMIT, MathError
 from tnsim.circuits.qasm3.lexer import SKIP
-from tnsim.circuits.qasm3.library import BUILTINS, apply_modifiers
+from tnsim.circuits.qasm3.library import BUILTINS, apply_modifiers, as_param
 from tnsim.circuits.qasm3.modifiers import ModifierError
 from tnsim.circuits.qasm3.program import Program
 
@@ -37,6 +38,7 @@ _NUMBER_RE = re.compile(
 )
 _BLANKS = " \t\r\f\v"
 _CACHE_SIZE = 4096
+_NO_PARAMS: tuple[tuple, tuple] = ((), ())
 
 
 def _numbers(text: str) -> tuple | None:
@@ -86,6 +88,8 @@ def _apply_defined(program: Program, gate, values: tuple, qubits: tuple[int, ...
         ops, phase = apply_modifiers(gate, (), values, qubits)
     except (MathError, ModifierError):
         return False
+    if type(phase) is AngleExpr:  # refused by the general parser, with its position
+        return False
     measured = program.measured
     if measured and any(q in measured for _, qs, _, _ in ops for q in qs):
         return False
@@ -100,7 +104,8 @@ def read_simple_statements(
 
     ``expressions(start, end)`` returns the values of the parameter list at
     ``text[start:end]``, or ``None`` if it has an error; ``cache`` remembers them
-    by text.  Stops at the first statement it cannot settle and returns that
+    by text, with the parameters as operations hold them (:func:`as_param`).  Stops at the
+    first statement it cannot settle and returns that
     statement's offset (or one of the blanks before it).
     """
     match_at, builtin, defined = _STATEMENT_RE.match, BUILTINS.get, program.gates.get
@@ -110,8 +115,8 @@ def read_simple_statements(
         gate = builtin(groups[0]) or defined(groups[0])
         if gate is None or program.op_count + gate.size > program.max_ops:
             break
-        values = () if groups[1] is None else cache.get(groups[1])
-        if values is None:
+        found = _NO_PARAMS if groups[1] is None else cache.get(groups[1])
+        if found is None:
             values = _numbers(groups[1])
             if values is None:
                 values = expressions(match.start(2), match.end(2))
@@ -119,7 +124,8 @@ def read_simple_statements(
                     break
             if len(cache) >= _CACHE_SIZE:
                 cache.clear()
-            cache[groups[1]] = values
+            found = cache[groups[1]] = (values, tuple(map(as_param, values)))
+        values, params = found
         if len(values) != gate.num_params:
             break
         qubits = _qubits(qregs, groups)
@@ -131,7 +137,7 @@ def read_simple_statements(
         else:
             if program.measured and any(q in program.measured for q in qubits):
                 break
-            append(Operation(gate.native, qubits, tuple(float(v) for v in values)))
+            append(Operation(gate.native, qubits, params))
             touched.update(qubits)
         program.op_count += gate.size
         pos = match.end()

@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm.lexer import Token, describe
-from tnsim.circuits.qasm3.expr import Code, is_constant
+from tnsim.circuits.qasm3.expr import Code, is_constant, needs_number
 from tnsim.circuits.qasm3.extensions import EXTENSION_TOKENS3
 from tnsim.circuits.qasm3.library import MAX_GATE_DEPTH, SIZE_CAP, Call, Gate, call_size
 from tnsim.circuits.qasm3.parser import REFUSED, RESERVED, TokenParser
@@ -52,6 +53,8 @@ class DefinitionParser(TokenParser):
                 )
             return code
         value = self.value(code, {})
+        if isinstance(value, AngleExpr):
+            raise self.error(needs_number("the exponent of pow(k) @", value), tok)
         if isinstance(value, float):
             if not value.is_integer():
                 raise self.error(

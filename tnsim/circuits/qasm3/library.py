@@ -21,11 +21,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from tnsim.circuits.gates import GATES
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm3.expr import NAME, Code, MathError, evaluate
 from tnsim.circuits.qasm3.modifiers import Op, apply_control, power, reverse
 
 __all__ = [
     "BUILTINS",
+    "as_param",
     "MAX_GATE_DEPTH",
     "SIZE_CAP",
     "STDGATES",
@@ -166,6 +168,17 @@ STDGATE_NAMES: dict[str, str] = dict(_STD_NATIVE) | {"cu": "p + cu3"}
 """stdgates.inc gate name -> the tnsim gate(s) it is read as."""
 
 
+def as_param(value) -> float | AngleExpr:
+    """A gate parameter as an operation holds it: a float, or a named angle as it is.
+
+    Examples
+    --------
+    >>> as_param(2), as_param(0.5)
+    (2.0, 0.5)
+    """
+    return value if type(value) is AngleExpr else float(value)
+
+
 def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op], float]:
     """Operations ``(name, qubits, params, matrix)`` and global phase of ``gate`` on ``qubits``.
 
@@ -179,7 +192,7 @@ def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op]
     ([('p', (5,)), ('cu3', (5, 7))], 0.0)
     """
     if gate.native is not None:
-        return [(gate.native, qubits, tuple(float(p) for p in params), None)], 0.0
+        return [(gate.native, qubits, tuple(map(as_param, params)), None)], 0.0
     ops: list[Op] = []
     phase = 0.0
     for call in gate.body:
@@ -208,7 +221,7 @@ def apply_modifiers(
     target = qubits[controls:]
     ops: list[Op]
     if gate is None:
-        ops, phase = [], float(values[0])
+        ops, phase = [], as_param(values[0])
     else:
         ops, phase = expand(gate, values, target)
     position = controls

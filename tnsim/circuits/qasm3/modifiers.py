@@ -18,6 +18,13 @@ exactly the same matrix (``inv @ s`` is ``sdg``, ``ctrl @ rz(θ)`` is
 ``crz(θ)``, ``ctrl @ ctrl @ x`` is ``ccx``); any other result is a custom
 unitary built from the matrices (:func:`tnsim.circuits.gates.controlled`),
 on at most :data:`MAX_CUSTOM_QUBITS` qubits.
+
+Named angles (inputs read without a value) go through every modifier that
+keeps gates named: ``inv`` (every parametric tnsim gate has a named inverse
+with negated or permuted angles), ``pow(k)`` (repetition) and ``ctrl`` where
+the controlled gate is named (``ctrl @ rx(θ)`` is ``crx(θ)``).  A modifier that
+would need the matrix of a gate with a named angle (``ctrl @ rzz(θ)``) raises
+:class:`ModifierError`.
 """
 
 from __future__ import annotations
@@ -28,6 +35,8 @@ import numpy as np
 
 from tnsim.circuits.gates import GATES, gate_matrix
 from tnsim.circuits.gates import controlled as controlled_matrix
+from tnsim.circuits.parameters import AngleExpr
+from tnsim.circuits.qasm3.expr import give_values
 
 __all__ = ["MAX_CUSTOM_QUBITS", "Op", "apply_control", "inverse", "power", "reverse"]
 
@@ -63,10 +72,25 @@ class ModifierError(Exception):
     """A modifier whose result tnsim cannot hold (too many qubits for one custom unitary)."""
 
 
-def matrix_of(op: Op) -> np.ndarray:
-    """The matrix of an operation (named or custom)."""
+def matrix_of(op: Op, modifier: str = "this modifier") -> np.ndarray:
+    """The matrix of an operation (named or custom).
+
+    Raises :class:`ModifierError` for a named gate with a named angle, whose
+    matrix is not a fixed array (``modifier`` says what needed it).
+    """
     name, _, params, matrix = op
-    return gate_matrix(name, params) if matrix is None else matrix
+    if matrix is not None:
+        return matrix
+    free = sorted({n for p in params if isinstance(p, AngleExpr) for n in p.names})
+    if free:
+        shown = ", ".join(str(p) for p in params)
+        raise ModifierError(
+            f"{modifier} on {name}({shown}) needs the gate's matrix (tnsim has no named gate "
+            f"for the result), which is built only from numbers, but {shown} depends on the "
+            f"unbound input(s) {', '.join(free)}; {give_values(free)}, or write the call with "
+            "gates tnsim controls by name (ctrl @ of x, y, z, h, swap, cx, p, rx, ry, rz, U)"
+        )
+    return gate_matrix(name, params)
 
 
 def inverse(op: Op) -> Op:
@@ -94,7 +118,7 @@ def inverse(op: Op) -> Op:
         if name == "u2":
             phi, lam = params
             return ("u", qubits, (-math.pi / 2, -lam, -phi), None)
-    inv = np.ascontiguousarray(matrix_of(op).conj().T)
+    inv = np.ascontiguousarray(matrix_of(op, "inv @").conj().T)
     inv.setflags(write=False)
     label = name[4:] if name.startswith("inv@") else f"inv@{name}"
     return (label, qubits, (), inv)
@@ -127,7 +151,7 @@ def _control_one(op: Op, control: int) -> Op:
             f"controlled gates on at most {MAX_CUSTOM_QUBITS} qubits (a "
             f"{2**MAX_CUSTOM_QUBITS} x {2**MAX_CUSTOM_QUBITS} matrix)"
         )
-    big = controlled_matrix(matrix_of(op), 1)
+    big = controlled_matrix(matrix_of(op, "ctrl @"), 1)
     big.setflags(write=False)
     return (f"ctrl@{name}", (control, *qubits), (), big)
 

@@ -15,8 +15,16 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm.lexer import Source, Token
-from tnsim.circuits.qasm3.expr import Code, MathError, evaluate, to_qasm_error
+from tnsim.circuits.qasm3.expr import (
+    Code,
+    MathError,
+    evaluate,
+    give_values,
+    needs_number,
+    to_qasm_error,
+)
 from tnsim.circuits.qasm3.library import SIZE_CAP, Gate, apply_modifiers, call_size
 from tnsim.circuits.qasm3.modifiers import ModifierError
 from tnsim.circuits.qasm3.program import Program, Register
@@ -97,6 +105,8 @@ class Node:
     def integer(self, code: Code, env: dict, what: str) -> int:
         """The value of ``code`` as an integer."""
         value = self.value(code, env)
+        if isinstance(value, AngleExpr):
+            raise self.source.error(needs_number(what, value) + _note(env), start(code))
         if isinstance(value, float):
             if not value.is_integer():
                 raise self.source.error(
@@ -188,9 +198,10 @@ class CallNode(Node):
         reserve(program, self, min(size * count, SIZE_CAP), env)
         if self.gate is None and not args:
             template, phase = apply_modifiers(None, mods, values, ())
-            program.phase += phase
+            program.phase += self.numeric_phase(phase, env)
             return
         template, phase = self.expand(mods, values, len(args), env)
+        phase = self.numeric_phase(phase, env)
         for i in range(count if template or phase else min(count, 1)):
             qubits = tuple(idx[i] if many else idx[0] for idx, many in args)
             self.check_distinct(qubits, program, env)
@@ -198,9 +209,24 @@ class CallNode(Node):
             self.check_measured(ops, program, env)
             program.emit(ops, phase)
 
+    def numeric_phase(self, phase, env: dict) -> float:
+        """The global phase the call adds, refused when it depends on an unbound input."""
+        if not isinstance(phase, AngleExpr):
+            return phase
+        raise self.fail(
+            f"the call adds the global phase {phase}, which depends on the unbound input(s) "
+            f"{', '.join(phase.names)} (a gphase, here or in a gate's definition): tnsim keeps "
+            f"a circuit's global phase as a number only; {give_values(list(phase.names))}, or "
+            "control the gphase (ctrl @ gphase(a) q is the phase gate p(a) on q)",
+            None,
+            env,
+        )
+
     def power(self, code: Code, tok: Token, env: dict) -> int:
         """The integer exponent of a ``pow(k) @`` modifier."""
         value = self.value(code, env)
+        if isinstance(value, AngleExpr):
+            raise self.fail(needs_number("the exponent of pow(k) @", value), tok, env)
         if isinstance(value, float):
             if not value.is_integer():
                 raise self.fail(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm.lexer import Source, Token, describe
 from tnsim.circuits.qasm3.expr import (
     CONSTANTS,
@@ -9,6 +10,7 @@ from tnsim.circuits.qasm3.expr import (
     Code,
     MathError,
     evaluate,
+    needs_number,
     parse_expression,
     to_qasm_error,
 )
@@ -160,6 +162,8 @@ class TokenParser:
     def integer(self, code: Code, env, tok: Token, what: str) -> int:
         """The value of ``code`` as an integer, or an error naming ``what``."""
         value = self.value(code, env)
+        if isinstance(value, AngleExpr):
+            raise self.error(needs_number(what, value), tok)
         if isinstance(value, float):
             if not value.is_integer():
                 raise self.error(f"{what} must be an integer, got {value!r}", tok)

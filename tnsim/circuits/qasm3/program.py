@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from tnsim.circuits.circuit import Circuit, Operation
+from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm3.library import Gate
 
 __all__ = ["GPHASE", "Program", "Register", "global_phase_matrix"]
@@ -48,7 +49,7 @@ class Program:
     gates: dict[str, Gate] = field(default_factory=dict)
     qregs: dict[str, Register] = field(default_factory=dict)
     cregs: dict[str, Register] = field(default_factory=dict)
-    constants: dict[str, int | float] = field(default_factory=dict)
+    constants: dict[str, int | float | AngleExpr] = field(default_factory=dict)
     kinds: dict[str, str] = field(default_factory=dict)
     num_qubits: int = 0
     num_clbits: int = 0
@@ -61,6 +62,8 @@ class Program:
     measured: set[int] = field(default_factory=set)
     measurements: dict[int, int] = field(default_factory=dict)
     used_inputs: set[str] = field(default_factory=set)
+    keep_unbound: bool = False
+    unbound: list[str] = field(default_factory=list)
     include_stack: list[str] = field(default_factory=list)
 
     def qubit_name(self, qubit: int) -> str:

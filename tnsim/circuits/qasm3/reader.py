@@ -26,7 +26,14 @@ from tnsim.circuits.qasm3.program import Program
 from tnsim.circuits.qasm3.statements import StatementParser
 from tnsim.errors import InputError, QasmError
 
-__all__ = ["DEFAULT_MAX_OPS", "MAX_INCLUDE_DEPTH", "STANDARD_INCLUDES", "read_qasm3"]
+__all__ = [
+    "DEFAULT_MAX_OPS",
+    "MAX_INCLUDE_DEPTH",
+    "STANDARD_INCLUDES",
+    "UNBOUND_CHOICES",
+    "check_unbound",
+    "read_qasm3",
+]
 
 DEFAULT_MAX_OPS = 10_000_000
 """Default cap on the operations (and loop iterations) a program may expand to."""
@@ -36,6 +43,26 @@ MAX_INCLUDE_DEPTH = 8
 
 STANDARD_INCLUDES = ("stdgates.inc",)
 """Includes served from tnsim's own tables; no file is read for them."""
+
+
+UNBOUND_CHOICES = ("refuse", "keep")
+"""What the reader may do with an ``input`` given no value: refuse it, or keep it as a named angle."""
+
+
+def check_unbound(unbound) -> bool:
+    """Whether ``unbound`` asks to keep inputs without a value (checked).
+
+    Examples
+    --------
+    >>> check_unbound("refuse"), check_unbound("keep")
+    (False, True)
+    """
+    if unbound not in UNBOUND_CHOICES:
+        raise InputError(
+            f"unbound must be 'refuse' (an input without a value is an error) or 'keep' (it "
+            f"becomes a named angle), got {unbound!r}"
+        )
+    return unbound == "keep"
 
 
 def _version_ok(text: str) -> bool:
@@ -228,6 +255,7 @@ def read_qasm3(
     path_or_text: str | os.PathLike,
     *,
     inputs: Mapping[str, float] | None = None,
+    unbound: str = "refuse",
     max_ops: int = DEFAULT_MAX_OPS,
     name: str | None = None,
 ) -> Circuit:
@@ -241,6 +269,19 @@ def read_qasm3(
         itself (reported as ``<text>`` in errors).
     inputs : mapping of str to float, optional
         Values of the program's ``input`` declarations, bound while reading.
+    unbound : {"refuse", "keep"}
+        What to do with an input given no value in ``inputs``.  ``"refuse"``
+        (the default): a :class:`QasmError` at its declaration, so a circuit read
+        for a query is always numeric and a forgotten value is reported where it
+        is declared.  ``"keep"``: an input declared ``float[64]`` (or ``float``)
+        becomes the named angle of the same name
+        (:mod:`tnsim.circuits.parameters`), to optimize or to bind later with
+        :meth:`Circuit.bind`; ``circuit.bind(v)`` equals reading with
+        ``inputs=v``.  Such an input may be added, subtracted, negated, and
+        multiplied or divided by numbers, in the program and in gate
+        definitions; anything else (``sin(theta)``, ``theta * theta``, a loop
+        bound, a ``gphase`` left uncontrolled, a ``ctrl @`` that needs a matrix)
+        is refused at its position.
     max_ops : int
         Refuse programs that expand to more operations (or run more loop
         iterations) than this (default 10,000,000).  Sizes are bounded before
@@ -286,18 +327,34 @@ def read_qasm3(
     [('h', (0,)), ('cx', (0, 1)), ('cx', (1, 2)), ('rz', (2,))]
     >>> round(c.ops[-1].params[0], 6), c.measurements
     (-0.5, {0: 0, 1: 1, 2: 2})
+
+    An input without a value kept as a named angle; binding it later equals
+    reading with its value:
+
+    >>> text = '''OPENQASM 3.0;
+    ... include "stdgates.inc";
+    ... input float[64] theta;
+    ... gate half(a) q { rx(a / 2) q; }
+    ... qubit[1] q;
+    ... inv @ half(2 * theta + pi) q[0];'''
+    >>> v = read_qasm3(text, unbound="keep")
+    >>> v.parameters(), str(v.ops[0].params[0])
+    (('theta',), '-theta - 1.5707963267948966')
+    >>> v.bind({"theta": 0.5}).ops == read_qasm3(text, inputs={"theta": 0.5}).ops
+    True
     """
     if isinstance(max_ops, bool) or not isinstance(max_ops, int) or max_ops < 0:
         raise InputError(f"max_ops must be a non-negative integer, got {max_ops!r}")
     values = dict(inputs or {})
     if not all(isinstance(k, str) for k in values):
         raise InputError("inputs must map input names (str) to numbers")
+    keep = check_unbound(unbound)
     source, directory = _source(path_or_text, name)
-    program = Program(max_ops, values)
+    program = Program(max_ops, values, keep_unbound=keep)
     eof = _Parser(source, directory, program).parse(main=True)
     unused = sorted(set(values) - program.used_inputs)
     if unused:
-        declared = sorted(program.used_inputs) or ["none"]
+        declared = sorted(program.used_inputs | set(program.unbound)) or ["none"]
         raise InputError(
             f"inputs {unused} are not declared by the program (its inputs: "
             f"{', '.join(declared)}); check the names"
