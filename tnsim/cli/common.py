@@ -363,23 +363,25 @@ def parse_inputs(items: Sequence[str] | None) -> dict[str, float]:
     return out
 
 
-def load_circuit(path: str, inputs: Sequence[str] | None = None):
+def load_circuit(path: str, inputs: Sequence[str] | None = None, *, unbound: str = "refuse"):
     """Read an OpenQASM 2.0 or 3 circuit for a subcommand (``-``: standard input).
 
     Errors name file:line:column.  ``inputs`` are ``--input NAME=VALUE`` items,
-    bound to an OpenQASM 3 program's ``input`` declarations.  A register too large
-    for the memory (:data:`QUBIT_BYTES` per qubit) is refused before anything is
-    allocated.
+    bound to an OpenQASM 3 program's ``input`` declarations; an input given no
+    value is refused (the query commands need numbers) unless ``unbound`` is
+    ``"keep"`` (``tnsim optimize``: it becomes a named angle).  A register too
+    large for the memory (:data:`QUBIT_BYTES` per qubit) is refused before
+    anything is allocated.
     """
     from tnsim.circuits.qasm import read_qasm
 
     values = parse_inputs(inputs)
     if path == "-":
         text, name = read_input_text(path, "circuit")
-        circuit = read_qasm(text, name=name, inputs=values)
+        circuit = read_qasm(text, name=name, inputs=values, unbound=unbound)
     else:
         check_file(path, "OpenQASM circuit")
-        circuit = read_qasm(path, inputs=values)
+        circuit = read_qasm(path, inputs=values, unbound=unbound)
     check_register(circuit.num_qubits)
     return circuit
 

@@ -122,9 +122,7 @@ def read_qasm(
         )
     check_unbound(unbound)
     if qasm_version(head) == "3":
-        return read_qasm3(
-            path_or_text, inputs=inputs, unbound=unbound, max_ops=max_ops, name=name
-        )
+        return read_qasm3(path_or_text, inputs=inputs, unbound=unbound, max_ops=max_ops, name=name)
     if inputs:
         raise InputError(
             f"inputs {sorted(inputs)} given, but an OpenQASM 2.0 program has no inputs; "

@@ -213,7 +213,9 @@ class DeclarationParser(DefinitionParser):
     def keep_unbound(self, name: Token, kind: str, width: int | None) -> None:
         """An input without a value: a named angle if the reader keeps them, else refused."""
         text = name.text
-        give = f"give it a value: --input {text}=VALUE on the command line, inputs={{'{text}': ...}}"
+        give = (
+            f"give it a value: --input {text}=VALUE on the command line, inputs={{'{text}': ...}}"
+        )
         if not self.program.keep_unbound:
             raise self.error(
                 f"input '{text}' has no value; {give} in Python, or read the file with "

@@ -88,7 +88,7 @@ def _apply_defined(program: Program, gate, values: tuple, qubits: tuple[int, ...
         ops, phase = apply_modifiers(gate, (), values, qubits)
     except (MathError, ModifierError):
         return False
-    if type(phase) is AngleExpr:  # refused by the general parser, with its position
+    if isinstance(phase, AngleExpr):  # refused by the general parser, with its position
         return False
     measured = program.measured
     if measured and any(q in measured for _, qs, _, _ in ops for q in qs):

@@ -23,16 +23,16 @@ from dataclasses import dataclass
 from tnsim.circuits.gates import GATES
 from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm3.expr import NAME, Code, MathError, evaluate
-from tnsim.circuits.qasm3.modifiers import Op, apply_control, power, reverse
+from tnsim.circuits.qasm3.modifiers import Op, Phase, apply_control, power, reverse
 
 __all__ = [
     "BUILTINS",
-    "as_param",
     "MAX_GATE_DEPTH",
     "SIZE_CAP",
     "STDGATES",
     "Call",
     "Gate",
+    "as_param",
     "call_size",
     "expand",
 ]
@@ -179,7 +179,7 @@ def as_param(value) -> float | AngleExpr:
     return value if type(value) is AngleExpr else float(value)
 
 
-def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op], float]:
+def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op], Phase]:
     """Operations ``(name, qubits, params, matrix)`` and global phase of ``gate`` on ``qubits``.
 
     Raises :class:`~tnsim.circuits.qasm3.expr.MathError` (with the definition's
@@ -194,7 +194,7 @@ def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op]
     if gate.native is not None:
         return [(gate.native, qubits, tuple(map(as_param, params)), None)], 0.0
     ops: list[Op] = []
-    phase = 0.0
+    phase: Phase = 0.0
     for call in gate.body:
         try:
             values = tuple(evaluate(code, params) for code in call.params)
@@ -208,14 +208,14 @@ def expand(gate: Gate, params: tuple, qubits: tuple[int, ...]) -> tuple[list[Op]
     return ops, phase
 
 
-def apply_call(call: Call, values: tuple, qubits: tuple[int, ...]) -> tuple[list[Op], float]:
+def apply_call(call: Call, values: tuple, qubits: tuple[int, ...]) -> tuple[list[Op], Phase]:
     """Expand one call with its modifiers on actual ``qubits`` (controls first)."""
     return apply_modifiers(call.gate, call.modifiers, values, qubits)
 
 
 def apply_modifiers(
     gate: Gate | None, modifiers, values: tuple, qubits: tuple[int, ...]
-) -> tuple[list[Op], float]:
+) -> tuple[list[Op], Phase]:
     """Expand ``gate`` (``None``: ``gphase(values[0])``) under ``modifiers`` on ``qubits``."""
     controls = sum(n for kind, n in modifiers if kind in ("ctrl", "negctrl"))
     target = qubits[controls:]

@@ -38,9 +38,10 @@ from tnsim.circuits.gates import controlled as controlled_matrix
 from tnsim.circuits.parameters import AngleExpr
 from tnsim.circuits.qasm3.expr import give_values
 
-__all__ = ["MAX_CUSTOM_QUBITS", "Op", "apply_control", "inverse", "power", "reverse"]
+__all__ = ["MAX_CUSTOM_QUBITS", "Op", "Phase", "apply_control", "inverse", "power", "reverse"]
 
 Op = tuple  # (name, qubits, params, matrix or None)
+Phase = float | AngleExpr  # a global phase; a named angle only until the call is checked
 
 MAX_CUSTOM_QUBITS = 10
 """Most qubits of one custom unitary a modifier may build (a 1024 x 1024 matrix, 16 MiB)."""
@@ -86,7 +87,7 @@ def matrix_of(op: Op, modifier: str = "this modifier") -> np.ndarray:
         shown = ", ".join(str(p) for p in params)
         raise ModifierError(
             f"{modifier} on {name}({shown}) needs the gate's matrix (tnsim has no named gate "
-            f"for the result), which is built only from numbers, but {shown} depends on the "
+            f"for the result), which is built only from numbers, but its angles depend on the "
             f"unbound input(s) {', '.join(free)}; {give_values(free)}, or write the call with "
             "gates tnsim controls by name (ctrl @ of x, y, z, h, swap, cx, p, rx, ry, rz, U)"
         )
@@ -129,7 +130,7 @@ def reverse(ops: list[Op]) -> list[Op]:
     return [inverse(op) for op in reversed(ops)]
 
 
-def power(ops: list[Op], phase: float, k: int) -> tuple[list[Op], float]:
+def power(ops: list[Op], phase: Phase, k: int) -> tuple[list[Op], Phase]:
     """The operations and phase of the sequence raised to the integer power ``k``."""
     if k < 0:
         ops, phase, k = reverse(ops), -phase, -k
@@ -157,8 +158,8 @@ def _control_one(op: Op, control: int) -> Op:
 
 
 def apply_control(
-    ops: list[Op], phase: float, control: int, negative: bool = False
-) -> tuple[list[Op], float]:
+    ops: list[Op], phase: Phase, control: int, negative: bool = False
+) -> tuple[list[Op], Phase]:
     """Control every operation (and the phase) on qubit ``control``.
 
     ``negative`` (``negctrl``) controls on ``|0>``: an ``x`` on the control before

@@ -46,7 +46,7 @@ STANDARD_INCLUDES = ("stdgates.inc",)
 
 
 UNBOUND_CHOICES = ("refuse", "keep")
-"""What the reader may do with an ``input`` given no value: refuse it, or keep it as a named angle."""
+"""What the reader may do with an ``input`` given no value: refuse it, or keep a named angle."""
 
 
 def check_unbound(unbound) -> bool:
