@@ -22,6 +22,12 @@ What the reader accepts
   ``angle`` (optional widths), bound while reading: inputs from
   ``read_qasm(text, inputs={"theta": 0.3})`` (command line ``--input
   theta=0.3``); see :mod:`tnsim.circuits.qasm3.declarations` for the types.
+  An input given no value is refused, unless read with ``unbound="keep"``: an
+  ``input float[64]`` then becomes a named angle
+  (:mod:`tnsim.circuits.parameters`), which may go through ``+ -``, unary
+  ``-`` and ``* /`` by numbers, gate definitions, ``inv @``, ``pow(k) @`` and
+  the ``ctrl @`` that give named gates; other uses are refused with their
+  position (see :func:`read_qasm3`).
 * Gate calls with parameters, broadcast over registers, ranges ``q[0:2]``
   (end included), sets ``q[{0, 3}]`` and negative indices; the built-in ``U``
   and ``gphase``; ``gate`` definitions (bodies of calls, ``gphase`` and
