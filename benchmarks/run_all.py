@@ -14,8 +14,8 @@ Steps, each in its own process:
 4. The other benchmark scripts, when present and committed (a script git does
    not track yet is work in progress and is skipped): ``planners.py``,
    ``scaling.py``, ``queries.py``, ``time_model.py``, ``memory_fit.py``,
-   ``variational.py`` (given ``--quick`` in quick mode), ``qasm_read.py`` and
-   ``startup.py``.
+   ``variational.py``, ``noise.py``, ``serve.py`` (given ``--quick`` in quick mode),
+   ``qasm_read.py`` and ``startup.py``.
 """
 
 from __future__ import annotations
@@ -38,6 +38,8 @@ OTHERS = {
     "memory_fit.py": ["--quick"],
     "variational.py": ["--quick"],
     "startup.py": ["--repeats", "3"],
+    "noise.py": ["--quick"],
+    "serve.py": ["--quick"],
 }
 
 GRID_FULL = "4x4,5x5,6x6,7x7,8x8,9x9,10x10,11x11,12x12"

@@ -17,8 +17,8 @@ from tnsim.circuits.graphs import (
     random_regular,
     read_graph,
 )
+from tnsim.circuits.qasm3.writer import write_qasm3
 from tnsim.cli import main
-from tnsim.cli import optimize as optimize_cli
 
 # Farhi, Goldstone, Gutmann, arXiv:1411.4028 (2014): the best p = 1 cut fraction on
 # 3-regular graphs without triangles.
@@ -81,7 +81,8 @@ def test_output_file(prism_file, tmp_path):
         ("0 1\n", ["--p", "0"], "--p must be at least 1"),
         ("0 1\n", ["--method", "newton"], "unknown method 'newton'"),
         ("0 1\n", ["--plot", "x.unknownext"], "unknown image format"),
-        ("0 1\n", ["--maximize"], "--maximize and --initial go with --circuit"),
+        ("0 1\n", ["--maximize"], "--maximize, --initial and --input go with --circuit"),
+        ("0 1\n", ["--input", "a=1"], "--maximize, --initial and --input go with --circuit"),
         ("0 1\n", ["--circuit", "c.qasm"], "not both"),
     ],
 )
@@ -98,16 +99,16 @@ def test_missing_graph_file(capsys):
     assert "no such file" in capsys.readouterr().err
 
 
-def test_circuit_mode(monkeypatch, tmp_path, capsys):
+def test_circuit_mode(tmp_path, capsys):
     # The OpenQASM 2.0 reader has no named angles: a circuit from it is refused clearly.
     qasm = tmp_path / "c.qasm"
     qasm.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nry(0.3) q[0];\n')
     assert main(["optimize", "--circuit", str(qasm), "--observable", "Z0"]) == 2
     assert "no named angles" in capsys.readouterr().err
-    # A reader that gives named angles (as one for OpenQASM 3 inputs would).
-    named = Circuit(2).ry("a", 0).cx(0, 1).ry("b", 1)
-    monkeypatch.setattr(optimize_cli, "load_circuit", lambda path: named)
-    args = ["optimize", "--circuit", str(qasm), "--observable", "Z0 + Z1", "--json"]
+    # OpenQASM 3 inputs without a value are the named angles.
+    named = tmp_path / "named.qasm"
+    named.write_text(write_qasm3(Circuit(2).ry("a", 0).cx(0, 1).ry("b", 1)))
+    args = ["optimize", "--circuit", str(named), "--observable", "Z0 + Z1", "--json"]
     assert main([*args, "--initial", "a=3.0", "--initial", "b=0.1", "--starts", "2"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert doc["energy"] == pytest.approx(-2.0, abs=1e-6)

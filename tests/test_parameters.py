@@ -152,3 +152,31 @@ def test_named_and_numeric_energies_agree_on_maxcut():
     ref = maxcut_energy(graph, [0.21], [0.33])
     zz = sum(expectation(bound, {u: "Z", v: "Z"}) for u, v in g.edges())
     assert 0.5 * (g.number_of_edges() - zz) == pytest.approx(ref, abs=1e-12)
+
+
+def test_gate_tensor_cache_stays_bounded_when_a_loop_binds_new_angles():
+    # A variational loop binds new angles on every pass and runs ordinary queries; each
+    # pass makes new named-gate tensors, which the cache must not keep without bound.
+    from tnsim.network import builders
+
+    cache = builders._named_tensor
+    named = Circuit(2).ry("a", 0).rz("b", 0).h(1)
+    for k in range(20):
+        a, b = 0.1 + 0.01 * k, -0.3 * k
+        bound = named.bind({"a": a, "b": b})
+        # Bloch vector after ry(a) then rz(b) on |0>: (sin a cos b, sin a sin b, cos a)
+        # (rotations about the Bloch-sphere axes; Nielsen and Chuang, "Quantum Computation
+        # and Quantum Information", Cambridge 2000, section 4.2).
+        assert expectation(bound, "Z0") == pytest.approx(math.cos(a), abs=1e-12)
+        assert expectation(bound, "X0 X1") == pytest.approx(math.sin(a) * math.cos(b), abs=1e-12)
+    assert cache.cache_info().currsize <= builders.TENSOR_CACHE_SIZE
+    # Far more distinct angles than the cache holds: its size stops at the bound, and the
+    # tensors it returns stay right (rz(t) = diag(e^{-it/2}, e^{it/2}), common practice).
+    for k in range(builders.TENSOR_CACHE_SIZE + 500):
+        t = 1e-3 * k
+        tensor, diag = builders.gate_tensor(Circuit(1).rz(t, 0).ops[0])
+        assert diag == (True,)
+    assert cache.cache_info().currsize == builders.TENSOR_CACHE_SIZE
+    np.testing.assert_allclose(tensor, [np.exp(-0.5j * t), np.exp(0.5j * t)], atol=1e-15)
+    again, _ = builders.gate_tensor(Circuit(1).rz(t, 0).ops[0])
+    assert again is tensor  # the most recent entry is still there

@@ -308,7 +308,7 @@ def test_errors_report_line_and_column(marked, fragment):
 FULL_ERRORS = [
     ("missing header", f"{MARK}qreg q[1];\n", "missing header"),
     ("empty text", f"{MARK}", "missing header"),
-    ("wrong version", f"OPENQASM {MARK}3.0;\nqreg q[1];\n", "version 3.0"),
+    ("wrong version", f"OPENQASM {MARK}4.0;\nqreg q[1];\n", "version 4.0"),
     ("version not a number", f"OPENQASM {MARK}two;\n", "version 2.0"),
     ("no qreg", f"OPENQASM 2.0;\n{MARK}", "no qubit register"),
     ("qelib1 gate not included", f"OPENQASM 2.0;\nqreg q[1];\n{MARK}h q[0];\n", "qelib1.inc"),

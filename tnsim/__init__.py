@@ -2,7 +2,8 @@
 
 The pipeline, one folder per stage: :mod:`tnsim.circuits` → :mod:`tnsim.network`
 → :mod:`tnsim.plan` → :mod:`tnsim.execution` → :mod:`tnsim.queries`, with the
-command line in :mod:`tnsim.cli`.  The names below are the public API; each is
+command line in :mod:`tnsim.cli` and the job runner and local service in
+:mod:`tnsim.service`.  The names below are the public API; each is
 imported on first use, so ``import tnsim`` stays quick.
 
 Queries: :func:`amplitude`, :func:`amplitudes`, :func:`iter_amplitudes`,
@@ -44,6 +45,8 @@ _PUBLIC = {
     "angle": "tnsim.circuits.parameters",
     "read_qasm": "tnsim.circuits.qasm",
     "write_qasm": "tnsim.circuits.qasm",
+    "NoiseModel": "tnsim.circuits.noise",
+    "read_noise_model": "tnsim.circuits.noisefile",
     "Scaled": "tnsim.network.scaled",
     "TensorGraph": "tnsim.network.graph",
     "PairTree": "tnsim.plan.tree",
@@ -74,6 +77,12 @@ _PUBLIC = {
     "AngleOptimum": "tnsim.queries.optimize",
     "optimize_maxcut": "tnsim.queries.maxcut",
     "MaxCutOptimum": "tnsim.queries.maxcut",
+    "noisy_marginal": "tnsim.queries.noisy",
+    "noisy_expectation": "tnsim.queries.noisy",
+    "noisy_probabilities": "tnsim.queries.noisy",
+    "noisy_sample": "tnsim.queries.noisy_sampling",
+    "predict_xeb": "tnsim.queries.noisy_xeb",
+    "run_job": "tnsim.service.jobs",
 }
 
 __all__ = [
@@ -118,6 +127,8 @@ def __dir__() -> list[str]:
 
 if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.circuits.circuit import Circuit, Operation
+    from tnsim.circuits.noise import NoiseModel
+    from tnsim.circuits.noisefile import read_noise_model
     from tnsim.circuits.parameters import AngleExpr, angle
     from tnsim.circuits.qasm import read_qasm, write_qasm
     from tnsim.execution.options import ContractionRecord, RunOptions, run_options
@@ -134,7 +145,11 @@ if TYPE_CHECKING:  # the names as a type checker and an IDE should see them
     from tnsim.queries.landscape import EnergyLandscape
     from tnsim.queries.marginals import marginal
     from tnsim.queries.maxcut import MaxCutOptimum, optimize_maxcut
+    from tnsim.queries.noisy import noisy_expectation, noisy_marginal, noisy_probabilities
+    from tnsim.queries.noisy_sampling import noisy_sample
+    from tnsim.queries.noisy_xeb import predict_xeb
     from tnsim.queries.observables import Observable, PauliTerm, parse_observable
     from tnsim.queries.optimize import AngleOptimum, optimize_angles
     from tnsim.queries.sampling import sample
     from tnsim.queries.xeb import XebResult, xeb
+    from tnsim.service.jobs import run_job

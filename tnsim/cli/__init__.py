@@ -27,7 +27,7 @@ import sys
 import warnings
 from collections.abc import Sequence
 
-from tnsim.cli import bench, calibrate, cost, demo, gen, optimize, queries
+from tnsim.cli import bench, calibrate, cost, demo, gen, optimize, queries, run, serve
 from tnsim.cli.common import BITS_HELP, CommandParser, OptionError, options_from_args, reset_inputs
 from tnsim.errors import OutputError, TnsimError
 
@@ -61,7 +61,7 @@ def build_parser() -> CommandParser:
     )
     parser.add_argument("--version", action=_Version, help="print the version and exit")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=CommandParser)
-    for family in (queries, cost, gen, bench, calibrate, demo, optimize):
+    for family in (queries, cost, gen, bench, calibrate, demo, optimize, run, serve):
         family.register(sub)
     parser.commands = tuple(sub.choices)  # for main's pointers to a subcommand's help
     return parser

@@ -14,10 +14,11 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import math
 import os
 import sys
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 
 from tnsim.errors import InputError
 
@@ -30,6 +31,7 @@ __all__ = [
     "OptionError",
     "RunStats",
     "add_bit_order_argument",
+    "add_input_argument",
     "add_limit_arguments",
     "add_output_arguments",
     "add_plan_arguments",
@@ -46,6 +48,7 @@ __all__ = [
     "emit_stats",
     "load_circuit",
     "options_from_args",
+    "parse_inputs",
     "read_input_text",
     "reset_inputs",
     "seconds_type",
@@ -348,20 +351,66 @@ def read_input_text(path: str, what: str) -> tuple[str, str]:
         raise InputError(f"cannot read the {what} {path!r}: {exc}") from None
 
 
-def load_circuit(path: str):
-    """Read an OpenQASM 2.0 circuit for a subcommand (``-``: standard input).
+def add_input_argument(parser) -> None:
+    """Add ``--input NAME=VALUE`` (repeatable): values of an OpenQASM 3 program's inputs."""
+    parser.add_argument(
+        "--input",
+        action="append",
+        metavar="NAME=VALUE",
+        help="value of an OpenQASM 3 'input' parameter, e.g. --input theta=0.3 (repeatable)",
+    )
 
-    Errors name file:line:column.  A register too large for the memory
-    (:data:`QUBIT_BYTES` per qubit) is refused before anything is allocated.
+
+def parse_inputs(items: Sequence[str] | None) -> dict[str, float]:
+    """Turn ``["theta=0.3", "n=4"]`` into ``{"theta": 0.3, "n": 4}``.
+
+    Examples
+    --------
+    >>> parse_inputs(["theta=0.3", " n = 4 "])
+    {'theta': 0.3, 'n': 4}
+    """
+    out: dict[str, float] = {}
+    for item in items or ():
+        name, sep, text = item.partition("=")
+        name, text = name.strip(), text.strip()
+        if not sep or not name.isidentifier():
+            raise InputError(f"--input {item[:80]!r}: write NAME=VALUE, e.g. --input theta=0.3")
+        if name in out:
+            raise InputError(f"--input gives '{name}' twice; give each input once")
+        digits = text.lstrip("+-")
+        try:
+            value: float = (
+                int(text)
+                if digits.isascii() and digits.isdigit() and len(text) < 19
+                else float(text)
+            )
+        except ValueError:
+            raise InputError(f"--input {name}={text[:80]!r}: the value is not a number") from None
+        if not math.isfinite(value):
+            raise InputError(f"--input {name}={text[:80]!r}: the value must be finite")
+        out[name] = value
+    return out
+
+
+def load_circuit(path: str, inputs: Sequence[str] | None = None, *, unbound: str = "refuse"):
+    """Read an OpenQASM 2.0 or 3 circuit for a subcommand (``-``: standard input).
+
+    Errors name file:line:column.  ``inputs`` are ``--input NAME=VALUE`` items,
+    bound to an OpenQASM 3 program's ``input`` declarations; an input given no
+    value is refused (the query commands need numbers) unless ``unbound`` is
+    ``"keep"`` (``tnsim optimize``: it becomes a named angle).  A register too
+    large for the memory (:data:`QUBIT_BYTES` per qubit) is refused before
+    anything is allocated.
     """
     from tnsim.circuits.qasm import read_qasm
 
+    values = parse_inputs(inputs)
     if path == "-":
         text, name = read_input_text(path, "circuit")
-        circuit = read_qasm(text, name=name)
+        circuit = read_qasm(text, name=name, inputs=values, unbound=unbound)
     else:
-        check_file(path, "OpenQASM 2.0 circuit")
-        circuit = read_qasm(path)
+        check_file(path, "OpenQASM circuit")
+        circuit = read_qasm(path, inputs=values, unbound=unbound)
     check_register(circuit.num_qubits)
     return circuit
 

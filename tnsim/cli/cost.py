@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING
 from tnsim.cli.common import (
     OptionError,
     add_bit_order_argument,
+    add_input_argument,
     add_limit_arguments,
     add_output_arguments,
     add_plan_arguments,
@@ -68,7 +69,7 @@ def _query_kind(args: argparse.Namespace) -> str:
 
 
 def _cmd_cost(args: argparse.Namespace) -> int:
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     kind = _query_kind(args)
     dtype = dtype_of(args)
     if kind == "amplitudes":
@@ -282,7 +283,8 @@ def register(sub) -> None:
         "value (--observable). Nothing big is allocated; sampling wide circuits is forecast "
         "from two short pilot runs.",
     )
-    cost.add_argument("circuit", help="OpenQASM 2.0 file, or - to read it from standard input")
+    cost.add_argument("circuit", help="OpenQASM 2.0 or 3 file, or - to read it from standard input")
+    add_input_argument(cost)
     what = cost.add_argument_group("the query (one of)")
     what.add_argument(
         "--bits", action="append", metavar="BITS", help="a bitstring (repeatable: a batch)"

@@ -4,8 +4,12 @@
 state on the graph (an edge list as :func:`networkx.read_edgelist` reads it),
 depth by depth; ``tnsim optimize --circuit FILE --observable TEXT`` minimizes
 (or with ``--maximize`` maximizes) a Pauli sum over the named angles of a
-circuit.  ``--json`` prints one strict JSON document (no NaN or Infinity);
-``--plot FILE`` draws every evaluation (the ``plot`` extra).
+circuit: the ``input float[64]`` parameters of an OpenQASM 3 file that
+``--input NAME=VALUE`` does not fix (read with ``unbound="keep"``, see
+:func:`tnsim.circuits.qasm3.read_qasm3`).  OpenQASM 2.0 has no input
+declarations, so a 2.0 file has nothing to optimize.  ``--json`` prints one
+strict JSON document (no NaN or Infinity); ``--plot FILE`` draws every
+evaluation (the ``plot`` extra).
 """
 
 from __future__ import annotations
@@ -279,8 +283,10 @@ def _cmd_optimize(args: argparse.Namespace) -> int:
         from tnsim.circuits.graphs import read_graph
         from tnsim.queries.maxcut import optimize_maxcut
 
-        if args.maximize or args.initial:
-            raise InputError("--maximize and --initial go with --circuit (MaxCut is maximized)")
+        if args.maximize or args.initial or args.input:
+            raise InputError(
+                "--maximize, --initial and --input go with --circuit (MaxCut is maximized)"
+            )
         graph = read_graph(args.graph)
         best = optimize_maxcut(
             graph,
@@ -297,11 +303,12 @@ def _cmd_optimize(args: argparse.Namespace) -> int:
         from tnsim.queries.optimize import optimize_angles
 
         observable = _read_observable(args)
-        circuit = load_circuit(args.circuit)
+        circuit = load_circuit(args.circuit, args.input, unbound="keep")
         if not circuit.parameters():
             raise InputError(
-                f"{args.circuit}: the circuit has no named angles to optimize (an OpenQASM 2.0 "
-                "file has none); give a circuit whose gate angles are parameter names"
+                f"{args.circuit}: the circuit has no named angles to optimize: declare them in "
+                "an OpenQASM 3 file ('input float[64] theta;', used in gate angles) and give "
+                "them no --input value (OpenQASM 2.0 has no input declarations)"
             )
         initial = _parse_initial(args.initial)
         result = optimize_angles(
@@ -335,12 +342,18 @@ def register(sub) -> None:
         "edge list, 'u v' or 'u v {\"weight\": w}' per line, as networkx reads it): maximize "
         "the expected cut of the depth-p QAOA state, depth by depth (linear-ramp start at p=1, "
         "the previous depth's angles interpolated after). With --circuit: minimize a Pauli sum "
-        "over the circuit's named angles. Each distinct light cone is contracted once per "
-        "evaluation.",
+        "over the circuit's named angles, the 'input float[64] NAME;' parameters of an "
+        "OpenQASM 3 file that --input does not fix (OpenQASM 2.0 has no input declarations, "
+        "so a 2.0 file has nothing to optimize). Each distinct light cone is contracted once "
+        "per evaluation.",
     )
     p.add_argument("graph", nargs="?", help="edge-list file of the MaxCut graph")
     p.add_argument("--p", type=int, default=1, metavar="P", help="QAOA depth (default 1)")
-    p.add_argument("--circuit", metavar="FILE", help="a circuit with named angles instead")
+    p.add_argument(
+        "--circuit",
+        metavar="FILE",
+        help="an OpenQASM 3 circuit whose 'input float[64]' parameters are optimized instead",
+    )
     p.add_argument("--observable", metavar="TEXT", help="with --circuit: e.g. '0.5 Z0 Z1 - X3'")
     p.add_argument("--observable-file", metavar="FILE", help="with --circuit: one term per line")
     p.add_argument("--maximize", action="store_true", help="with --circuit: maximize instead")
@@ -349,6 +362,13 @@ def register(sub) -> None:
         action="append",
         metavar="NAME=VALUE",
         help="with --circuit: a starting value (repeat for every name)",
+    )
+    p.add_argument(
+        "--input",
+        action="append",
+        metavar="NAME=VALUE",
+        help="with --circuit: fix an OpenQASM 3 input at a value instead of optimizing it "
+        "(repeatable)",
     )
     p.add_argument("--starts", type=int, default=4, metavar="N", help="starts (default 4)")
     p.add_argument("--seed", type=int, default=0, help="seed of the random starts (default 0)")

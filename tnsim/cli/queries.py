@@ -18,6 +18,7 @@ from typing import Any
 
 from tnsim.cli.common import (
     OptionError,
+    add_input_argument,
     add_query_arguments,
     check_array,
     count_type,
@@ -29,6 +30,7 @@ from tnsim.cli.common import (
     write_output,
 )
 from tnsim.cli.inputs import gather_bits, observable_text, parse_qubit_list, read_records
+from tnsim.cli.noiseflag import add_noise_argument, noisy_circuit
 from tnsim.cli.numbers import (
     amplitude_record,
     bits_cell,
@@ -57,8 +59,14 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
             f"--qubits lists {len(qubits)} qubits: 2^{len(qubits)} outcomes are too many to "
             "print; list at most 24 (or sample the circuit)"
         )
-    circuit = load_circuit(args.circuit)
-    probs = marginal(circuit, qubits, dtype=dtype_of(args))
+    circuit = load_circuit(args.circuit, args.input)
+    noisy = noisy_circuit(args, circuit)
+    if noisy is None:
+        probs = marginal(circuit, qubits, dtype=dtype_of(args))
+    else:
+        from tnsim.queries.noisy import noisy_marginal
+
+        probs = noisy_marginal(noisy, qubits, dtype=dtype_of(args))
     k = len(qubits)
     outcomes = [format_bits([(i >> (k - 1 - j)) & 1 for j in range(k)]) for i in range(1 << k)]
     if args.json:
@@ -88,14 +96,22 @@ def _cmd_marginal(args: argparse.Namespace) -> int:
 
 def _cmd_expect(args: argparse.Namespace) -> int:
     from tnsim.queries.expectation import TermCache
+    from tnsim.queries.noisy import NoisyTermCache
     from tnsim.queries.observables import parse_observable
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     obs = parse_observable(observable_text(args), circuit.num_qubits)
-    cache = TermCache(circuit, dtype=dtype_of(args))
+    noisy = noisy_circuit(args, circuit)
+    cache: TermCache | NoisyTermCache
+    if noisy is None:
+        cache = TermCache(circuit, dtype=dtype_of(args))
+        get = cache.value
+    else:
+        cache = NoisyTermCache(noisy, dtype=dtype_of(args))
+        get = cache.reported  # readout errors included
     rows: list[dict[str, Any]] = []
     for term in obs.terms:
-        value = cache.value(term.paulis)
+        value = get(term.paulis)
         pauli = " ".join(f"{p}{q}" for q, p in term.paulis) or "I"
         rows.append({"coefficient": term.coefficient, "pauli": pauli, "expectation": value})
     total = float(sum(r["coefficient"] * r["expectation"] for r in rows))
@@ -128,17 +144,22 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     from tnsim.circuits.bits import format_bits
     from tnsim.queries.sampling import sample
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     width = order_width(circuit, args.bit_order)
     check_array(args.shots, max(width, circuit.num_qubits), "--shots")
-    out = sample(
-        circuit,
-        args.shots,
-        seed=args.seed,
-        block=args.block,
-        method=args.method,
-        dtype=dtype_of(args),
-    )
+    noisy = noisy_circuit(args, circuit)
+    extra: dict[str, Any] = {}
+    if noisy is None:
+        out = sample(
+            circuit,
+            args.shots,
+            seed=args.seed,
+            block=args.block,
+            method=args.method,
+            dtype=dtype_of(args),
+        )
+    else:
+        out, extra = _noisy_samples(args, noisy)
     lines = [format_bits(row) for row in from_qubit_order(out, circuit, args.bit_order)]
     if args.json:
         doc = {
@@ -146,6 +167,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
             "bit_order": args.bit_order,
             "seed": args.seed,
             "method": args.method,
+            **extra,
             "precision": args.precision,
             "samples": lines,
         }
@@ -157,6 +179,22 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     return 0
 
 
+def _noisy_samples(args: argparse.Namespace, noisy) -> tuple[Any, dict[str, Any]]:
+    """``sample --noise``: exact up to 20 qubits (or ``--method marginals``), else trajectories."""
+    from tnsim.queries.noisy_sampling import noisy_sample
+
+    method = {"gates": "trajectories", "marginals": "marginals"}.get(args.method, "auto")
+    drawn = noisy_sample(
+        noisy, args.shots, seed=args.seed, block=args.block, method=method, dtype=dtype_of(args)
+    )
+    if drawn.method == "trajectories" and not args.json:
+        print(
+            f"tnsim: {args.shots} noisy shots from {drawn.trajectories} distinct trajectories",
+            file=sys.stderr,
+        )
+    return drawn.bits, {"noisy_method": drawn.method, "trajectories": drawn.trajectories}
+
+
 # --- xeb ---
 
 
@@ -164,10 +202,27 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
     from tnsim.circuits.bitfiles import to_qubit_order
     from tnsim.queries.xeb import xeb
 
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
+    noisy = noisy_circuit(args, circuit)
+    if args.samples is None:
+        if noisy is None:
+            raise OptionError("give a SAMPLES file, or --noise FILE for the predicted fidelity")
+        return _predicted_xeb(args, noisy, {}, [])
     shown, counts = read_records(args.samples, circuit, args.bit_order)
     rows = to_qubit_order(shown, circuit, args.bit_order)
     r = xeb(circuit, rows, counts=counts, dtype=dtype_of(args))
+    if noisy is not None:
+        doc: dict[str, Any] = {
+            "fidelity": json_float(r.fidelity),
+            "standard_error": json_float(r.standard_error),
+            "num_samples": r.num_samples,
+        }
+        lines = [
+            f"linear XEB fidelity F   {_fidelity_text(r)}",
+            f"standard error          {log10_text(r.log10_standard_error)}",
+            f"samples                 {r.num_samples} ({len(rows)} distinct bitstrings)",
+        ]
+        return _predicted_xeb(args, noisy, doc, lines)
     if args.json:
         doc = {
             "fidelity": json_float(r.fidelity),
@@ -189,6 +244,32 @@ def _cmd_xeb(args: argparse.Namespace) -> int:
         f"standard error          {log10_text(r.log10_standard_error)}   "
         f"(log10 = {r.log10_standard_error:.6f})",
         f"samples                 {r.num_samples} ({len(rows)} distinct bitstrings)",
+    ]
+    write_output("\n".join(lines) + "\n", args.output)
+    emit_stats(args)
+    return 0
+
+
+def _predicted_xeb(args: argparse.Namespace, noisy, doc: dict, lines: list[str]) -> int:
+    """``xeb --noise``: the predicted fidelity (exact where narrow; digital error model)."""
+    from tnsim.queries.noisy_xeb import predict_xeb
+
+    pred = predict_xeb(noisy, dtype=dtype_of(args))
+    if args.json:
+        doc.update(
+            predicted_exact=None if pred.exact is None else json_float(pred.exact),
+            noiseless_exact=None if pred.ideal is None else json_float(pred.ideal),
+            predicted_digital=json_float(pred.digital),
+            precision=args.precision,
+        )
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
+        return 0
+    wide = "(too wide to compute)"
+    lines += [
+        f"predicted F, exact      {wide if pred.exact is None else f'{pred.exact:+.6f}'}",
+        f"noiseless F, exact      {wide if pred.ideal is None else f'{pred.ideal:+.6f}'}",
+        f"predicted F, digital    {pred.digital:+.6f}  (product of gate and readout fidelities)",
     ]
     write_output("\n".join(lines) + "\n", args.output)
     emit_stats(args)
@@ -258,8 +339,11 @@ def _cmd_amp(args: argparse.Namespace) -> int:
     if args.single:
         warn("--single is deprecated and will be removed; use --precision single")
         args.precision = "single"
-    circuit = load_circuit(args.circuit)
+    circuit = load_circuit(args.circuit, args.input)
     rows, shown = gather_bits(args, circuit)
+    noisy = noisy_circuit(args, circuit)
+    if noisy is not None:
+        return _noisy_probabilities(args, noisy, rows, shown)
     records = _amp_records(circuit, rows, shown, dtype_of(args))
     if args.json:
         doc = {
@@ -288,12 +372,40 @@ def _cmd_amp(args: argparse.Namespace) -> int:
     return 0
 
 
+def _noisy_probabilities(args: argparse.Namespace, noisy, rows, shown) -> int:
+    """``amp --noise``: a mixed state has no amplitudes; print the probabilities of reading x."""
+    from tnsim.circuits.bits import format_bits
+    from tnsim.queries.noisy import noisy_probabilities
+
+    probs = noisy_probabilities(noisy, rows, dtype=dtype_of(args))
+    pairs = [(format_bits(b), float(p)) for b, p in zip(shown, probs)]
+    if args.json:
+        doc = {
+            "num_qubits": noisy.num_qubits,
+            "bit_order": args.bit_order,
+            "precision": args.precision,
+            "units": {"probability": "<x|rho|x> of reading x, readout errors included"},
+            "probabilities": [{"bits": b, "probability": json_float(p)} for b, p in pairs],
+        }
+        emit_stats(args, doc)
+        write_output(_json_text(doc), args.output)
+        return 0
+    cells = [b if args.full_bits else bits_cell(b) for b, _ in pairs]
+    bw = max(9, *(len(c) for c in cells)) if cells else 9
+    lines = [f"# probabilities <x|rho|x> of reading x (noisy; {args.bit_order} order)"]
+    lines.append(f"{'bitstring':<{bw}}  probability")
+    lines += [f"{c:<{bw}}  {p:.12e}" for c, (_, p) in zip(cells, pairs)]
+    write_output("\n".join(lines) + "\n", args.output)
+    emit_stats(args)
+    return 0
+
+
 # --- the parsers ---
 
 
 def register(sub) -> None:
     """Add ``amp``, ``marginal``, ``expect``, ``sample`` and ``xeb`` to a subparsers object."""
-    circuit_help = "OpenQASM 2.0 file, or - to read it from standard input"
+    circuit_help = "OpenQASM 2.0 or 3 file, or - to read it from standard input"
     amp = sub.add_parser(
         "amp",
         help="amplitudes <x|C|0...0> of bitstrings",
@@ -301,6 +413,7 @@ def register(sub) -> None:
         "width), with |a|^2, log10|a| and the phase in radians.",
     )
     amp.add_argument("circuit", help=circuit_help)
+    add_input_argument(amp)
     amp.add_argument(
         "--bits", action="append", metavar="BITS", help="a bitstring (repeatable; they accumulate)"
     )
@@ -317,6 +430,7 @@ def register(sub) -> None:
         "always holds whole ones)",
     )
     amp.add_argument("--single", action="store_true", help=argparse.SUPPRESS)
+    add_noise_argument(amp, "prints the probabilities <x|rho|x> of reading x instead")
     add_query_arguments(amp)
     amp.set_defaults(func=_cmd_amp)
 
@@ -328,6 +442,7 @@ def register(sub) -> None:
         "j-th listed qubit.",
     )
     m.add_argument("circuit", help=circuit_help)
+    add_input_argument(m)
     m.add_argument(
         "--qubits",
         required=True,
@@ -335,6 +450,7 @@ def register(sub) -> None:
         metavar="LIST",
         help="e.g. 0,3,5 (repeatable; the lists accumulate in order)",
     )
+    add_noise_argument(m, "readout errors included")
     add_query_arguments(m, bit_order=False)
     m.set_defaults(func=_cmd_marginal)
 
@@ -347,6 +463,7 @@ def register(sub) -> None:
         "A value that starts with '-' is written --observable=-Z0 (or --observable -Z0).",
     )
     e.add_argument("circuit", help=circuit_help)
+    add_input_argument(e)
     e.add_argument(
         "--observable",
         action="append",
@@ -359,6 +476,7 @@ def register(sub) -> None:
         help="one term per line ('#' starts a comment; - for standard input); added to "
         "any --observable terms",
     )
+    add_noise_argument(e, "readout errors included")
     add_query_arguments(e, bit_order=False)
     e.set_defaults(func=_cmd_expect)
 
@@ -370,6 +488,7 @@ def register(sub) -> None:
         "--json; xeb and amp --bits-file read either back.",
     )
     s.add_argument("circuit", help=circuit_help)
+    add_input_argument(s)
     s.add_argument(
         "--shots",
         type=count_type("--shots", 0, 10**12),
@@ -391,6 +510,11 @@ def register(sub) -> None:
         help="gates: gate by gate from amplitudes; marginals: chain rule over light cones; "
         "auto (default): all amplitudes at once up to 20 qubits, gate by gate beyond",
     )
+    add_noise_argument(
+        s,
+        "auto: exact up to 20 qubits, else quantum trajectories; gates: trajectories; "
+        "marginals: chain rule",
+    )
     add_query_arguments(s)
     s.set_defaults(func=_cmd_sample)
 
@@ -402,10 +526,14 @@ def register(sub) -> None:
         "stays exact where F leaves the range of a float. Count files weight each bitstring.",
     )
     x.add_argument("circuit", help=circuit_help)
+    add_input_argument(x)
     x.add_argument(
         "samples",
+        nargs="?",
         help="bitstrings (- for standard input): one per line, bits,count lines (device "
-        "counts), JSON of tnsim sample --json, or a JSON object of counts",
+        "counts), JSON of tnsim sample --json, or a JSON object of counts (optional with "
+        "--noise)",
     )
+    add_noise_argument(x, "adds the predicted fidelity: exact up to 16 qubits, and digital")
     add_query_arguments(x)
     x.set_defaults(func=_cmd_xeb)

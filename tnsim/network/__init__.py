@@ -3,7 +3,9 @@
 :class:`TensorGraph` (:mod:`.graph`) is the network type; :mod:`.builders`
 turns a circuit and a query into one (amplitude, doubled); :mod:`.lightcone`
 cuts a circuit down to what a local question needs; :mod:`.batched` lays out a
-cone's doubled network once for many gate-angle variants; :mod:`.simplify` shrinks a
+cone's doubled network once for many gate-angle variants; :mod:`.noisy` builds
+noisy circuits' doubled networks (channels as superoperator tensors) and light
+cones; :mod:`.simplify` shrinks a
 network before planning; :mod:`.scaled` is the power-of-two scale that keeps
 tiny amplitudes exact.
 """

@@ -8,6 +8,7 @@ wires of qubits a gate never flips (:func:`gate_tensor`).
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Sequence
 
 import numpy as np
@@ -18,10 +19,18 @@ from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.circuits.gates import gate_matrix
 from tnsim.network.graph import TensorGraph
 
-__all__ = ["amplitude_network", "circuit_network", "doubled_network", "gate_tensor"]
+__all__ = [
+    "TENSOR_CACHE_SIZE",
+    "amplitude_network",
+    "circuit_network",
+    "doubled_network",
+    "gate_tensor",
+]
 
-
-_TENSOR_CACHE: dict[tuple, tuple[np.ndarray, tuple[bool, ...]]] = {}
+TENSOR_CACHE_SIZE = 4096
+"""Most named-gate tensors kept for reuse, least recently used dropped first (at most
+about 4 MiB: a three-qubit gate's tensor is 1 KiB), so a loop that binds new angles
+on every pass and runs ordinary queries keeps its memory bounded."""
 
 
 def _diagonal_qubits(tensor: np.ndarray, k: int) -> tuple[bool, ...]:
@@ -51,11 +60,22 @@ def gate_tensor(op: Operation) -> tuple[np.ndarray, tuple[bool, ...]]:
     >>> t.shape, diag
     ((2, 2, 2), (True, False))
     """
-    key = None if op.custom is not None else (op.name, op.params)
-    if key is not None and key in _TENSOR_CACHE:
-        return _TENSOR_CACHE[key]
-    k = len(op.qubits)
-    full = op.matrix().reshape((2,) * (2 * k))
+    if op.custom is not None:
+        return _reduce(op.custom, len(op.qubits))
+    if op.symbolic:
+        op.matrix()  # raises the error that names the unbound angles
+    return _named_tensor(op.name, op.params, len(op.qubits))
+
+
+@functools.lru_cache(maxsize=TENSOR_CACHE_SIZE)
+def _named_tensor(name: str, params: tuple, k: int) -> tuple[np.ndarray, tuple[bool, ...]]:
+    """The reduced tensor of a named gate, remembered by its name and angles."""
+    return _reduce(gate_matrix(name, params), k)
+
+
+def _reduce(matrix: np.ndarray, k: int) -> tuple[np.ndarray, tuple[bool, ...]]:
+    """The reduced tensor of a ``k``-qubit matrix and its diagonal qubits (read-only)."""
+    full = matrix.reshape((2,) * (2 * k))
     diag = _diagonal_qubits(full, k)
     sym = opt_einsum.get_symbol
     outs = [sym(j) if diag[j] else sym(k + j) for j in range(k)]
@@ -63,8 +83,6 @@ def gate_tensor(op: Operation) -> tuple[np.ndarray, tuple[bool, ...]]:
     keep = [outs[j] for j in range(k) if not diag[j]] + ins
     reduced = np.einsum(f"{''.join(outs + ins)}->{''.join(keep)}", full)
     reduced.setflags(write=False)
-    if key is not None:
-        _TENSOR_CACHE[key] = (reduced, diag)
     return reduced, diag
 
 

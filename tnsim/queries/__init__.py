@@ -8,5 +8,8 @@ observables in :mod:`.observables`), samples (:mod:`.sampling`,
 (:mod:`.contract`), contraction-cost sweeps (:mod:`.costsweep`), and
 variational workloads: energies of circuits with named angles over many values
 (:mod:`.landscape`), their gradients (:mod:`.gradients`), angle optimization
-(:mod:`.optimize`) and QAOA MaxCut (:mod:`.maxcut`).
+(:mod:`.optimize`) and QAOA MaxCut (:mod:`.maxcut`).  Noisy circuits: exact
+marginals, expectation values and bitstring probabilities (:mod:`.noisy`, small
+cones in time order by :mod:`.timeorder`), samples exact or by trajectories
+(:mod:`.noisy_sampling`) and the predicted XEB of a noisy chip (:mod:`.noisy_xeb`).
 """

@@ -1,4 +1,8 @@
-"""OpenQASM 2.0 reader and writer.
+"""OpenQASM 2.0 reader and writer; :func:`read_qasm` also reads OpenQASM 3.
+
+:func:`read_qasm` and :func:`write_qasm` are the door for both versions
+(:mod:`~tnsim.circuits.qasm.dispatch`): the header's version line chooses the
+reader, and OpenQASM 3 is read by :mod:`tnsim.circuits.qasm3`.
 
 The language is the one of Cross, Bishop, Smolin and Gambetta, "Open Quantum
 Assembly Language", arXiv:1707.03429 (2017).  tnsim reads it with its own
@@ -52,9 +56,9 @@ from __future__ import annotations
 
 from tnsim.circuits.qasm.arith import MAX_EXPR_DEPTH
 from tnsim.circuits.qasm.definitions import MAX_GATE_DEPTH
+from tnsim.circuits.qasm.dispatch import qasm_version, read_qasm, write_qasm
 from tnsim.circuits.qasm.header import EXTENSION_DEFINITIONS, QELIB1_GATES
-from tnsim.circuits.qasm.reader import DEFAULT_MAX_OPS, MAX_INCLUDE_DEPTH, read_qasm
-from tnsim.circuits.qasm.writer import write_qasm
+from tnsim.circuits.qasm.reader import DEFAULT_MAX_OPS, MAX_INCLUDE_DEPTH
 
 __all__ = [
     "DEFAULT_MAX_OPS",
@@ -63,6 +67,7 @@ __all__ = [
     "MAX_GATE_DEPTH",
     "MAX_INCLUDE_DEPTH",
     "QELIB1_GATES",
+    "qasm_version",
     "read_qasm",
     "write_qasm",
 ]

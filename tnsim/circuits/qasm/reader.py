@@ -92,7 +92,7 @@ class _Parser(StatementParser):
         self.advance()
         if float(version.text) != 2.0:
             raise self.error(
-                f"unsupported OpenQASM version {version.text}; tnsim reads OpenQASM 2.0 only",
+                f"unsupported OpenQASM version {version.text}; tnsim reads OpenQASM 2.0 and 3",
                 version,
             )
         self.expect(";", "after the OPENQASM header")

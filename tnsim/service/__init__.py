@@ -1,0 +1,1 @@
+"""Doors for other tools: the job document, its runner, the local service."""
