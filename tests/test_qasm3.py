@@ -799,8 +799,15 @@ def test_gate_nesting_depth_is_capped():
 
 
 def test_empty_gate_on_a_huge_register_is_cheap():
-    text = H3 + "qubit[1000000000000] q;\ngate g a { barrier a; }\ng q;\nbarrier q;\nreset q;\n"
+    text = H3 + "qubit[1000000] q;\ngate g a { barrier a; }\ng q;\nbarrier q;\nreset q;\n"
     assert read_qasm(text).ops == []
+
+
+def test_register_past_the_qubit_cap_is_refused_at_its_declaration():
+    # 10**12 qubits: refused before anything is allocated, located like every reader error.
+    text = H3 + "qubit[1000000000000] q;\n"
+    with pytest.raises(QasmError, match=r"<text>:3:\d+: register 'q' of 1,000,000,000,000"):
+        read_qasm(text)
 
 
 # ---------------------------------------------------------------------------- writer

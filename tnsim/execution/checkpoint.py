@@ -376,7 +376,7 @@ class Checkpoint:
             return
         proto = np.asarray(some.mantissa)
         empty = np.zeros((0,), proto.dtype)
-        prefix = np.asarray(sums.prefix.mantissa) if sums.prefix is not None else empty
+        prefix = np.asarray(sums.prefix.mantissa, order="C") if sums.prefix is not None else empty
         pending = np.zeros((0, *proto.shape), proto.dtype)
         if order:
             pending = np.stack([np.asarray(sums.pending[i].mantissa) for i in order])

@@ -30,6 +30,7 @@ __all__ = [
     "cache_file",
     "calibrate",
     "matmul_rate",
+    "stored_measurement",
     "stored_rates",
 ]
 
@@ -138,6 +139,33 @@ def calibrate(dtypes=(np.complex64, np.complex128), *, n: int = 384) -> dict[str
         out[dt.name] = rate
     _store(updates)
     return out
+
+
+def stored_measurement(name: str, measure, *, refresh: bool = False) -> float:
+    """A positive figure of this machine kept in the cache file beside the matmul rates.
+
+    ``measure()`` is called when the figure is missing, stale (older than
+    :data:`MAX_AGE_DAYS`), from another machine or numpy, or ``refresh`` is
+    set; every process then reads the same value, so forecasts made in
+    different processes agree.
+
+    Examples
+    --------
+    >>> stored_measurement("doc-example", lambda: 2.5, refresh=True)
+    2.5
+    """
+    key = f"{name}|{_key(np.dtype(np.complex128), 0).split('|', 1)[1]}"
+    if not refresh and key in _RATES:
+        return _RATES[key]
+    entry = None if refresh else _load().get(key)
+    if _usable(entry, time.time()):
+        assert isinstance(entry, dict)
+        value = float(entry["rate"])
+    else:
+        value = float(measure())
+        _store({key: {"rate": value, "measured": time.time()}})
+    _RATES[key] = value
+    return value
 
 
 def stored_rates() -> dict[str, dict]:

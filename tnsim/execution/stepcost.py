@@ -3,19 +3,21 @@
 A sliced contraction runs every remaining step once per slice; with
 thousands of slices of small intermediates this fixed cost -- not the FLOPs --
 can be most of the run.  :func:`step_seconds` measures it here, once per
-process (a few milliseconds): the seconds per step of contracting the slices
-of a small sliced network of tiny tensors through the executor's own code
-(:func:`tnsim.execution.slices.contract_slices`: slicing the leaves,
-the steps, rescaling, adding the slices).
+machine (a few milliseconds; kept in the cache file of the matmul rates, so
+every process forecasts alike; ``tnsim calibrate`` measures it again): the
+seconds per step of contracting the slices of a small sliced network of tiny
+tensors through the executor's own code
+(:func:`tnsim.execution.slices.contract_slices`: slicing the leaves, the
+steps, rescaling, adding the slices).
 """
 
 from __future__ import annotations
 
-import functools
 import time
 
 import numpy as np
 
+from tnsim.execution.rate import stored_measurement
 from tnsim.execution.slices import SliceJob, contract_slices
 from tnsim.execution.steps import compile_tree
 from tnsim.network.graph import TensorGraph
@@ -39,11 +41,12 @@ def _ladder(length: int, dtype) -> TensorGraph:
     return TensorGraph(arrays, indices, dict.fromkeys(labels, 2), (), 0, np.dtype(dtype))
 
 
-def step_seconds(dtype=np.complex128) -> float:
+def step_seconds(dtype=np.complex128, *, refresh: bool = False) -> float:
     """Seconds of fixed cost per pairwise step of a sliced contraction, measured here.
 
     Best of five runs over the 8 slices of a 120-tensor network (about a
-    thousand steps in all); measured once per process and dtype.
+    thousand steps in all); measured once per machine and dtype and kept with
+    the matmul rates (:func:`tnsim.execution.rate.stored_measurement`).
 
     Examples
     --------
@@ -52,10 +55,10 @@ def step_seconds(dtype=np.complex128) -> float:
     >>> step_seconds() == step_seconds("complex128")
     True
     """
-    return _measure(np.dtype(dtype).name)
+    name = np.dtype(dtype).name
+    return stored_measurement(f"step-seconds-{name}", lambda: _measure(name), refresh=refresh)
 
 
-@functools.lru_cache(maxsize=4)
 def _measure(dtype: str) -> float:
     network = _ladder(60, np.dtype(dtype))  # 120 tensors
     tree = greedy_tree(network.indices, network.output, network.size)

@@ -34,6 +34,7 @@ import numbers
 
 import numpy as np
 
+from tnsim.circuits.circuit import MAX_QUBITS
 from tnsim.circuits.parameters import AngleExpr, angle
 from tnsim.circuits.qasm.lexer import Token, describe
 from tnsim.circuits.qasm3.gatedef import DefinitionParser
@@ -139,6 +140,13 @@ class DeclarationParser(DefinitionParser):
             size, _ = self.constant_int("the register size", 1)
             self.expect("]", "after the register size")
             scalar = False
+        if quantum and self.program.num_qubits + size > MAX_QUBITS:
+            raise self.error(
+                f"register '{name.text}' of {size:,} qubits makes "
+                f"{self.program.num_qubits + size:,} qubits in all; tnsim handles at most "
+                f"{MAX_QUBITS:,} (every qubit needs a tensor)",
+                name,
+            )
         if quantum:
             if self.program.hardware >= 0:
                 raise self.error(
