@@ -766,8 +766,8 @@ def nested_gates(levels: int, fanout: int) -> str:
         "a2 q;\n",
         H3 + "qubit q;\nfor int i in [0:9999] { for int j in [0:9999] { h q; } }\n",
         H3 + "qubit q;\nfor int i in [0:99999999999] { }\n",
-        H3 + "qubit[1000000000000] q;\nh q;\n",
-        H3 + "qubit[1000000000000] q;\nbit[1000000000000] c;\nc = measure q;\n",
+        H3 + "qubit[2000000000] q;\nh q;\n",
+        H3 + "qubit[2000000000] q;\nbit[2000000000] c;\nc = measure q;\n",
     ],
     ids=["definition bomb", "power bomb", "nested loops", "empty loop", "broadcast", "measure"],
 )
