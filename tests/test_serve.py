@@ -144,8 +144,14 @@ def without_timings(result: dict) -> dict:
         answer.pop("seconds")
         answer.pop("contractions")
         if answer["kind"] == "forecast":
-            # the measured rate and times; the default limit is half of the memory free now
-            for key in ("flop_rate", "seconds", "planning_seconds", "memory_limit"):
+            # the measured rates and times; the default limit is half of the memory free now
+            for key in (
+                "flop_rate",
+                "fixed_seconds",
+                "seconds",
+                "planning_seconds",
+                "memory_limit",
+            ):
                 answer["report"].pop(key)
     return out
 
