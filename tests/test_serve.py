@@ -144,15 +144,13 @@ def without_timings(result: dict) -> dict:
         answer.pop("seconds")
         answer.pop("contractions")
         if answer["kind"] == "forecast":
-            # the measured rates and times; the default limit is half of the memory free now
-            for key in (
-                "flop_rate",
-                "fixed_seconds",
-                "seconds",
-                "planning_seconds",
-                "memory_limit",
-            ):
-                answer["report"].pop(key)
+            # the measured rates and every time made from them (another process may
+            # have measured them anew); the default limit is half of the memory free now
+            report = answer["report"]
+            for key in [k for k in report if k.endswith("seconds")]:
+                report.pop(key)
+            for key in ("flop_rate", "memory_limit"):
+                report.pop(key)
     return out
 
 
