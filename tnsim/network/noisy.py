@@ -35,7 +35,7 @@ from typing import cast
 import numpy as np
 import opt_einsum
 
-from tnsim.circuits.channels import Channel, channel_from_superoperator
+from tnsim.circuits.channels import Channel, bit_flip, channel_from_superoperator
 from tnsim.circuits.circuit import Operation
 from tnsim.circuits.gates import gate_matrix
 from tnsim.circuits.noise import ChannelOp, NoisyCircuit
@@ -204,6 +204,15 @@ class NoisyIndex:
         Channel facts by channel and kept qubits.
     whole : list of ChannelFacts or None
         Facts of channel items kept on all their qubits, once looked up.
+    prefix_last : list of int
+        ``prefix_last[q]``: the last item of qubit ``q``'s *prefix*, the
+        one-qubit items before its first multi-qubit item (-1 if none).
+    prefix_key : list of int
+        ``prefix_key[q]``: equal for qubits whose prefixes are equal.
+    prefix_populations : list of numpy.ndarray
+        By prefix key: the populations ``(p0, p1)`` of the prefix's state of ``|0>``.
+    preparations : dict
+        Facts of population preparations, by prefix key and the channels folded in.
     """
 
     noisy: NoisyCircuit
@@ -216,6 +225,10 @@ class NoisyIndex:
     table: dict
     memo: dict
     whole: list
+    prefix_last: list[int]
+    prefix_key: list[int]
+    prefix_populations: list[np.ndarray]
+    preparations: dict
 
     def whole_facts(self, g: int) -> ChannelFacts:
         """Facts of channel item ``g`` kept on all its qubits (memoised in :attr:`whole`)."""
@@ -263,7 +276,11 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
     """
     gates = index_circuit(noisy.ideal_circuit())
     flips: dict[int, tuple] = {}
-    last = [-1] * noisy.num_qubits
+    n = noisy.num_qubits
+    last = [-1] * n
+    prefix: list[list] = [[] for _ in range(n)]
+    closed = [False] * n
+    prefix_last = [-1] * n
     qubits, channel, signature, symmetric, links = [], [], [], [], []
     k = 0
     for g, item in enumerate(noisy.items):
@@ -273,10 +290,12 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
                 flips[id(ch)] = (ch, _never_flips(ch))
             diag, sig, sym = flips[id(ch)][1], -1, False
             channel.append(True)
+            what = ch
         else:
             diag, sig, sym = gates.diagonal[k], gates.signature[k], gates.symmetric[k]
             k += 1
             channel.append(False)
+            what = sig
         qubits.append(item.qubits)
         signature.append(sig)
         symmetric.append(sym)
@@ -285,8 +304,58 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
             link.append((q, d, last[q]))
             last[q] = g
         links.append(tuple(link))
+        if len(item.qubits) == 1:
+            q = item.qubits[0]
+            if not closed[q]:
+                prefix[q].append((what, item))
+                prefix_last[q] = g
+        else:
+            for q in item.qubits:
+                closed[q] = True
+    prefix_key, populations = _prefix_populations(prefix)
     whole = [None] * len(qubits)
-    return NoisyIndex(noisy, qubits, channel, signature, symmetric, links, last, {}, {}, whole)
+    return NoisyIndex(
+        noisy,
+        qubits,
+        channel,
+        signature,
+        symmetric,
+        links,
+        last,
+        {},
+        {},
+        whole,
+        prefix_last,
+        prefix_key,
+        populations,
+        {},
+    )
+
+
+def _prefix_populations(prefixes: list[list]) -> tuple[list[int], list[np.ndarray]]:
+    """Number the distinct qubit prefixes; the populations of each one's state of ``|0>``.
+
+    A prefix is a list of ``(gate signature or channel, item)``; equal lists are
+    computed once.
+    """
+    keys: dict[tuple, int] = {}
+    populations: list[np.ndarray] = []
+    out = []
+    for steps in prefixes:
+        ident = tuple((True, id(w)) if isinstance(w, Channel) else (False, w) for w, _ in steps)
+        key = keys.get(ident)
+        if key is None:
+            rho = np.array([[1.0, 0.0], [0.0, 0.0]], dtype=complex)
+            for w, item in steps:
+                if isinstance(w, Channel):
+                    rho = w.apply(rho)
+                else:
+                    u = item.matrix()
+                    rho = u @ rho @ u.conj().T
+            key = keys[ident] = len(populations)
+            populations.append(np.clip(np.diagonal(rho).real, 0.0, 1.0))
+        out.append(key)
+    return out, populations
 
 
 def noisy_light_cone(
@@ -307,22 +376,21 @@ def noisy_light_cone(
     list of (int, int, tuple of int, ChannelFacts or None)
         ``(item, layer, qubits kept, facts)`` in decreasing item order; layer 1
         is the last; ``facts`` for channels (the kept qubits may be fewer
-        than the channel's).
+        than the channel's).  A population preparation (module notes) of
+        qubit ``q`` has item number ``-2 - q``.
     """
-    links, is_channel, qubits, whole = index.links, index.channel, index.qubits, index.whole
-    any_layer: dict[int, int] = {}
-    flip_layer: dict[int, int] = {}
-    barrier: dict[int, int] = {}
-    heap: list[int] = []
+    walk = _Walk(index)
+    heap = walk.heap
     for q, diag in targets.items():
-        any_layer[q] = 0
-        flip_layer[q] = -1 if diag else 0
-        if index.last[q] >= 0:
-            heap.append(-index.last[q])
+        walk.any_layer[q] = 0
+        walk.flip_layer[q] = -1 if diag else 0
+        walk.follow(q, index.last[q])
     heapq.heapify(heap)
+    links, is_channel, qubits, whole = index.links, index.channel, index.qubits, index.whole
+    any_layer, flip_layer, barrier = walk.any_layer, walk.flip_layer, walk.barrier
+    pending, cone, stop = walk.pending, walk.cone, index.prefix_last
     seen: set[int] = set()
-    cone: list = []
-    pop, push, add = heapq.heappop, heapq.heappush, seen.add
+    pop, push, add, follow = heapq.heappop, heapq.heappush, seen.add, walk.follow
     while heap:
         g = -pop(heap)
         if g in seen:
@@ -337,23 +405,40 @@ def noisy_light_cone(
                     dep = level
         if dep < 0:
             for q, _, prev in link:
-                if prev >= 0 and q in any_layer:
-                    push(heap, -prev)
+                if q in any_layer:
+                    if prev > stop[q]:
+                        push(heap, -prev)
+                    else:
+                        follow(q, prev)
             continue
         if is_channel[g]:
             if len(link) > 1:
-                _keep_channel(index, g, link, any_layer, flip_layer, barrier, cone, push, heap)
+                walk.keep_channel(g, link)
                 continue
             q, _, prev = link[0]  # a one-qubit channel on a cone qubit: kept whole
             facts = whole[g] or index.whole_facts(g)
-            layer = any_layer[q] + 1
-            cone.append((g, layer, qubits[g], facts))
-            any_layer[q] = barrier[q] = layer
-            if not facts.keeps_diagonal[0]:
-                flip_layer[q] = layer
-            if prev >= 0:
+            if flip_layer[q] < 0 and facts.keeps_diagonal[0]:
+                pending.setdefault(q, []).append((g, facts))
+            else:
+                if q in pending:
+                    walk.flush(q)
+                layer = any_layer[q] + 1
+                cone.append((g, layer, qubits[g], facts))
+                any_layer[q] = barrier[q] = layer
+                if not facts.keeps_diagonal[0]:
+                    flip_layer[q] = layer
+            if prev > stop[q]:
                 push(heap, -prev)
+            else:
+                follow(q, prev)
             continue
+        if pending and walk.flush_any(link):
+            dep = -1  # the flushed channels raised the layers: again
+            for q, d, _ in link:
+                if q in any_layer:
+                    level = flip_layer[q] if d else any_layer[q]
+                    if level > dep:
+                        dep = level
         for q, d, _ in link:
             if d and q in barrier and barrier[q] > dep:
                 dep = barrier[q]
@@ -368,38 +453,127 @@ def noisy_light_cone(
             else:
                 any_layer[q] = layer
                 flip_layer[q] = -1 if d else layer
-            if prev >= 0:
+            if prev > stop[q]:
                 push(heap, -prev)
+            else:
+                follow(q, prev)
     return cone
 
 
-def _keep_channel(index, g, link, any_layer, flip_layer, barrier, cone, push, heap) -> None:
-    """Add channel ``g`` (reduced to the cone's qubits where it can be) to ``cone``."""
-    keep = tuple([q in any_layer for q, _, _ in link])
-    facts = index.facts(g, keep)
-    if facts is None:
-        keep = (True,) * len(link)
+class _Walk:
+    """State of one noisy light-cone walk (see :func:`noisy_light_cone`).
+
+    ``any_layer[q]`` / ``flip_layer[q]``: the largest layer of the kept items on
+    cone qubit ``q`` (that flip it, or -1: the operator is diagonal there);
+    ``barrier[q]``: the layer of the last kept channel on ``q``; ``pending[q]``:
+    one-qubit channels on ``q`` held back while the operator is diagonal there
+    (module notes, population preparations).
+    """
+
+    __slots__ = ("any_layer", "barrier", "cone", "flip_layer", "heap", "index", "pending")
+
+    def __init__(self, index: NoisyIndex):
+        self.index = index
+        self.any_layer: dict[int, int] = {}
+        self.flip_layer: dict[int, int] = {}
+        self.barrier: dict[int, int] = {}
+        self.pending: dict[int, list[tuple[int, ChannelFacts]]] = {}
+        self.heap: list[int] = []
+        self.cone: list = []
+
+    def follow(self, q: int, prev: int) -> None:
+        """Go on to item ``prev`` of cone qubit ``q``; at ``q``'s prefix, maybe prepare it."""
+        index = self.index
+        if prev > index.prefix_last[q]:
+            heapq.heappush(self.heap, -prev)
+        elif self.flip_layer[q] < 0:
+            self.prepare(q)
+        elif prev >= 0:
+            heapq.heappush(self.heap, -prev)
+
+    def prepare(self, q: int) -> None:
+        """Replace ``q``'s prefix and its held-back channels by the populations they leave."""
+        index = self.index
+        held = self.pending.pop(q, ())
+        key = (index.prefix_key[q], tuple([f.signature for _, f in held]))
+        found = index.preparations.get(key, False)
+        if found is False:
+            p = index.prefix_populations[key[0]]
+            for _, facts in reversed(held):  # in time order
+                s = facts.channel.superoperator().reshape(2, 2, 2, 2)
+                p = np.einsum("aabb->ab", s).real @ p
+            found = index.preparations[key] = _preparation(float(p[1]), index.table)
+        if found is not None:
+            self.cone.append((-2 - q, self.any_layer[q] + 1, (q,), found))
+
+    def flush_any(self, link) -> bool:
+        """Flush the held-back channels of the qubits of ``link``; whether there were any."""
+        found = False
+        for q, _, _ in link:
+            if q in self.pending:
+                self.flush(q)
+                found = True
+        return found
+
+    def flush(self, q: int) -> None:
+        """Keep ``q``'s held-back channels after all: a kept item follows them on ``q``."""
+        any_layer, barrier, cone = self.any_layer, self.barrier, self.cone
+        for g, facts in self.pending.pop(q):
+            layer = any_layer[q] + 1
+            cone.append((g, layer, (q,), facts))
+            any_layer[q] = barrier[q] = layer
+
+    def keep_channel(self, g: int, link) -> None:
+        """Add channel ``g`` (reduced to the cone's qubits where it can be) to the cone."""
+        index, any_layer, flip_layer = self.index, self.any_layer, self.flip_layer
+        keep = tuple([q in any_layer for q, _, _ in link])
         facts = index.facts(g, keep)
-    layer = 0
-    for (q, _, _), k in zip(link, keep):
-        if k and q in any_layer and any_layer[q] > layer:
-            layer = any_layer[q]
-    layer += 1
-    kept = []
-    stays = iter(facts.keeps_diagonal)
-    for (q, _, prev), k in zip(link, keep):
-        if not k:
-            continue
-        kept.append(q)
-        if next(stays):
-            if q not in any_layer:
-                flip_layer[q] = -1
-        else:
-            flip_layer[q] = layer
-        any_layer[q] = barrier[q] = layer
-        if prev >= 0:
-            push(heap, -prev)
-    cone.append((g, layer, tuple(kept), facts))
+        if facts is None:
+            keep = (True,) * len(link)
+            facts = index.facts(g, keep)
+        if sum(keep) == 1:
+            q = link[keep.index(True)][0]
+            if flip_layer[q] < 0 and facts.keeps_diagonal[0]:
+                self.pending.setdefault(q, []).append((g, facts))
+                self._follow_kept(link, keep)
+                return
+        if self.pending:
+            for (q, _, _), k in zip(link, keep):
+                if k and q in self.pending:
+                    self.flush(q)
+        layer = 0
+        for (q, _, _), k in zip(link, keep):
+            if k and q in any_layer and any_layer[q] > layer:
+                layer = any_layer[q]
+        layer += 1
+        kept = []
+        stays = iter(facts.keeps_diagonal)
+        for (q, _, _), k in zip(link, keep):
+            if not k:
+                continue
+            kept.append(q)
+            if next(stays):
+                if q not in any_layer:
+                    flip_layer[q] = -1
+            else:
+                flip_layer[q] = layer
+            any_layer[q] = self.barrier[q] = layer
+        self._follow_kept(link, keep)
+        self.cone.append((g, layer, tuple(kept), facts))
+
+    def _follow_kept(self, link, keep) -> None:
+        for (q, _, prev), k in zip(link, keep):
+            if k:
+                self.follow(q, prev)
+
+
+def _preparation(p1: float, table: dict) -> ChannelFacts | None:
+    """Facts of the channel that takes ``|0>`` to populations ``(1 - p1, p1)`` (a bit flip)."""
+    p1 = min(max(p1, 0.0), 1.0)
+    if p1 < 1e-15:
+        return None
+    channel = bit_flip(p1)
+    return _facts(channel, channel.superoperator(), table)
 
 
 def canonical_noisy_cone(
