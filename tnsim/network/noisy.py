@@ -36,7 +36,7 @@ import numpy as np
 import opt_einsum
 
 from tnsim.circuits.channels import Channel, bit_flip, channel_from_superoperator
-from tnsim.circuits.circuit import Operation
+from tnsim.circuits.circuit import Circuit, Operation
 from tnsim.circuits.gates import gate_matrix
 from tnsim.circuits.noise import ChannelOp, NoisyCircuit
 from tnsim.network.builders import gate_tensor
@@ -45,7 +45,9 @@ from tnsim.network.lightcone import index_circuit
 
 __all__ = [
     "ChannelFacts",
+    "Facts",
     "NoisyIndex",
+    "UnitFacts",
     "canonical_noisy_cone",
     "channel_facts",
     "channel_tensor",
@@ -176,9 +178,41 @@ def channel_facts(channel: Channel, keep: tuple[bool, ...], table: dict) -> Chan
     return _facts(channel_from_superoperator(reduced, channel.name), reduced, table)
 
 
+@dataclass(eq=False)
+class UnitFacts:
+    """A kept gate with the kept channels that follow it on its qubits, as one cone item.
+
+    Attributes
+    ----------
+    parts : tuple of (tuple of int, ChannelFacts)
+        Each kept channel, in circuit order: its kept qubits as positions in
+        the gate's qubits, and its facts (reduced when it keeps fewer qubits).
+    signature : int
+        Equal for equal gates with equal parts (numbered with the channels' signatures).
+    symmetric : bool
+        A symmetric two-qubit gate whose parts, mirrored, are those of :attr:`swapped`.
+    swapped : UnitFacts or None
+        The same item with the gate's two qubits listed the other way round.
+    """
+
+    parts: tuple[tuple[tuple[int, ...], ChannelFacts], ...]
+    signature: int
+    symmetric: bool = False
+    swapped: UnitFacts | None = None
+
+
+Facts = ChannelFacts | UnitFacts
+"""What a cone item carries besides its gate: channel facts or unit facts."""
+
+
 @dataclass(frozen=True)
 class NoisyIndex:
     """Per-circuit tables that noisy light-cone walks read (built once per noisy circuit).
+
+    The walk visits *nodes*: a gate together with the channels right after it
+    on its qubits (its *parts*: each channel acts on some of the gate's qubits
+    and follows the gate, or an earlier part, on every qubit it acts on), or a
+    channel that follows no gate so.  A node is numbered by its first item.
 
     Attributes
     ----------
@@ -192,27 +226,36 @@ class NoisyIndex:
         Gates: equal for equal gates (channels: -1; see :attr:`ChannelFacts.signature`).
     symmetric : list of bool
         Two-qubit gates unchanged by swapping their qubits.
+    flags : list of tuple of bool
+        ``flags[g][j]``: item ``g`` never flips the bit of its ``j``-th qubit (a
+        gate diagonal there; a channel none of whose Kraus operators flips it).
+    parts : list of tuple of int
+        ``parts[g]``: the channels of the node of gate ``g`` (empty for other items).
     links : list of tuple of (int, bool, int)
-        ``links[g][j]``: the ``j``-th qubit of item ``g``, whether ``g`` never
-        flips its bit (a gate diagonal there; a channel none of whose Kraus
-        operators flips it), and the previous item on that qubit (-1 if none).
+        For a node ``g``: ``links[g][j]`` is its ``j``-th qubit, whether no item
+        of the node flips that qubit's bit, and the previous node on that qubit
+        (-1 if none); empty for parts.
     last : list of int
-        ``last[q]``: the last item on qubit ``q`` (-1 if none).
+        ``last[q]``: the last node on qubit ``q`` (-1 if none).
     table : dict
-        Signature numbering of channels.
+        Signature numbering of channels and units.
     memo : dict
-        Channel facts by channel and kept qubits.
+        Channel facts by channel and kept qubits; unit facts by gate and parts.
     whole : list of ChannelFacts or None
         Facts of channel items kept on all their qubits, once looked up.
     prefix_last : list of int
-        ``prefix_last[q]``: the last item of qubit ``q``'s *prefix*, the
-        one-qubit items before its first multi-qubit item (-1 if none).
+        ``prefix_last[q]``: the last node of qubit ``q``'s *prefix*, the
+        one-qubit nodes before its first multi-qubit node (-1 if none).
     prefix_key : list of int
         ``prefix_key[q]``: equal for qubits whose prefixes are equal.
     prefix_populations : list of numpy.ndarray
         By prefix key: the populations ``(p0, p1)`` of the prefix's state of ``|0>``.
     preparations : dict
         Facts of population preparations, by prefix key and the channels folded in.
+    node_type : list of int
+        Equal for gate nodes with equal gates and equal parts at equal positions.
+    plans : dict
+        What a walk does with a node, by node type and the state of its qubits.
     """
 
     noisy: NoisyCircuit
@@ -220,6 +263,8 @@ class NoisyIndex:
     channel: list[bool]
     signature: list[int]
     symmetric: list[bool]
+    flags: list[tuple[bool, ...]]
+    parts: list[tuple[int, ...]]
     links: list[tuple[tuple[int, bool, int], ...]]
     last: list[int]
     table: dict
@@ -229,6 +274,8 @@ class NoisyIndex:
     prefix_key: list[int]
     prefix_populations: list[np.ndarray]
     preparations: dict
+    node_type: list[int]
+    plans: dict
 
     def whole_facts(self, g: int) -> ChannelFacts:
         """Facts of channel item ``g`` kept on all its qubits (memoised in :attr:`whole`)."""
@@ -246,6 +293,31 @@ class NoisyIndex:
         if found is None:
             found = self.memo[key] = (channel, channel_facts(channel, keep, self.table))
         return found[1]
+
+    def unit(self, g: int, parts: tuple[tuple[tuple[int, ...], ChannelFacts], ...]) -> UnitFacts:
+        """Memoised facts of gate item ``g`` kept with ``parts`` (see :class:`UnitFacts`)."""
+        key = (self.signature[g], tuple([(pos, f.signature) for pos, f in parts]))
+        found = self.memo.get(key)
+        if found is None:
+            found = self.memo[key] = _unit(self, key, parts, self.symmetric[g])
+        return found
+
+
+def _unit(index: NoisyIndex, key: tuple, parts, symmetric: bool) -> UnitFacts:
+    table = index.table
+    unit = UnitFacts(parts, table.setdefault(("unit", *key), len(table)))
+    if symmetric and all(len(pos) == 1 or f.symmetric for pos, f in parts):
+        # Mirrored: position j becomes 1 - j; a symmetric two-qubit part is the same
+        # channel either way round (listed in increasing positions).
+        mirror = tuple((tuple(sorted(1 - j for j in pos)), f) for pos, f in parts)
+        mkey = (key[0], tuple([(pos, f.signature) for pos, f in mirror]))
+        other = index.memo.get(mkey)
+        if other is None:
+            other = UnitFacts(mirror, table.setdefault(("unit", *mkey), len(table)))
+            index.memo[mkey] = other
+        unit.symmetric = other.symmetric = True
+        unit.swapped, other.swapped = other, unit
+    return unit
 
 
 def _never_flips(channel: Channel) -> tuple[bool, ...]:
@@ -271,65 +343,115 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
     >>> from tnsim.circuits.noise import NoiseModel
     >>> noisy = NoiseModel().after_gates(phase_flip(0.1)).apply(Circuit(2).h(0).cz(0, 1))
     >>> idx = index_noisy(noisy)
-    >>> idx.channel, idx.links[1]
-    ([False, True, False, True, True], ((0, True, 0),))
+    >>> idx.channel, idx.parts[0], idx.parts[2], idx.links[2]
+    ([False, True, False, True, True], (1,), (3, 4), ((0, True, 0), (1, True, -1)))
     """
-    gates = index_circuit(noisy.ideal_circuit())
+    table: dict = {}
     flips: dict[int, tuple] = {}
     n = noisy.num_qubits
     last = [-1] * n
     prefix: list[list] = [[] for _ in range(n)]
     closed = [False] * n
     prefix_last = [-1] * n
-    qubits, channel, signature, symmetric, links = [], [], [], [], []
-    k = 0
+    qubits: list[tuple[int, ...]] = []
+    channel: list[bool] = []
+    signature: list[int] = []
+    symmetric: list[bool] = []
+    flags: list[tuple[bool, ...]] = []
+    parts: list[list[int]] = []
+    node_flags: dict[int, list[bool]] = {}
+    node_prev: dict[int, tuple[int, ...]] = {}
     for g, item in enumerate(noisy.items):
+        qs = item.qubits
         if isinstance(item, ChannelOp):
-            ch = item.channel
-            if id(ch) not in flips:
-                flips[id(ch)] = (ch, _never_flips(ch))
-            diag, sig, sym = flips[id(ch)][1], -1, False
-            channel.append(True)
-            what = ch
+            what: Channel | int = item.channel
+            found = flips.get(id(what))
+            if found is None:
+                found = flips[id(what)] = (what, _never_flips(what))
+            flag, sig, sym, is_channel = found[1], -1, False, True
         else:
-            diag, sig, sym = gates.diagonal[k], gates.signature[k], gates.symmetric[k]
-            k += 1
-            channel.append(False)
-            what = sig
-        qubits.append(item.qubits)
+            key = (
+                (item.name, item.params)
+                if item.custom is None
+                else (item.name, item.custom.tobytes())
+            )
+            facts = table.get(key)
+            if facts is None:
+                facts = table[key] = _gate_facts(item, len(table))
+            sig, flag, sym = facts
+            what, is_channel = sig, False
+        qubits.append(qs)
+        channel.append(is_channel)
         signature.append(sig)
         symmetric.append(sym)
-        link = []
-        for q, d in zip(item.qubits, diag):
-            link.append((q, d, last[q]))
-            last[q] = g
-        links.append(tuple(link))
-        if len(item.qubits) == 1:
-            q = item.qubits[0]
-            if not closed[q]:
-                prefix[q].append((what, item))
-                prefix_last[q] = g
+        flags.append(flag)
+        parts.append([])
+        head = last[qs[0]]
+        # A channel right after a gate on all its qubits (last[q] == head: head acts on q).
+        if is_channel and head >= 0 and not channel[head] and all(last[q] == head for q in qs):
+            parts[head].append(g)
+            if not all(flag):
+                mine, on = node_flags[head], qubits[head]
+                for q, f in zip(qs, flag):
+                    if not f:
+                        mine[on.index(q)] = False
         else:
-            for q in item.qubits:
+            node_flags[g] = list(flag)
+            node_prev[g] = tuple([last[q] for q in qs])
+            head = g
+            for q in qs:
+                last[q] = g
+        if len(qs) == 1:
+            if not closed[qs[0]]:
+                prefix[qs[0]].append((what, item))
+                prefix_last[qs[0]] = head
+        else:
+            for q in qs:
                 closed[q] = True
+    links: list[tuple[tuple[int, bool, int], ...]] = [()] * len(qubits)
+    for g, f in node_flags.items():
+        links[g] = tuple(zip(qubits[g], f, node_prev[g]))
     prefix_key, populations = _prefix_populations(prefix)
-    whole = [None] * len(qubits)
+    types: dict[tuple, int] = {}
+    node_type = [-1] * len(qubits)
+    for g, mine in enumerate(parts):
+        if mine:
+            shape = tuple(
+                (
+                    id(cast(ChannelOp, noisy.items[c]).channel),
+                    tuple(map(qubits[g].index, qubits[c])),
+                )
+                for c in mine
+            )
+            node_type[g] = types.setdefault((signature[g], shape), len(types))
     return NoisyIndex(
         noisy,
         qubits,
         channel,
         signature,
         symmetric,
+        flags,
+        [tuple(p) for p in parts],
         links,
         last,
         {},
         {},
-        whole,
+        [None] * len(qubits),
         prefix_last,
         prefix_key,
         populations,
         {},
+        node_type,
+        {},
     )
+
+
+def _gate_facts(op: Operation, number: int) -> tuple[int, tuple[bool, ...], bool]:
+    """Signature ``number``, diagonal flags and symmetry of a gate (those of the ideal index)."""
+    alone = Circuit(len(op.qubits))
+    alone.ops = [Operation(op.name, tuple(range(len(op.qubits))), op.params, op.custom)]
+    facts = index_circuit(alone)
+    return number, facts.diagonal[0], facts.symmetric[0]
 
 
 def _prefix_populations(prefixes: list[list]) -> tuple[list[int], list[np.ndarray]]:
@@ -360,7 +482,7 @@ def _prefix_populations(prefixes: list[list]) -> tuple[list[int], list[np.ndarra
 
 def noisy_light_cone(
     index: NoisyIndex, targets: Mapping[int, bool]
-) -> list[tuple[int, int, tuple[int, ...], ChannelFacts | None]]:
+) -> list[tuple[int, int, tuple[int, ...], Facts | None]]:
     """Items of the backward light cone of ``targets``, with layers (see the module notes).
 
     Parameters
@@ -373,11 +495,13 @@ def noisy_light_cone(
 
     Returns
     -------
-    list of (int, int, tuple of int, ChannelFacts or None)
-        ``(item, layer, qubits kept, facts)`` in decreasing item order; layer 1
-        is the last; ``facts`` for channels (the kept qubits may be fewer
-        than the channel's).  A population preparation (module notes) of
-        qubit ``q`` has item number ``-2 - q``.
+    list of (int, int, tuple of int, facts)
+        ``(item, layer, qubits kept, facts)``; layer 1 is the last.  ``facts``
+        is ``None`` for a gate kept alone, :class:`UnitFacts` for a gate kept
+        with some of its node's channels (item: the gate), and
+        :class:`ChannelFacts` for a channel kept without its gate (the kept
+        qubits may be fewer than the channel's).  A population preparation
+        (module notes) of qubit ``q`` has item number ``-2 - q``.
     """
     walk = _Walk(index)
     heap = walk.heap
@@ -386,11 +510,11 @@ def noisy_light_cone(
         walk.flip_layer[q] = -1 if diag else 0
         walk.follow(q, index.last[q])
     heapq.heapify(heap)
-    links, is_channel, qubits, whole = index.links, index.channel, index.qubits, index.whole
+    links, is_channel, qubits, parts = index.links, index.channel, index.qubits, index.parts
     any_layer, flip_layer, barrier = walk.any_layer, walk.flip_layer, walk.barrier
-    pending, cone, stop = walk.pending, walk.cone, index.prefix_last
+    pending, cone, stop, follow = walk.pending, walk.cone, index.prefix_last, walk.follow
     seen: set[int] = set()
-    pop, push, add, follow = heapq.heappop, heapq.heappush, seen.add, walk.follow
+    pop, push, add = heapq.heappop, heapq.heappush, seen.add
     while heap:
         g = -pop(heap)
         if g in seen:
@@ -403,60 +527,34 @@ def noisy_light_cone(
                 level = flip_layer[q] if d else any_layer[q]
                 if level > dep:
                     dep = level
-        if dep < 0:
-            for q, _, prev in link:
-                if q in any_layer:
-                    if prev > stop[q]:
-                        push(heap, -prev)
+        if dep >= 0:
+            if is_channel[g]:
+                walk.channel(g)
+            elif parts[g]:
+                walk.unit(g, link)
+            else:
+                if pending and walk.flush_any(link):
+                    dep = walk.depth(link)  # the flushed channels raised the layers
+                for q, d, _ in link:
+                    if d and q in barrier and barrier[q] > dep:
+                        dep = barrier[q]
+                layer = dep + 1
+                cone.append((g, layer, qubits[g], None))
+                for q, d, _ in link:
+                    if q in any_layer:
+                        if layer > any_layer[q]:
+                            any_layer[q] = layer
+                        if not d and layer > flip_layer[q]:
+                            flip_layer[q] = layer
                     else:
-                        follow(q, prev)
-            continue
-        if is_channel[g]:
-            if len(link) > 1:
-                walk.keep_channel(g, link)
-                continue
-            q, _, prev = link[0]  # a one-qubit channel on a cone qubit: kept whole
-            facts = whole[g] or index.whole_facts(g)
-            if flip_layer[q] < 0 and facts.keeps_diagonal[0]:
-                pending.setdefault(q, []).append((g, facts))
-            else:
-                if q in pending:
-                    walk.flush(q)
-                layer = any_layer[q] + 1
-                cone.append((g, layer, qubits[g], facts))
-                any_layer[q] = barrier[q] = layer
-                if not facts.keeps_diagonal[0]:
-                    flip_layer[q] = layer
-            if prev > stop[q]:
-                push(heap, -prev)
-            else:
-                follow(q, prev)
-            continue
-        if pending and walk.flush_any(link):
-            dep = -1  # the flushed channels raised the layers: again
-            for q, d, _ in link:
-                if q in any_layer:
-                    level = flip_layer[q] if d else any_layer[q]
-                    if level > dep:
-                        dep = level
-        for q, d, _ in link:
-            if d and q in barrier and barrier[q] > dep:
-                dep = barrier[q]
-        layer = dep + 1
-        cone.append((g, layer, qubits[g], None))
-        for q, d, prev in link:
+                        any_layer[q] = layer
+                        flip_layer[q] = -1 if d else layer
+        for q, _, prev in link:
             if q in any_layer:
-                if layer > any_layer[q]:
-                    any_layer[q] = layer
-                if not d and layer > flip_layer[q]:
-                    flip_layer[q] = layer
-            else:
-                any_layer[q] = layer
-                flip_layer[q] = -1 if d else layer
-            if prev > stop[q]:
-                push(heap, -prev)
-            else:
-                follow(q, prev)
+                if prev > stop[q]:
+                    push(heap, -prev)
+                else:
+                    follow(q, prev)
     return cone
 
 
@@ -481,10 +579,20 @@ class _Walk:
         self.heap: list[int] = []
         self.cone: list = []
 
+    def depth(self, link) -> int:
+        """The largest layer a gate with ``link`` does not commute with (-1: none)."""
+        any_layer, flip_layer = self.any_layer, self.flip_layer
+        dep = -1
+        for q, d, *_ in link:
+            if q in any_layer:
+                level = flip_layer[q] if d else any_layer[q]
+                if level > dep:
+                    dep = level
+        return dep
+
     def follow(self, q: int, prev: int) -> None:
-        """Go on to item ``prev`` of cone qubit ``q``; at ``q``'s prefix, maybe prepare it."""
-        index = self.index
-        if prev > index.prefix_last[q]:
+        """Go on to node ``prev`` of cone qubit ``q``; at ``q``'s prefix, maybe prepare it."""
+        if prev > self.index.prefix_last[q]:
             heapq.heappush(self.heap, -prev)
         elif self.flip_layer[q] < 0:
             self.prepare(q)
@@ -509,7 +617,7 @@ class _Walk:
     def flush_any(self, link) -> bool:
         """Flush the held-back channels of the qubits of ``link``; whether there were any."""
         found = False
-        for q, _, _ in link:
+        for q, *_ in link:
             if q in self.pending:
                 self.flush(q)
                 found = True
@@ -523,48 +631,188 @@ class _Walk:
             cone.append((g, layer, (q,), facts))
             any_layer[q] = barrier[q] = layer
 
-    def keep_channel(self, g: int, link) -> None:
-        """Add channel ``g`` (reduced to the cone's qubits where it can be) to the cone."""
-        index, any_layer, flip_layer = self.index, self.any_layer, self.flip_layer
-        keep = tuple([q in any_layer for q, _, _ in link])
-        facts = index.facts(g, keep)
-        if facts is None:
-            keep = (True,) * len(link)
-            facts = index.facts(g, keep)
-        if sum(keep) == 1:
-            q = link[keep.index(True)][0]
-            if flip_layer[q] < 0 and facts.keeps_diagonal[0]:
-                self.pending.setdefault(q, []).append((g, facts))
-                self._follow_kept(link, keep)
-                return
-        if self.pending:
-            for (q, _, _), k in zip(link, keep):
-                if k and q in self.pending:
-                    self.flush(q)
+    def channel(self, g: int) -> None:
+        """Visit channel item ``g``: drop it, hold it back, or keep it (reduced if it can be)."""
+        decided = _decide_channel(self.index, g, self.any_layer, self.flip_layer)
+        if decided is not None:
+            self.keep(g, *decided)
+
+    def keep(self, g: int, kept: tuple[int, ...], facts: ChannelFacts, held: bool) -> None:
+        """Keep channel item ``g`` on ``kept`` alone, or hold it back (``held``)."""
+        any_layer, flip_layer, pending = self.any_layer, self.flip_layer, self.pending
+        if held:
+            pending.setdefault(kept[0], []).append((g, facts))
+            return
         layer = 0
-        for (q, _, _), k in zip(link, keep):
-            if k and q in any_layer and any_layer[q] > layer:
+        for q in kept:
+            if q in pending:
+                self.flush(q)
+            if q in any_layer and any_layer[q] > layer:
                 layer = any_layer[q]
         layer += 1
-        kept = []
-        stays = iter(facts.keeps_diagonal)
-        for (q, _, _), k in zip(link, keep):
-            if not k:
-                continue
-            kept.append(q)
-            if next(stays):
+        for q, stays in zip(kept, facts.keeps_diagonal):
+            if stays:
                 if q not in any_layer:
                     flip_layer[q] = -1
             else:
                 flip_layer[q] = layer
             any_layer[q] = self.barrier[q] = layer
-        self._follow_kept(link, keep)
-        self.cone.append((g, layer, tuple(kept), facts))
+        self.cone.append((g, layer, kept, facts))
 
-    def _follow_kept(self, link, keep) -> None:
-        for (q, _, prev), k in zip(link, keep):
-            if k:
-                self.follow(q, prev)
+    def unit(self, g: int, link) -> None:
+        """Visit gate ``g`` with its node's channels (see :class:`_NodePlan`)."""
+        index, any_layer, flip_layer = self.index, self.any_layer, self.flip_layer
+        pattern = tuple(
+            [0 if q not in any_layer else 1 if flip_layer[q] < 0 else 2 for q, _, _ in link]
+        )
+        key = (index.node_type[g], pattern)
+        plan = index.plans.get(key)
+        if plan is None:
+            plan = index.plans[key] = _plan_node(index, g, pattern)
+        if not plan.gate:
+            mine = index.parts[g]
+            for j, kept, facts, held in plan.alone:
+                qs = index.qubits[mine[j]]
+                self.keep(mine[j], tuple([qs[i] for i in kept]), facts, held)
+            return
+        qs = index.qubits[g]
+        if self.pending:
+            for q in qs:
+                if q in self.pending:
+                    self.flush(q)
+        barrier = self.barrier
+        dep = 0
+        for q, strict, d in zip(qs, plan.strict, index.flags[g]):
+            if q in any_layer:
+                level = any_layer[q] if strict else flip_layer[q]
+                if d and q in barrier and barrier[q] > level:
+                    level = barrier[q]
+                if level > dep:
+                    dep = level
+        layer = dep + 1
+        for q, flips, inner in zip(qs, plan.flips, plan.inner):
+            if q in any_layer:
+                if layer > any_layer[q]:
+                    any_layer[q] = layer
+                if flips and layer > flip_layer[q]:
+                    flip_layer[q] = layer
+            else:
+                any_layer[q] = layer
+                flip_layer[q] = layer if flips else -1
+            if inner:
+                barrier[q] = layer
+        self.cone.append((g, layer, qs, plan.unit))
+
+
+def _decide_channel(
+    index: NoisyIndex, g: int, any_layer: Mapping[int, int], flip_layer: Mapping[int, int]
+) -> tuple[tuple[int, ...], ChannelFacts, bool] | None:
+    """Whether channel item ``g`` is dropped (``None``), else its kept qubits, facts, held back.
+
+    Dropped: it touches no cone qubit, or never flips the cone qubits whose
+    operator is diagonal and touches no other (module notes).  Reduced to the
+    cone's qubits when the others send no signal, else kept whole.  Held back:
+    kept on one qubit whose operator is diagonal, and keeping it diagonal.
+    """
+    qs = index.qubits[g]
+    dep = -1
+    for q, d in zip(qs, index.flags[g]):
+        if q in any_layer:
+            level = flip_layer[q] if d else any_layer[q]
+            if level > dep:
+                dep = level
+    if dep < 0:
+        return None
+    if len(qs) == 1:
+        facts = index.whole[g] or index.whole_facts(g)
+        kept = qs
+    else:
+        keep = tuple([q in any_layer for q in qs])
+        found = index.facts(g, keep)
+        if found is None:
+            keep = (True,) * len(qs)
+            found = index.facts(g, keep)
+        facts = cast(ChannelFacts, found)
+        kept = tuple([q for q, k in zip(qs, keep) if k])
+    held = len(kept) == 1 and flip_layer.get(kept[0], 0) < 0 and facts.keeps_diagonal[0]
+    return kept, facts, held
+
+
+@dataclass
+class _NodePlan:
+    """What a walk does with a gate node whose qubits are in a given state (a *pattern*).
+
+    The pattern gives per qubit: 0 outside the cone, 1 in it with a diagonal
+    operator, 2 in it otherwise.  The node's channels are decided last first,
+    then the gate, exactly as items of their own would be, on a walk state
+    with that pattern (which parts are kept, how reduced, whether the gate is
+    kept depend on nothing else).
+
+    Attributes
+    ----------
+    gate : bool
+        The gate is kept.  Then the channels kept with it (held back ones too:
+        the gate would flush them) are the parts of one item, :attr:`unit`
+        (``None`` if none is kept), at one layer: 1 + the largest layer on its
+        qubits it must follow (:attr:`strict` qubits, where a part acts: every
+        kept item there; the others: as the gate alone).  Its part qubits'
+        barrier rises to that layer: more order than the items alone would
+        have, never less.
+    unit : UnitFacts or None
+    strict, flips, inner : tuple of bool
+        Per gate qubit: a part acts there or the gate flips it; the item
+        may leave the operator non-diagonal there; a part acts there.
+    alone : list of (int, tuple of int, ChannelFacts, bool)
+        When the gate is dropped: the kept channels, last first (part number,
+        kept positions, facts, held back).
+    """
+
+    gate: bool
+    unit: UnitFacts | None
+    strict: tuple[bool, ...]
+    flips: tuple[bool, ...]
+    inner: tuple[bool, ...]
+    alone: list[tuple[int, tuple[int, ...], ChannelFacts, bool]]
+
+
+def _plan_node(index: NoisyIndex, g: int, pattern: tuple[int, ...]) -> _NodePlan:
+    """The plan of gate node ``g`` for ``pattern`` (see :class:`_NodePlan`)."""
+    qs = index.qubits[g]
+    any_layer = {q: 0 for q, s in zip(qs, pattern) if s}
+    flip_layer = {q: (-1 if s == 1 else 0) for q, s in zip(qs, pattern) if s}
+    mine = index.parts[g]
+    alone = []
+    for j in range(len(mine) - 1, -1, -1):
+        decided = _decide_channel(index, mine[j], any_layer, flip_layer)
+        if decided is None:
+            continue
+        kept, facts, held = decided
+        for q, stays in zip(kept, facts.keeps_diagonal):
+            any_layer[q] = 1
+            if not stays:
+                flip_layer[q] = 1
+            elif q not in flip_layer:
+                flip_layer[q] = -1
+        own = index.qubits[mine[j]]
+        alone.append((j, tuple([own.index(q) for q in kept]), facts, held))
+    gate = False
+    for q, d in zip(qs, index.flags[g]):
+        if q in any_layer and (flip_layer[q] if d else any_layer[q]) >= 0:
+            gate = True
+    flips = [not d for d in index.flags[g]]
+    inner = [False] * len(qs)
+    parts = []
+    for j, positions, facts, _ in sorted(alone):
+        own = index.qubits[mine[j]]
+        at = tuple([qs.index(own[i]) for i in positions])
+        parts.append((at, facts))
+        for i, stays in zip(at, facts.keeps_diagonal):
+            inner[i] = True
+            if not stays:
+                flips[i] = True
+    unit = index.unit(g, tuple(parts)) if gate and parts else None
+    strict = tuple([not d or b for d, b in zip(index.flags[g], inner)])
+    return _NodePlan(gate, unit, strict, tuple(flips), tuple(inner), alone)
 
 
 def _preparation(p1: float, table: dict) -> ChannelFacts | None:
@@ -578,7 +826,7 @@ def _preparation(p1: float, table: dict) -> ChannelFacts | None:
 
 def canonical_noisy_cone(
     index: NoisyIndex, targets: Sequence[tuple[int, str]]
-) -> tuple[tuple, list[tuple[int, tuple[int, ...], ChannelFacts | None]], list[int]]:
+) -> tuple[tuple, list[tuple[int, tuple[int, ...], Facts | None]], list[int]]:
     """Light cone of a Pauli string or projector in a noisy circuit, in canonical form.
 
     As :func:`tnsim.network.lightcone.canonical_cone`: equal keys mean equal
@@ -587,9 +835,9 @@ def canonical_noisy_cone(
     Returns
     -------
     key : tuple
-    items : list of (int, tuple of int, ChannelFacts or None)
+    items : list of (int, tuple of int, facts)
         The cone's items in an order equal to the circuit's, each with its kept
-        qubits renamed ``0, 1, ...`` and, for channels, their facts.
+        qubits renamed ``0, 1, ...`` and its facts (see :func:`noisy_light_cone`).
     qubits : list of int
         ``qubits[local]`` is the circuit qubit renamed ``local``; targets first.
 
@@ -626,11 +874,16 @@ def canonical_noisy_cone(
         for g, _, qs, facts in cone[start:stop]:
             ranks = tuple([get(q, _BIG) for q in qs])
             if facts is None:
-                sig, sym = signature[g], symmetric[g]
+                sym = symmetric[g]
+                if sym and ranks[1] < ranks[0]:
+                    qs, ranks = (qs[1], qs[0]), (ranks[1], ranks[0])
+                sig = signature[g]
             else:
-                sig, sym = -1 - facts.signature, facts.symmetric
-            if sym and ranks[1] < ranks[0]:
-                qs, ranks = (qs[1], qs[0]), (ranks[1], ranks[0])
+                if facts.symmetric and ranks[1] < ranks[0]:
+                    qs, ranks = (qs[1], qs[0]), (ranks[1], ranks[0])
+                    if isinstance(facts, UnitFacts):
+                        facts = facts.swapped
+                sig = -1 - facts.signature
             ranked.append((ranks, sig, g, qs, facts))
         if len(ranked) > 1:
             ranked.sort()  # item numbers are unique: qubits and facts are never compared
@@ -656,7 +909,7 @@ _LAYER = operator.itemgetter(1)
 
 def noisy_cone(
     index: NoisyIndex,
-    items: Sequence[tuple[int, tuple[int, ...], ChannelFacts | None]],
+    items: Sequence[tuple[int, tuple[int, ...], Facts | None]],
     qubits: Sequence[int],
 ) -> NoisyCircuit:
     """The cone as a noisy circuit on ``len(qubits)`` renamed qubits, with their readout.
@@ -666,9 +919,11 @@ def noisy_cone(
     source = index.noisy.items
     out: list[Operation | ChannelOp] = []
     for g, qs, facts in items:
-        if facts is None:
+        if facts is None or isinstance(facts, UnitFacts):
             op = cast(Operation, source[g])
             out.append(Operation(op.name, qs, op.params, op.custom))
+            for pos, part in facts.parts if facts is not None else ():
+                out.append(ChannelOp(part.channel, tuple([qs[j] for j in pos])))
         else:
             out.append(ChannelOp(facts.channel, qs))
     readout = {k: index.noisy.readout[q] for k, q in enumerate(qubits) if q in index.noisy.readout}
