@@ -254,8 +254,9 @@ class NoisyIndex:
         Facts of population preparations, by prefix key and the channels folded in.
     node_type : list of int
         Equal for gate nodes with equal gates and equal parts at equal positions.
-    plans : dict
-        What a walk does with a node, by node type and the state of its qubits.
+    plans : list of dict or None
+        ``plans[g]``: what a walk does with gate node ``g`` (with parts), by the
+        state of its qubits; one dict per node type.
     """
 
     noisy: NoisyCircuit
@@ -275,7 +276,7 @@ class NoisyIndex:
     prefix_populations: list[np.ndarray]
     preparations: dict
     node_type: list[int]
-    plans: dict
+    plans: list[dict | None]
 
     def whole_facts(self, g: int) -> ChannelFacts:
         """Facts of channel item ``g`` kept on all its qubits (memoised in :attr:`whole`)."""
@@ -348,59 +349,64 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
     """
     table: dict = {}
     flips: dict[int, tuple] = {}
-    n = noisy.num_qubits
+    items = noisy.items
+    n, m = noisy.num_qubits, len(items)
     last = [-1] * n
     prefix: list[list] = [[] for _ in range(n)]
     closed = [False] * n
     prefix_last = [-1] * n
-    qubits: list[tuple[int, ...]] = []
-    channel: list[bool] = []
-    signature: list[int] = []
-    symmetric: list[bool] = []
-    flags: list[tuple[bool, ...]] = []
-    parts: list[list[int]] = []
-    node_flags: dict[int, list[bool]] = {}
-    node_prev: dict[int, tuple[int, ...]] = {}
-    for g, item in enumerate(noisy.items):
-        qs = item.qubits
-        if isinstance(item, ChannelOp):
-            what: Channel | int = item.channel
+    qubits: list[tuple[int, ...]] = [item.qubits for item in items]
+    channel = [isinstance(item, ChannelOp) for item in items]
+    signature = [-1] * m
+    symmetric = [False] * m
+    flags: list[tuple[bool, ...]] = [()] * m
+    grown: dict[int, list[int]] = {}
+    links: list[tuple[tuple[int, bool, int], ...]] = [()] * m
+    for g, item in enumerate(items):
+        qs = qubits[g]
+        if channel[g]:
+            what: Channel | int = cast(ChannelOp, item).channel
             found = flips.get(id(what))
             if found is None:
                 found = flips[id(what)] = (what, _never_flips(what))
-            flag, sig, sym, is_channel = found[1], -1, False, True
+            flags[g] = flag = found[1]
+            head = last[qs[0]]
+            # Right after a gate on all its qubits (last[q] == head: head acts on q).
+            if (
+                head >= 0
+                and not channel[head]
+                and (len(qs) == 1 or all(last[q] == head for q in qs[1:]))
+            ):
+                mine = grown.get(head)
+                if mine is None:
+                    mine = grown[head] = []
+                mine.append(g)
+                if not all(flag):
+                    link = list(links[head])
+                    for j, (q, _, prev) in enumerate(link):
+                        if q in qs and not flag[qs.index(q)]:
+                            link[j] = (q, False, prev)
+                    links[head] = tuple(link)
+            else:
+                head = -1
         else:
-            key = (
-                (item.name, item.params)
-                if item.custom is None
-                else (item.name, item.custom.tobytes())
-            )
+            op = cast(Operation, item)
+            key = (op.name, op.params) if op.custom is None else (op.name, op.custom.tobytes())
             facts = table.get(key)
             if facts is None:
-                facts = table[key] = _gate_facts(item, len(table))
-            sig, flag, sym = facts
-            what, is_channel = sig, False
-        qubits.append(qs)
-        channel.append(is_channel)
-        signature.append(sig)
-        symmetric.append(sym)
-        flags.append(flag)
-        parts.append([])
-        head = last[qs[0]]
-        # A channel right after a gate on all its qubits (last[q] == head: head acts on q).
-        if is_channel and head >= 0 and not channel[head] and all(last[q] == head for q in qs):
-            parts[head].append(g)
-            if not all(flag):
-                mine, on = node_flags[head], qubits[head]
-                for q, f in zip(qs, flag):
-                    if not f:
-                        mine[on.index(q)] = False
-        else:
-            node_flags[g] = list(flag)
-            node_prev[g] = tuple([last[q] for q in qs])
+                facts = table[key] = _gate_facts(op, len(table))
+            signature[g], flag, symmetric[g] = facts
+            flags[g] = flag
+            what, head = signature[g], -1
+        if head < 0:  # a new node
             head = g
-            for q in qs:
-                last[q] = g
+            if len(qs) == 1:
+                links[g] = ((qs[0], flag[0], last[qs[0]]),)
+                last[qs[0]] = g
+            else:
+                links[g] = tuple([(q, f, last[q]) for q, f in zip(qs, flag)])
+                for q in qs:
+                    last[q] = g
         if len(qs) == 1:
             if not closed[qs[0]]:
                 prefix[qs[0]].append((what, item))
@@ -408,22 +414,27 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
         else:
             for q in qs:
                 closed[q] = True
-    links: list[tuple[tuple[int, bool, int], ...]] = [()] * len(qubits)
-    for g, f in node_flags.items():
-        links[g] = tuple(zip(qubits[g], f, node_prev[g]))
+    parts: list[tuple[int, ...]] = [()] * m
+    for g, mine in grown.items():
+        parts[g] = tuple(mine)
     prefix_key, populations = _prefix_populations(prefix)
     types: dict[tuple, int] = {}
-    node_type = [-1] * len(qubits)
-    for g, mine in enumerate(parts):
-        if mine:
-            shape = tuple(
+    node_type = [-1] * m
+    same = [(0,), (0, 1), (0, 1, 2)]
+    for g, mine in grown.items():
+        on = qubits[g]
+        shape = tuple(
+            [
                 (
-                    id(cast(ChannelOp, noisy.items[c]).channel),
-                    tuple(map(qubits[g].index, qubits[c])),
+                    id(cast(ChannelOp, items[c]).channel),
+                    same[len(on) - 1] if qubits[c] == on else tuple(map(on.index, qubits[c])),
                 )
                 for c in mine
-            )
-            node_type[g] = types.setdefault((signature[g], shape), len(types))
+            ]
+        )
+        node_type[g] = types.setdefault((signature[g], shape), len(types))
+    by_type: list[dict] = [{} for _ in types]
+    plans = [by_type[t] if t >= 0 else None for t in node_type]
     return NoisyIndex(
         noisy,
         qubits,
@@ -431,7 +442,7 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
         signature,
         symmetric,
         flags,
-        [tuple(p) for p in parts],
+        parts,
         links,
         last,
         {},
@@ -442,7 +453,7 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
         populations,
         {},
         node_type,
-        {},
+        plans,
     )
 
 
@@ -512,7 +523,8 @@ def noisy_light_cone(
     heapq.heapify(heap)
     links, is_channel, qubits, parts = index.links, index.channel, index.qubits, index.parts
     any_layer, flip_layer, barrier = walk.any_layer, walk.flip_layer, walk.barrier
-    pending, cone, stop, follow = walk.pending, walk.cone, index.prefix_last, walk.follow
+    pending, cone, stop, prepare = walk.pending, walk.cone, index.prefix_last, walk.prepare
+    flags, plans, flip_get = index.flags, index.plans, flip_layer.get
     seen: set[int] = set()
     pop, push, add = heapq.heappop, heapq.heappush, seen.add
     while heap:
@@ -531,7 +543,41 @@ def noisy_light_cone(
             if is_channel[g]:
                 walk.channel(g)
             elif parts[g]:
-                walk.unit(g, link)
+                pattern = 0
+                for q, _, _ in link:
+                    f = flip_get(q)
+                    pattern = pattern * 3 + (0 if f is None else 1 if f < 0 else 2)
+                plan = plans[g].get(pattern) or walk.plan(g, pattern)
+                if not plan.gate:
+                    walk.alone(g, plan)
+                else:
+                    # The gate is kept, with its kept channels as one item (see _NodePlan).
+                    qs = qubits[g]
+                    if pending:
+                        for q in qs:
+                            if q in pending:
+                                walk.flush(q)
+                    dep = 0
+                    for q, strict, d in zip(qs, plan.strict, flags[g]):
+                        if q in any_layer:
+                            level = any_layer[q] if strict else flip_layer[q]
+                            if d and q in barrier and barrier[q] > level:
+                                level = barrier[q]
+                            if level > dep:
+                                dep = level
+                    layer = dep + 1
+                    for q, flips, inner in zip(qs, plan.flips, plan.inner):
+                        if q in any_layer:
+                            if layer > any_layer[q]:
+                                any_layer[q] = layer
+                            if flips and layer > flip_layer[q]:
+                                flip_layer[q] = layer
+                        else:
+                            any_layer[q] = layer
+                            flip_layer[q] = layer if flips else -1
+                        if inner:
+                            barrier[q] = layer
+                    cone.append((g, layer, qs, plan.unit))
             else:
                 if pending and walk.flush_any(link):
                     dep = walk.depth(link)  # the flushed channels raised the layers
@@ -553,8 +599,10 @@ def noisy_light_cone(
             if q in any_layer:
                 if prev > stop[q]:
                     push(heap, -prev)
-                else:
-                    follow(q, prev)
+                elif flip_layer[q] < 0:
+                    prepare(q)
+                elif prev >= 0:
+                    push(heap, -prev)
     return cone
 
 
@@ -602,8 +650,8 @@ class _Walk:
     def prepare(self, q: int) -> None:
         """Replace ``q``'s prefix and its held-back channels by the populations they leave."""
         index = self.index
-        held = self.pending.pop(q, ())
-        key = (index.prefix_key[q], tuple([f.signature for _, f in held]))
+        held = self.pending.pop(q, ()) if self.pending else ()
+        key = (index.prefix_key[q], tuple([f.signature for _, f in held]) if held else ())
         found = index.preparations.get(key, False)
         if found is False:
             p = index.prefix_populations[key[0]]
@@ -659,49 +707,22 @@ class _Walk:
             any_layer[q] = self.barrier[q] = layer
         self.cone.append((g, layer, kept, facts))
 
-    def unit(self, g: int, link) -> None:
-        """Visit gate ``g`` with its node's channels (see :class:`_NodePlan`)."""
-        index, any_layer, flip_layer = self.index, self.any_layer, self.flip_layer
-        pattern = tuple(
-            [0 if q not in any_layer else 1 if flip_layer[q] < 0 else 2 for q, _, _ in link]
-        )
-        key = (index.node_type[g], pattern)
-        plan = index.plans.get(key)
-        if plan is None:
-            plan = index.plans[key] = _plan_node(index, g, pattern)
-        if not plan.gate:
-            mine = index.parts[g]
-            for j, kept, facts, held in plan.alone:
-                qs = index.qubits[mine[j]]
-                self.keep(mine[j], tuple([qs[i] for i in kept]), facts, held)
-            return
-        qs = index.qubits[g]
-        if self.pending:
-            for q in qs:
-                if q in self.pending:
-                    self.flush(q)
-        barrier = self.barrier
-        dep = 0
-        for q, strict, d in zip(qs, plan.strict, index.flags[g]):
-            if q in any_layer:
-                level = any_layer[q] if strict else flip_layer[q]
-                if d and q in barrier and barrier[q] > level:
-                    level = barrier[q]
-                if level > dep:
-                    dep = level
-        layer = dep + 1
-        for q, flips, inner in zip(qs, plan.flips, plan.inner):
-            if q in any_layer:
-                if layer > any_layer[q]:
-                    any_layer[q] = layer
-                if flips and layer > flip_layer[q]:
-                    flip_layer[q] = layer
-            else:
-                any_layer[q] = layer
-                flip_layer[q] = layer if flips else -1
-            if inner:
-                barrier[q] = layer
-        self.cone.append((g, layer, qs, plan.unit))
+    def plan(self, g: int, pattern: int) -> _NodePlan:
+        """Make (and keep) the plan of gate node ``g`` for ``pattern`` (see :class:`_NodePlan`)."""
+        index = self.index
+        states, rest = [], pattern
+        for _ in index.qubits[g]:
+            rest, state = divmod(rest, 3)
+            states.append(state)
+        plan = index.plans[g][pattern] = _plan_node(index, g, tuple(reversed(states)))
+        return plan
+
+    def alone(self, g: int, plan: _NodePlan) -> None:
+        """The channels of gate node ``g`` kept without its gate (``plan.gate`` is false)."""
+        mine, qubits = self.index.parts[g], self.index.qubits
+        for j, kept, facts, held in plan.alone:
+            qs = qubits[mine[j]]
+            self.keep(mine[j], tuple([qs[i] for i in kept]), facts, held)
 
 
 def _decide_channel(
@@ -738,7 +759,7 @@ def _decide_channel(
     return kept, facts, held
 
 
-@dataclass
+@dataclass(slots=True)
 class _NodePlan:
     """What a walk does with a gate node whose qubits are in a given state (a *pattern*).
 
