@@ -3,8 +3,8 @@
 Run ``python benchmarks/noise.py`` (full sizes) or ``--quick`` (small sizes, a smoke
 test); ``--only qaoa,grid`` chooses sections.  Every figure printed is measured in this
 run; each ratio compares two timings taken side by side in the same process (QAOA: best
-of ``--repeats``, the two timed alternately; the grid's minutes-long sweeps: one run each), and the machine's load
-average is printed with them.
+of ``--repeats``, the two timed alternately; the grid's minutes-long sweeps: one run
+each), and the machine's load average is printed with them.
 
 Targets (issue 17):
 

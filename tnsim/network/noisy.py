@@ -21,6 +21,42 @@ that qubit drop out as gates after it would; it is ordered strictly against
 everything on its qubits.  So a circuit with Pauli noise has the light cones
 of its ideal circuit, plus the (reduced) channels on their qubits, and equal
 cones with equal noise get equal canonical keys (:func:`canonical_noisy_cone`).
+
+**Gate nodes.**  The walk visits a gate together with the channels right
+after it on its qubits (noise attached to gates) as one *node*
+(:class:`NoisyIndex`).  Its channels are decided last first, then the gate,
+exactly as items of their own would be; the outcome depends only on which of
+the node's qubits are in the cone and which hold a diagonal operator, so it
+is computed once per node type and such a *pattern* (:class:`_NodePlan`).
+When the gate is kept, it and the channels kept with it are one cone item
+(:class:`UnitFacts`) at one layer, above everything on the qubits it must
+follow.  Layers need only this: two items that do not commute get different
+layers, the later-visited one higher.  Treating the node as one item at the
+gate's layer, with its channels' qubits ordered against everything (a channel
+barrier at that layer), only adds order; the items of one layer still commute
+(they share only qubits where both are diagonal gates), so the cone listed by
+decreasing layer is still a circuit equal to it.
+
+**Population preparations.**  Suppose the walk, going back along qubit ``q``,
+reaches ``q``'s *prefix* (the one-qubit items before its first multi-qubit
+item in the circuit) while the operator is diagonal on ``q``:
+``O = Σ_b |b><b|_q ⊗ O_b``.  Before that point only one-qubit items touched
+``q``, so the state there is ``ρ_q ⊗ ρ_rest`` and
+``Tr(O ρ) = Σ_b <b|ρ_q|b> Tr(O_b ρ_rest)``: only the populations of ``ρ_q``
+count.  One-qubit channels kept on ``q`` after the prefix while ``O`` stays
+diagonal there, and that keep operators diagonal (``E†(D)`` diagonal for
+diagonal ``D``, so by ``Tr(D E(C)) = Tr(E†(D) C) = 0`` for off-diagonal ``C``
+no coherence feeds a population), act on the populations alone, by the
+stochastic matrix ``T[b', b] = <b'|E(|b><b|)|b'>``.  The walk holds such
+channels back and, at the prefix, replaces prefix and held channels by one
+channel taking ``|0>`` to the resulting populations ``(p0, p1)``: a bit flip
+with probability ``p1``.  A held channel that a kept item later follows on
+``q`` is kept after all, at the layer it would have had.  The value is
+unchanged, and cones that differ only there share a key when the populations
+agree: for p = 1 QAOA with two-qubit depolarizing noise after every ``rzz``,
+a neighbour's state is ``(1/2, 1/2)`` however many of its other edges'
+(reduced) channels come before its edge into the cone, a unital channel
+keeping it so.
 """
 
 from __future__ import annotations
@@ -368,7 +404,7 @@ def index_noisy(noisy: NoisyCircuit) -> NoisyIndex:
             what: Channel | int = cast(ChannelOp, item).channel
             found = flips.get(id(what))
             if found is None:
-                found = flips[id(what)] = (what, _never_flips(what))
+                found = flips[id(what)] = (what, _never_flips(cast(Channel, what)))
             flags[g] = flag = found[1]
             head = last[qs[0]]
             # Right after a gate on all its qubits (last[q] == head: head acts on q).
@@ -547,7 +583,7 @@ def noisy_light_cone(
                 for q, _, _ in link:
                     f = flip_get(q)
                     pattern = pattern * 3 + (0 if f is None else 1 if f < 0 else 2)
-                plan = plans[g].get(pattern) or walk.plan(g, pattern)
+                plan = cast(dict, plans[g]).get(pattern) or walk.plan(g, pattern)
                 if not plan.gate:
                     walk.alone(g, plan)
                 else:
@@ -714,7 +750,7 @@ class _Walk:
         for _ in index.qubits[g]:
             rest, state = divmod(rest, 3)
             states.append(state)
-        plan = index.plans[g][pattern] = _plan_node(index, g, tuple(reversed(states)))
+        plan = cast(dict, index.plans[g])[pattern] = _plan_node(index, g, tuple(reversed(states)))
         return plan
 
     def alone(self, g: int, plan: _NodePlan) -> None:
@@ -746,7 +782,7 @@ def _decide_channel(
         return None
     if len(qs) == 1:
         facts = index.whole[g] or index.whole_facts(g)
-        kept = qs
+        kept: tuple[int, ...] = qs
     else:
         keep = tuple([q in any_layer for q in qs])
         found = index.facts(g, keep)
@@ -904,7 +940,7 @@ def canonical_noisy_cone(
                     qs, ranks = (qs[1], qs[0]), (ranks[1], ranks[0])
                     if isinstance(facts, UnitFacts):
                         facts = facts.swapped
-                sig = -1 - facts.signature
+                sig = -1 - cast("UnitFacts | ChannelFacts", facts).signature
             ranked.append((ranks, sig, g, qs, facts))
         if len(ranked) > 1:
             ranked.sort()  # item numbers are unique: qubits and facts are never compared
