@@ -43,7 +43,7 @@ from tnsim.plan.driver import greedy_tree
 from tnsim.queries.amplitudes import contract_simplified
 from tnsim.queries.checks import check_circuit, check_qubits
 from tnsim.queries.observables import Observable, parse_observable
-from tnsim.queries.timeorder import evolve_pairs, pair_flops, pauli_value, probabilities
+from tnsim.queries.timeorder import pair_flops, pair_table, pair_value
 
 __all__ = [
     "DENSE_FLOPS",
@@ -87,11 +87,11 @@ def as_noisy(circuit: Circuit | NoisyCircuit, noise: NoiseModel | None = None) -
     return noise.apply(circuit)
 
 
-def _dense_first(local: NoisyCircuit, small=None) -> bool:
+def _dense_first(local: NoisyCircuit, small=None, open_qubits: int = 0) -> bool:
     """Whether the time-order contraction is the cheaper way (see :data:`DENSE_FLOPS`)."""
     if local.num_qubits > DENSE_QUBITS:
         return False
-    flops = pair_flops(local)
+    flops = pair_flops(local, open_qubits)
     if flops <= DENSE_FLOPS or small is None:
         return flops <= DENSE_FLOPS
     return flops < greedy_tree(small.indices, small.output, small.size).cost().flops
@@ -118,13 +118,13 @@ def apply_confusion(table: np.ndarray, matrices: Sequence[np.ndarray | None]) ->
 
 
 def _dense_table(local: NoisyCircuit, t: int, confusion) -> np.ndarray:
-    return apply_confusion(probabilities(evolve_pairs(local), t), confusion)
+    return apply_confusion(pair_table(local, t), confusion)
 
 
 def _cone_table(local: NoisyCircuit, t: int, readout: bool, opts: QueryOptions) -> np.ndarray:
     """Probabilities of the outcomes of local qubits ``0..t-1`` (read, when ``readout``)."""
     confusion = _confusions(local, t, readout)
-    if _dense_first(local):
+    if _dense_first(local, open_qubits=t):
         return _dense_table(local, t, confusion)
     network = noisy_doubled_network(
         local,
@@ -133,7 +133,7 @@ def _cone_table(local: NoisyCircuit, t: int, readout: bool, opts: QueryOptions) 
         dtype=opts.dtype,
     )
     small = absorb_small(network)
-    if _dense_first(local, small):
+    if _dense_first(local, small, open_qubits=t):
         return _dense_table(local, t, confusion)
     value = contract_simplified(small, opts).value()
     return np.clip(np.asarray(value).real.reshape(-1), 0.0, None)
@@ -142,10 +142,10 @@ def _cone_table(local: NoisyCircuit, t: int, readout: bool, opts: QueryOptions) 
 def _cone_pauli(local: NoisyCircuit, letters: dict[int, str], opts: QueryOptions) -> float:
     """``Tr(P ρ)`` of a cone (readout not applied)."""
     if _dense_first(local):
-        return pauli_value(evolve_pairs(local), letters)
+        return pair_value(local, letters)
     small = absorb_small(noisy_doubled_network(local, paulis=letters, dtype=opts.dtype))
     if _dense_first(local, small):
-        return pauli_value(evolve_pairs(local), letters)
+        return pair_value(local, letters)
     return float(complex(contract_simplified(small, opts)).real)
 
 
@@ -414,7 +414,7 @@ def noisy_probabilities(
     _, items, _ = canonical_noisy_cone(index, [(q, "P") for q in range(n)])
     local = noisy_cone(index, items, list(range(n)))
     vary = _varying(rows)
-    if n <= DENSE_QUBITS and _dense_first(local):
+    if n <= DENSE_QUBITS and _dense_first(local, open_qubits=n):
         table = _cone_table(local, n, readout, opts)
         return table[rows.astype(np.int64) @ (1 << np.arange(n - 1, -1, -1))]
     confusion = dict(local.readout) if readout else {}
