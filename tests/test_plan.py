@@ -13,8 +13,10 @@ from tnsim.errors import ResourceLimitError
 from tnsim.execution.slices import execute
 from tnsim.network.graph import TensorGraph
 from tnsim.plan.driver import PairTree, Plan, greedy_tree, make_plan, plan_path
+from tnsim.plan.divide import divide_path
 from tnsim.plan.elimination import elimination_path
 from tnsim.plan.optimizer import Planner
+from tnsim.plan.ordering import cut_path
 from tnsim.plan.partition import bisection_path, sweep_order, sweep_path
 from tnsim.plan.random_networks import random_arrays, random_network
 from tnsim.plan.reoptimize import reoptimize_path
@@ -151,6 +153,8 @@ PLANNERS = {
     "min-degree": lambda i, o, s: elimination_path(i, o, s, heuristic="min-degree"),
     "bisection": lambda i, o, s: bisection_path(i, o, s, leaf_size=2, refine=2, noise=0.3),
     "sweep": lambda i, o, s: sweep_path(i, o, s, noise=0.1, mix=1.0),
+    "cuts": lambda i, o, s: cut_path(i, o, s, imbalance=0.5, leaf_size=2, seed=3),
+    "divide": lambda i, o, s: divide_path(i, o, s, imbalance=0.6, leaf_size=2, seed=4),
     "search": lambda i, o, s: search_path(i, o, s, time_budget=None, max_trials=6).path,
     "plan": lambda i, o, s: plan_path(i, o, s)[0],
     "reoptimize": lambda i, o, s: reoptimize_path(i, o, s, greedy_tree(i, o, s).path),

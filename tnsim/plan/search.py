@@ -25,7 +25,10 @@ from tnsim.fitted import WRITE_FLOPS
 from tnsim.plan import clock
 from tnsim.plan.builder import plan_coarse
 from tnsim.plan.clock import Deadline, TimeLog
+from tnsim.plan.divide import divide_path
 from tnsim.plan.elimination import elimination_path
+from tnsim.plan.hypergraph import Hypergraph, bisect
+from tnsim.plan.ordering import cut_path
 from tnsim.plan.partition import bisection_path, sweep_path
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.slicecost import TreeProfile
@@ -206,6 +209,24 @@ def _planner(method: str, inputs, output, size, rng: np.random.Generator):
             noise=float(rng.choice([0.0, 0.2, 0.5])),
             seed=rng,
         )
+    if method == "cuts":
+        return cut_path(
+            inputs,
+            output,
+            size,
+            imbalance=float(rng.choice([0.1, 0.3, 0.5, 0.7])),
+            leaf_size=int(rng.choice([4, 6, 8])),
+            seed=rng,
+        )
+    if method == "divide":
+        return divide_path(
+            inputs,
+            output,
+            size,
+            imbalance=float(rng.choice([0.05, 0.2, 0.4, 0.6, 0.8])),
+            leaf_size=int(rng.choice([4, 6, 8, 12])),
+            seed=rng,
+        )
     if method == "sweep":
         return sweep_path(
             inputs,
@@ -219,7 +240,7 @@ def _planner(method: str, inputs, output, size, rng: np.random.Generator):
     raise ValueError(f"unknown planner {method!r}")
 
 
-METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep")
+METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep", "cuts", "divide")
 
 
 def _trial(method: str, inputs, output, size, rng: np.random.Generator):
@@ -355,7 +376,7 @@ def search_path(
                 began = clock.now()
                 state.consider(_trial(method, inputs, output, size, rng), method)
                 trials += 1
-                if state.limit is not None and trials % 3 == 0 and state.sliced_best():
+                if state.limit is not None and trials % 3 == 0:
                     state.plan_around(around, [m for m in methods if m != "greedy"] or methods)
                 longest = max(longest, clock.now() - began)
                 if bar is not None:
@@ -396,6 +417,7 @@ class _State:
         # Rows: (key, path, method, sliced labels); per planner by unsliced key, and by sliced key.
         self.plain: dict[str, tuple] = {}
         self.cut: dict[str, tuple] = {}
+        self.cuts: list[list[int]] | None = None
 
     # -- scoring ---------------------------------------------------------------------------------
 
@@ -459,16 +481,55 @@ class _State:
     # -- trees planned around the slices --------------------------------------------------------
 
     def plan_around(self, rng: np.random.Generator, pool) -> None:
-        """Plan a tree on the network without (a prefix of) the best slicing's labels."""
+        """Plan a tree on the network with some labels removed; slice it with them first.
+
+        The labels are a prefix of the best slicing so far, or (half the time, and
+        always before there is one) a random share of the labels of a small
+        balanced cut (:meth:`cut_sets`).  A grid-like network can only be sliced
+        cheaply where the sliced labels lie on most of its wide intermediates;
+        fixing part of a narrow cut splits it into two weakly joined halves, which
+        sweeps ordered around the cut then contract with narrow fronts.
+        """
         best = self.sliced_best()
-        labels = best[3]
-        if not labels:
+        labels = best[3] if best is not None else ()
+        cuts = self.cut_sets(rng)
+        if cuts and (not labels or rng.random() < 0.5):
+            cut = cuts[int(rng.integers(len(cuts)))]
+            k = int(rng.integers(1, max(1, (3 * len(cut)) // 4) + 1))
+            keep = [int(i) for i in rng.permutation(cut)[:k]]
+        elif labels:
+            keep = list(labels[: int(rng.integers(max(1, len(labels) // 2), len(labels) + 1))])
+        else:
             return
-        keep = labels[: int(rng.integers(max(1, len(labels) // 2), len(labels) + 1))]
         ins, out = without_labels(self.inputs, self.output, keep)
-        method = str(rng.choice(pool))
+        method = "cuts" if "cuts" in pool and rng.random() < 0.5 else str(rng.choice(pool))
         path = _trial(method, ins, out, self.size, rng)
-        self.consider(path, f"{method}", preset=keep)
+        self.consider(path, method, preset=keep)
+
+    def cut_sets(self, rng: np.random.Generator) -> list[list[int]]:
+        """The sliceable labels of a few small balanced cuts of the network (made once).
+
+        Cuts by :func:`~tnsim.plan.hypergraph.bisect` with the balance at 0.1, 0.3, 0.5.
+        """
+        if self.cuts is None:
+            self.cuts = []
+            hg = Hypergraph.of_tensors(self.inputs, self.size)
+            if hg.num_vertices >= 4 and hg.pins:
+                holders: dict[int, list[int]] = {}
+                for t, ix in enumerate(self.inputs):
+                    for i in ix:
+                        holders.setdefault(i, []).append(t)
+                out = set(self.output)
+                for imbalance in (0.1, 0.3, 0.5):
+                    part = bisect(hg, imbalance, rng)
+                    cut = sorted(
+                        i
+                        for i, hs in holders.items()
+                        if i not in out and len({part[t] for t in hs}) > 1
+                    )
+                    if cut:
+                        self.cuts.append(cut)
+        return self.cuts
 
     # -- local re-planning ----------------------------------------------------------------------
 
