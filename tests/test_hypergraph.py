@@ -99,7 +99,8 @@ def test_fixed_vertices_stay_on_their_side():
 
 
 def test_hypergraph_of_tensors_keeps_labels_shared_within_the_group():
-    h = Hypergraph.of_tensors([(0, 1), (1, 2), (2, 0, 3), (3,)], {0: 4, 1: 2, 2: 8, 3: 2}, [0, 1, 2])
+    size = {0: 4, 1: 2, 2: 8, 3: 2}
+    h = Hypergraph.of_tensors([(0, 1), (1, 2), (2, 0, 3), (3,)], size, [0, 1, 2])
     assert sorted(zip(h.pins, h.weights)) == [((0, 1), 1.0), ((0, 2), 2.0), ((1, 2), 3.0)]
 
 
@@ -114,7 +115,7 @@ def _grid(rows, cols):
                 labels[(t, u)] = len(labels)
                 tensors[t].append(labels[(t, u)])
                 tensors[u].append(labels[(t, u)])
-    return [tuple(ix) for ix in tensors], {i: 2 for i in labels.values()}
+    return [tuple(ix) for ix in tensors], dict.fromkeys(labels.values(), 2)
 
 
 def test_front_sizes_equal_a_direct_count():
@@ -150,7 +151,7 @@ def test_order_path_never_joins_tensors_with_nothing_in_common_while_a_joint_one
     # Chain 0-1-2-3 given in the order 0, 2, 1, 3: tensor 2 does not touch 0, so it waits
     # as its own node until 1 joins them; no step of the tree is an outer product.
     inputs = [(0,), (0, 1), (1, 2), (2,)]
-    path = order_path(inputs, (), {i: 2 for i in range(3)}, [0, 2, 1, 3])
+    path = order_path(inputs, (), dict.fromkeys(range(3), 2), [0, 2, 1, 3])
     labels = [set(ix) for ix in inputs]
     for x, y in path:
         assert labels[x] & labels[y]
@@ -170,3 +171,44 @@ def test_new_planners_give_full_trees_costed_as_the_model_says(planner):
         assert sorted(nodes) == sorted(set(nodes))  # every node used once
         assert sorted(set(nodes)) == list(range(40 + 38))
         assert tree_cost(inputs, output, size, path).flops > 0
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_exact_path_matches_opt_einsum_exhaustive_search(seed):
+    # Reference: opt_einsum's exhaustive searches (opt_einsum docs, "The Optimal Path" and
+    # "Dynamic Programming" with search_outer=True), scored by tnsim's cost model.
+    import opt_einsum.paths as oe_paths
+
+    from tnsim.plan.exact import exact_path
+    from tnsim.plan.tree import linear_to_ssa
+
+    n = 3 + seed % 8
+    inputs, output, size = random_network(n, hyper=0.3, num_open=seed % 3, seed=300 + seed)
+    ins = [frozenset(ix) for ix in inputs]
+    if n <= 7:
+        linear = oe_paths.optimal(ins, frozenset(output), size)
+    else:
+        linear = oe_paths.dynamic_programming(ins, frozenset(output), size, search_outer=True)
+    theirs = tree_cost(inputs, output, size, linear_to_ssa(linear, n)).flops
+    path = exact_path(inputs, output, size)
+    assert len(path) == n - 1
+    assert tree_cost(inputs, output, size, path).flops <= theirs
+
+
+def test_exact_path_keeps_intermediates_under_a_cap_or_says_none():
+    from tnsim.plan.exact import exact_path
+
+    inputs, output, size = random_network(9, hyper=0.3, seed=21)
+    free = tree_cost(inputs, output, size, exact_path(inputs, output, size))
+    cap = free.largest // 2
+    capped = exact_path(inputs, output, size, max_numel=cap)
+    if capped is None:  # no tree fits: every tree has an intermediate over the cap
+        return
+    cost = tree_cost(inputs, output, size, capped)
+    labels = [set(ix) for ix in inputs]
+    assert cost.flops >= free.flops
+    # Every intermediate but the result within the cap.
+    from tnsim.plan.tree import step_labels
+
+    sizes = [math.prod(size[i] for i in ls) for ls in step_labels(inputs, output, capped)]
+    assert max(sizes[len(labels) : -1], default=0) <= cap

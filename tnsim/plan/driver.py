@@ -371,11 +371,12 @@ def make_plan(
     return plan
 
 
-SEARCH_SHARE = 0.8
+SEARCH_SHARE = 0.9
 
 
 """Under a time budget and a memory limit, the search (trials, each tree sliced and scored,
-and its re-planning) ends by this share of the budget; the final slicing uses the rest."""
+the best trees sliced again with re-planning, and local re-planning) ends by this share of
+the budget; the final slicing uses the rest."""
 
 
 FINISH_RESERVE = 0.03
@@ -451,7 +452,8 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
     (:func:`slice_with_replanning`; neither way wins everywhere).  Returns
     ``(score, tree, method, (sliced, cost, num_slices))``.
     """
-    fixed, error, plain_best = [], None, None
+    fixed: list[tuple] = []
+    error, plain_best = None, None
     for cand, name, cut in trees:
         if fixed and deadline.passed():
             break
@@ -472,9 +474,12 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
     plain_best = plain_best or fixed[0]  # the best tree before slicing
     fixed.sort(key=lambda row: row[0])
     best = fixed[0]
-    # Re-planned while the deadline allows: the best tree before slicing, then the rest
-    # cheapest first; without a deadline, the first REPLANNED of them.
-    order = [plain_best] + [row for row in fixed if row is not plain_best]
+    # Re-planned while the deadline allows, cheapest first; without a deadline, the best
+    # tree before slicing and then the cheapest, REPLANNED in all (so that the result is
+    # never costlier than that tree sliced afterwards, whatever the machine).
+    order = list(fixed)
+    if not deadline.timed:
+        order = [plain_best] + [row for row in fixed if row is not plain_best]
     for rank, (_, cand, name, _) in enumerate(order):
         if deadline.passed() or (not deadline.timed and rank >= REPLANNED):
             break
@@ -502,7 +507,9 @@ REPLANNED = 3
 """Without a time budget, how many candidate trees the final slicing re-plans label by label."""
 
 
-def _args(tree: PairTree):
+def _args(
+    tree: PairTree,
+) -> tuple[tuple[tuple[int, ...], ...], tuple[int, ...], Mapping[int, int]]:
     """``(inputs, output, size)`` of a tree, the first arguments of the slicers."""
     return tree.inputs, tree.output, tree.size
 

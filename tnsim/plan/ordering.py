@@ -121,7 +121,7 @@ def _growth(ix, holders, state, out, weight) -> float:
 
 
 def _split(group, labels, holders, state, out, weight, imbalance, rng):
-    """Split a group in two with the placed tensors pulling to the first part, the rest to the second."""
+    """Split a group in two; placed tensors pull to the first part, later ones to the second."""
     index = {t: k for k, t in enumerate(group)}
     before, after = len(group), len(group) + 1
     pins: list[list[int]] = []

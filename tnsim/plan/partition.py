@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import heapq
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 
 import networkx as nx
 import numpy as np
@@ -101,7 +101,7 @@ def _split(group, labels, weight, rng, imbalance, noise, refine, num_vectors=3, 
     vecs = _spectral(n, rows, cols, vals, rng, min(n - 2, num_vectors))
     lo = max(1, math.floor(n * (0.5 - imbalance)))
     hi = min(n - 1, math.ceil(n * (0.5 + imbalance)))
-    best = (math.inf, None, 0)
+    best: tuple[float, list[int], int] = (math.inf, list(group), n // 2)
     directions = list(np.eye(vecs.shape[1]))
     for _ in range(mixes):
         directions.append(rng.standard_normal(vecs.shape[1]))
@@ -265,9 +265,9 @@ def _embedding(labels: Sequence[frozenset[int]], size, num_vectors: int):
 
 
 def _score_directions(labels, weight, vecs: np.ndarray, rng: np.random.Generator):
-    """Candidate sweep directions (rows, best first) and their front scores (see :func:`_embedding`)."""
+    """Candidate sweep directions (rows, best first) and their scores (see :func:`_embedding`)."""
     k = vecs.shape[1]
-    cands = [np.eye(k)[a] for a in range(k)]
+    cands: list[np.ndarray] = [np.eye(k)[a] for a in range(k)]
     if k >= 2:
         # The plane of the two lowest eigenvectors, finely: grid directions lie in it.
         for ang in np.linspace(0.0, math.pi, 25)[1:-1]:
@@ -275,13 +275,13 @@ def _score_directions(labels, weight, vecs: np.ndarray, rng: np.random.Generator
             d[0], d[1] = math.cos(ang), math.sin(ang)
             cands.append(d)
     for _ in range(DIRECTIONS - len(cands)):
-        d = rng.standard_normal(k)
-        cands.append(d / np.linalg.norm(d))
-    scores = []
+        r = rng.standard_normal(k)
+        cands.append(r / np.linalg.norm(r))
+    scores: list[float] = []
     for d in cands:
         order = np.argsort(vecs @ d, kind="stable").tolist()
         prof = np.array(_cut_profile(order, labels, weight))
-        top = prof.max() if len(prof) else 0.0
+        top = float(prof.max()) if len(prof) else 0.0
         scores.append(top + math.log2(float(np.exp2(prof - top).sum())) if len(prof) else 0.0)
     rank = np.argsort(scores, kind="stable")
     return np.array(cands)[rank], np.array(scores)[rank]
@@ -289,9 +289,9 @@ def _score_directions(labels, weight, vecs: np.ndarray, rng: np.random.Generator
 
 def sweep_order(
     labels: Sequence[frozenset[int]],
-    output: Sequence[int],
+    output: Iterable[int],
     size: Mapping[int, int],
-    position: Sequence[float],
+    position: Sequence[float] | np.ndarray,
     *,
     pull: float = 3.0,
     noise: float = 0.0,
@@ -352,7 +352,7 @@ def sweep_order(
             continue
         inside[t] = True
         order.append(t)
-        touched = set()
+        touched: set[int] = set()
         for i in labels[t]:
             left[i] -= 1
             if left[i] > 0 or i in out:

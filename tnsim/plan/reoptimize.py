@@ -2,10 +2,10 @@
 
 For an internal node, its sub-tree is cut at a frontier of at most
 ``max_leaves`` nodes (the largest nodes are expanded first); the frontier is a
-small self-contained network whose output is the node's labels.  opt_einsum's
-exact planners (``optimal`` for a few leaves, ``dp`` for more) re-order it and
-the new sub-tree replaces the old one when it costs fewer FLOPs under
-:mod:`tnsim.plan.tree`'s model.  With a size cap, re-planned sub-trees keep
+small self-contained network whose output is the node's labels.  An exact
+planner (:func:`tnsim.plan.exact.exact_path` up to its size, opt_einsum's
+``dp`` beyond) re-orders it and the new sub-tree replaces the old one when it
+costs fewer FLOPs under :mod:`tnsim.plan.tree`'s model.  With a size cap, re-planned sub-trees keep
 every intermediate within ``max(cap, the sub-tree's largest before)``, so
 re-planning never makes a sliced tree need more memory than the cap allows.
 """
@@ -18,6 +18,7 @@ from collections.abc import Mapping, Sequence
 import opt_einsum.paths as oe_paths
 
 from tnsim.plan import clock
+from tnsim.plan.exact import MAX_LEAVES, exact_path
 from tnsim.plan.tree import linear_to_ssa, step_flops, step_labels, tree_cost
 
 __all__ = ["reoptimize_path"]
@@ -101,6 +102,22 @@ class _Tree:
         )
 
 
+def _best_order(sub_in, sub_out, sizes, cap) -> tuple[tuple[int, int], ...] | None:
+    """An exact order of a small sub-network, or ``None`` if none keeps within ``cap`` elements.
+
+    :func:`~tnsim.plan.exact.exact_path` up to its size, opt_einsum's ``dp`` beyond.
+    """
+    if len(sub_in) <= MAX_LEAVES:
+        ssa = exact_path(sub_in, sub_out, sizes, max_numel=cap)
+        if ssa is not None or len(set().union(*sub_in)) <= 64:
+            return ssa
+    try:
+        linear = oe_paths.dynamic_programming(list(sub_in), sub_out, sizes, memory_limit=cap)
+    except (ValueError, RuntimeError):
+        return None
+    return linear_to_ssa(linear, len(sub_in))
+
+
 def _keep(labels, front, ssa, s, k, out) -> frozenset:
     """Labels of step ``s``'s result in a sub-network over ``front`` with output ``out``."""
     node_labels = [labels[t] for t in front]
@@ -143,7 +160,7 @@ def reoptimize_path(
     ...     ins, (), size, bad).flops
     True
     """
-    path = tuple(tuple(p) for p in path)
+    path = tuple((int(x), int(y)) for x, y in path)
     if len(path) < 2:
         return path
     start = clock.now()
@@ -168,12 +185,9 @@ def reoptimize_path(
             cap = None
             if max_numel is not None:
                 cap = max(max_numel, max(t.numel(u) for u in inner))
-            opt = oe_paths.optimal if len(front) <= 5 else oe_paths.dynamic_programming
-            try:
-                linear = opt(list(sub_in), sub_out, sizes, memory_limit=cap)
-            except (ValueError, RuntimeError):
+            ssa = _best_order(sub_in, sub_out, sizes, cap)
+            if ssa is None:
                 continue
-            ssa = linear_to_ssa(linear, len(front))
             new = tree_cost(sub_in, sub_out, size, ssa)
             if new.flops < old and (cap is None or new.largest <= cap):
                 t.replace(v, front, inner, ssa)

@@ -32,7 +32,7 @@ from tnsim.plan.ordering import cut_path
 from tnsim.plan.partition import bisection_path, sweep_path
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.slicecost import TreeProfile
-from tnsim.plan.slicing import slice_profile
+from tnsim.plan.slicing import slice_profile, slice_with_replanning
 from tnsim.plan.tree import TreeCost, join_pairwise, memory_order, tree_cost, without_labels
 
 __all__ = [
@@ -135,7 +135,7 @@ def random_greedy_path(
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
 
     def choose(queue, remaining):
-        choices = []
+        choices: list = []
         while queue and len(choices) < nbranch:
             cand = heapq.heappop(queue)
             if cand[1] in remaining and cand[2] in remaining:
@@ -155,15 +155,16 @@ def random_greedy_path(
         return chosen
 
     ins = [frozenset(ix) for ix in inputs]
-    if cost_fn == "memory-removed-jitter":
 
-        def cost(size12, size1, size2, k12, k1, k2):
-            return (size12 - size1 - size2) * (1 + 0.01 * rng.standard_normal())
+    def jitter(size12, size1, size2, k12, k1, k2):
+        return (size12 - size1 - size2) * (1 + 0.01 * rng.standard_normal())
 
-    else:
-        cost = cost_fn
     ssa = oe_paths.ssa_greedy_optimize(
-        ins, frozenset(output), dict(size), choose_fn=choose, cost_fn=cost
+        ins,
+        frozenset(output),
+        dict(size),
+        choose_fn=choose,
+        cost_fn=jitter if cost_fn == "memory-removed-jitter" else cost_fn,
     )
     return _pairs(ssa, len(ins))
 
@@ -240,6 +241,19 @@ def _planner(method: str, inputs, output, size, rng: np.random.Generator):
     raise ValueError(f"unknown planner {method!r}")
 
 
+RESLICE_EVERY = 6
+
+
+"""Under a memory limit, the best sliced tree not yet re-sliced is sliced again from scratch,
+re-planning its sub-trees after each label, after every this many trials."""
+
+
+RESLICE_SHARE = 0.15
+
+
+"""Share of the trials' remaining time one such re-slicing may take."""
+
+
 METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep", "cuts", "divide")
 
 
@@ -290,8 +304,8 @@ def search_path(
     inputs, output, size
         The network.
     time_budget : float or None
-        Seconds for the whole search (trials take about 70%, sub-tree
-        re-planning the rest); at least one trial always runs.  ``None``: no
+        Seconds for the whole search (trials take about 70%, 85% under a
+        memory limit, sub-tree re-planning the rest); at least one trial always runs.  ``None``: no
         time limit (then ``max_trials`` defaults to 16), fully reproducible.
     max_trials : int, optional
         Stop after this many trials.
@@ -303,8 +317,11 @@ def search_path(
         Bytes one slice's intermediates may use.  Every tree over it is sliced
         to fit (:func:`~tnsim.plan.slicing.slice_profile`) and scored by its
         sliced cost, all slices together; between trials, trees are also
-        planned on the network with the best slicing's labels removed, and the
-        finalists are re-planned locally with those labels sliced.  The best
+        planned on the network with some labels removed (a prefix of the best
+        slicing's, or a share of a small balanced cut's) and sliced with them
+        first, the best sliced tree is sliced again from scratch with its
+        sub-trees re-planned after each label (every ``RESLICE_EVERY`` trials),
+        and the finalists are re-planned locally with their labels sliced.  The best
         tree *before* slicing is kept too (as the first alternative), re-planned
         as without a limit: so with the same seed and trial budget the result is
         never costlier than that tree sliced afterwards.
@@ -350,7 +367,9 @@ def search_path(
     state = _State(inputs, output, size, objective, memory_limit, itemsize)
     trial_end = Deadline(None)
     if total.timed:
-        trial_end.end = start + (0.7 if reoptimize else 1.0) * (total.end - start)
+        # Under a limit the trials include the re-slicing of the best trees: they get more.
+        share = (0.7 if memory_limit is None else 0.85) if reoptimize else 1.0
+        trial_end.end = start + share * (total.end - start)
     trials = 0
     bar = None
     if progress:
@@ -379,6 +398,12 @@ def search_path(
                 if state.limit is not None and trials % 3 == 0:
                     state.plan_around(around, [m for m in methods if m != "greedy"] or methods)
                 longest = max(longest, clock.now() - began)
+                if state.limit is not None and trials % RESLICE_EVERY == 0:
+                    seconds = None
+                    if trial_end.timed:
+                        seconds = RESLICE_SHARE * (trial_end.end - clock.now())
+                    if seconds is None or seconds > 0:
+                        state.reslice(seconds)
                 if bar is not None:
                     bar.update(1)
                     bar.set_postfix(log10_flops=f"{math.log10(max(state.best_flops(), 1)):.2f}")
@@ -418,6 +443,7 @@ class _State:
         self.plain: dict[str, tuple] = {}
         self.cut: dict[str, tuple] = {}
         self.cuts: list[list[int]] | None = None
+        self.resliced: set[tuple[tuple[int, int], ...]] = set()
 
     # -- scoring ---------------------------------------------------------------------------------
 
@@ -505,6 +531,35 @@ class _State:
         method = "cuts" if "cuts" in pool and rng.random() < 0.5 else str(rng.choice(pool))
         path = _trial(method, ins, out, self.size, rng)
         self.consider(path, method, preset=keep)
+
+    def reslice(self, seconds: float | None) -> None:
+        """Slice the best sliced tree not yet re-sliced again, re-planning after each label.
+
+        :func:`~tnsim.plan.slicing.slice_with_replanning` from scratch within
+        ``seconds`` (``None``: no limit); the adapted tree and its labels are
+        considered like a trial's, so they also steer :meth:`plan_around`.  A tree
+        planned around part of a cut often slices far cheaper this way than with
+        the labels it was planned around.
+        """
+        assert self.limit is not None
+        for row in sorted(self.cut.values(), key=lambda r: r[0]):
+            if row[1] in self.resliced:
+                continue
+            self.resliced.add(row[1])
+            sliced, path, _, _ = slice_with_replanning(
+                self.inputs,
+                self.output,
+                self.size,
+                row[1],
+                self.limit,
+                itemsize=self.itemsize,
+                time_budget=None if seconds is None else max(0.02, seconds / 8),
+                total_budget=seconds,
+                write_flops=self.write,
+            )
+            self.resliced.add(path)
+            self.consider(path, row[2], preset=sliced)
+            return
 
     def cut_sets(self, rng: np.random.Generator) -> list[list[int]]:
         """The sliceable labels of a few small balanced cuts of the network (made once).
