@@ -75,9 +75,10 @@ class Plan:
         Planning time.
     timings : tuple of (str, float)
         Seconds spent per planning stage: ``"search"`` (planner trials, each
-        tree sliced and scored under a limit), ``"re-planning"`` (exact
-        re-planning of sub-trees), ``"slicing"`` (the final choice of labels,
-        with re-planning around them).
+        tree sliced and scored under a limit), ``"re-slicing"`` (under a limit:
+        the search's best trees sliced again with their sub-trees re-planned
+        after each label), ``"re-planning"`` (exact re-planning of sub-trees),
+        ``"slicing"`` (the final choice of labels, with re-planning around them).
     """
 
     tree: PairTree
@@ -474,16 +475,19 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
     plain_best = plain_best or fixed[0]  # the best tree before slicing
     fixed.sort(key=lambda row: row[0])
     best = fixed[0]
-    # Re-planned while the deadline allows, cheapest first; without a deadline, the best
-    # tree before slicing and then the cheapest, REPLANNED in all (so that the result is
-    # never costlier than that tree sliced afterwards, whatever the machine).
-    order = list(fixed)
-    if not deadline.timed:
-        order = [plain_best] + [row for row in fixed if row is not plain_best]
+    # Re-planned while the deadline allows: the cheapest, then the best tree before slicing
+    # (under a mild limit, slicing it afterwards often wins), then the rest cheapest first,
+    # each with at most half the time left; without a deadline, the best tree before slicing
+    # first, REPLANNED in all (so that the result is never costlier than that tree sliced
+    # afterwards, whatever the machine).
+    rest = [row for row in fixed if row is not plain_best]
+    order = [*rest[:1], plain_best, *rest[1:]] if deadline.timed else [plain_best, *rest]
     for rank, (_, cand, name, _) in enumerate(order):
         if deadline.passed() or (not deadline.timed and rank >= REPLANNED):
             break
         left = deadline.seconds()
+        if left is not None:
+            left *= 0.5
         seconds = None if left is None else max(0.02, min(1.0, left / 8))
         # From scratch: the adapted tree may want other labels than the search's.
         sliced, path, cost, num = slice_with_replanning(

@@ -341,7 +341,8 @@ def search_path(
     deadline : Deadline, optional
         A deadline of the caller's that the search never passes (besides ``time_budget``).
     log : TimeLog, optional
-        Gets the seconds spent on trials (``"search"``) and re-planning (``"re-planning"``).
+        Gets the seconds spent on trials (``"search"``), on re-slicing the best trees
+        under a memory limit (``"re-slicing"``) and on re-planning (``"re-planning"``).
 
     Returns
     -------
@@ -381,6 +382,7 @@ def search_path(
     # generator: the main sequence of trials stays the one a search without a limit runs.
     around = np.random.default_rng([seed, 1])
     longest = 0.0
+    log.add("search", 0.0)  # listed first
     try:
         with log.stage("search"):
             while True:
@@ -395,7 +397,7 @@ def search_path(
                 began = clock.now()
                 state.consider(_trial(method, inputs, output, size, rng), method)
                 trials += 1
-                if state.limit is not None and trials % 3 == 0:
+                if state.limit is not None and trials % 2 == 0:
                     state.plan_around(around, [m for m in methods if m != "greedy"] or methods)
                 longest = max(longest, clock.now() - began)
                 if state.limit is not None and trials % RESLICE_EVERY == 0:
@@ -403,7 +405,12 @@ def search_path(
                     if trial_end.timed:
                         seconds = RESLICE_SHARE * (trial_end.end - clock.now())
                     if seconds is None or seconds > 0:
+                        began = clock.now()
                         state.reslice(seconds)
+                        # Counted as its own stage (the "search" stage around it gives it back).
+                        spent = clock.now() - began
+                        log.add("re-slicing", spent)
+                        log.add("search", -spent)
                 if bar is not None:
                     bar.update(1)
                     bar.set_postfix(log10_flops=f"{math.log10(max(state.best_flops(), 1)):.2f}")
@@ -444,6 +451,7 @@ class _State:
         self.cut: dict[str, tuple] = {}
         self.cuts: list[list[int]] | None = None
         self.resliced: set[tuple[tuple[int, int], ...]] = set()
+        self.holders: dict[int, list[int]] | None = None
 
     # -- scoring ---------------------------------------------------------------------------------
 
@@ -522,7 +530,10 @@ class _State:
         if cuts and (not labels or rng.random() < 0.5):
             cut = cuts[int(rng.integers(len(cuts)))]
             k = int(rng.integers(1, max(1, (3 * len(cut)) // 4) + 1))
-            keep = [int(i) for i in rng.permutation(cut)[:k]]
+            if rng.random() < 0.5:
+                keep = self.segment(cut, k, rng)
+            else:
+                keep = [int(i) for i in rng.permutation(cut)[:k]]
         elif labels:
             keep = list(labels[: int(rng.integers(max(1, len(labels) // 2), len(labels) + 1))])
         else:
@@ -560,6 +571,35 @@ class _State:
             self.resliced.add(path)
             self.consider(path, row[2], preset=sliced)
             return
+
+    def segment(self, cut: Sequence[int], k: int, rng: np.random.Generator) -> list[int]:
+        """``k`` labels of a cut that lie together: breadth first from a random one of them.
+
+        Two labels of the cut are neighbours when a tensor holding one shares a label
+        with a tensor holding the other.  Fixing such a run of a cut's labels opens a
+        slit in a grid-like network, around whose end each slice can be swept with
+        narrow fronts (where labels spread along the whole cut leave it joined).
+        """
+        if self.holders is None:
+            self.holders = {}
+            for t, ix in enumerate(self.inputs):
+                for i in ix:
+                    self.holders.setdefault(i, []).append(t)
+        holders = self.holders
+        near = {i: {u for t in holders[i] for j in self.inputs[t] for u in holders[j]} for i in cut}
+        members = set(cut)
+        start = int(cut[int(rng.integers(len(cut)))])
+        seen = [start]
+        done = {start}
+        k_at = 0
+        while len(seen) < k and k_at < len(seen):
+            i = seen[k_at]
+            k_at += 1
+            for j in sorted(members - done):
+                if near[i] & set(holders[j]):
+                    done.add(j)
+                    seen.append(j)
+        return seen[:k]
 
     def cut_sets(self, rng: np.random.Generator) -> list[list[int]]:
         """The sliceable labels of a few small balanced cuts of the network (made once).
