@@ -21,7 +21,7 @@ from collections.abc import Iterable, Mapping, Sequence
 
 import numpy as np
 
-__all__ = ["MAX_LEAVES", "exact_path"]
+__all__ = ["MAX_LEAVES", "exact_path", "exact_plan"]
 
 MAX_LEAVES = 12
 """Largest network :func:`exact_path` plans (``3**12`` splits, a few milliseconds)."""
@@ -113,10 +113,32 @@ def exact_path(
     >>> exact_path([(0, 1), (1, 2), (2, 3)], (0, 3), {0: 8, 1: 2, 2: 8, 3: 2})
     ((1, 2), (0, 3))
     """
+    found = exact_plan(labels, keep, size, max_numel=max_numel)
+    return None if found is None else found[0]
+
+
+def exact_plan(
+    labels: Sequence[Iterable[int]],
+    keep: Iterable[int],
+    size: Mapping[int, int],
+    *,
+    max_numel: float | None = None,
+) -> tuple[tuple[tuple[int, int], ...], float] | None:
+    """:func:`exact_path` with the path's cost: its FLOPs less the leaves' own sums.
+
+    The cost is what :func:`tnsim.plan.tree.tree_cost` counts for the path, less
+    ``2 (|leaf| - |leaf'|)`` for each leaf holding labels no other tensor holds (a
+    constant), as a float.
+
+    Examples
+    --------
+    >>> exact_plan([(0, 1), (1, 2), (2, 3)], (0, 3), {0: 8, 1: 2, 2: 8, 3: 2})
+    (((1, 2), (0, 3)), 512.0)
+    """
     sets = [frozenset(ix) for ix in labels]
     n = len(sets)
     if n < 2:
-        return ()
+        return (), 0.0
     local = sorted(set().union(*sets))
     if n > MAX_LEAVES or len(local) > 64:
         return None
@@ -162,4 +184,4 @@ def exact_path(
         return n + len(path) - 1
 
     build(full)
-    return tuple(path)
+    return tuple(path), float(cost[full])
