@@ -8,7 +8,8 @@ machine's matmul rate plus the fitted cost per element written), then contracts
 it with a progress bar and a checkpoint folder per seed (a stopped run resumes: the
 folder keeps the plan, so the rerun takes it instead of planning again),
 and records the wall time beside the forecast.  With ``--workers`` local worker
-processes each slice is planned for the limit divided among them.  Two plans from different seeds
+processes (default 1: one process whose matrix products use every core) each slice
+is planned for the limit divided among them.  Two plans from different seeds
 must give the same amplitude to ``--rtol`` (there is no state vector to compare
 with at 100 qubits).  ``--verify`` runs the same on a small instance (5x5, 12
 cycles, 1 MiB) and also checks it against an unsliced contraction.
@@ -108,7 +109,9 @@ def main(argv=None) -> int:
     parser.add_argument("--budget", type=float, default=120.0, help="planning seconds per seed")
     parser.add_argument("--seeds", default="0,1", help="planner seeds (two or more)")
     parser.add_argument("--rtol", type=float, default=1e-10)
-    parser.add_argument("--workers", type=int, default=2, help="local worker processes")
+    parser.add_argument(
+        "--workers", type=int, default=1, help="local worker processes (each gets limit/N)"
+    )
     parser.add_argument("--checkpoint", default="big_amplitude_ck", help="checkpoint folder")
     parser.add_argument("--plan-only", action="store_true", help="plan and forecast, no run")
     parser.add_argument("--verify", action="store_true", help="small instance: 6x6x12, 1 MiB")

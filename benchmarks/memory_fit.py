@@ -24,6 +24,7 @@ Run::
 
     python benchmarks/memory_fit.py                       # full (about an hour on 2 cores)
     python benchmarks/memory_fit.py --only 10x10x12-abcdcdab --budget 120
+    python benchmarks/memory_fit.py --limits 1/1,1/1024,2GiB     # selected limits
     python benchmarks/memory_fit.py --quick --out /tmp/smoke
 """
 
@@ -110,6 +111,9 @@ def run(args) -> list[dict]:
         limits = [(f"1/{k}", peak // k) for k in (FRACTIONS[:4] if args.quick else FRACTIONS)]
         if not args.quick:
             limits += [("2GiB", 2 * GiB), ("1GiB", GiB), ("512MiB", GiB // 2)]
+        if args.limits:
+            wanted = args.limits.split(",")
+            limits = [(label, lim) for label, lim in limits if label in wanted]
         print(
             f"{'limit':>8} {'bytes':>10} | {'tnsim':>6} {'ovh':>7} {'slices':>8} {'s':>6} | "
             f"{'after':>6} {'ovh':>7} {'slices':>8} | {'oe-rg':>6} {'oe peak':>9}"
@@ -207,6 +211,9 @@ def main(argv=None) -> int:
     )
     parser.add_argument("--objective", default="operations", choices=("operations", "runtime"))
     parser.add_argument("--rg-trials", type=int, help="opt_einsum RandomGreedy trials")
+    parser.add_argument(
+        "--limits", help="only these limits, e.g. 1/1,1/1024,2GiB (labels as printed)"
+    )
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results"))
     parser.add_argument("--plot", help="PNG of overhead against limit (default OUT/memory_fit.png)")

@@ -10,18 +10,28 @@ baseline's opt_einsum cost to tnsim's.
 Families: 2D grid random circuits (CZ as hyperedges, four rotating edge
 layers), QAOA p = 1..3 on random 3-regular graphs, 1D brickwork.
 
+``--door`` instead plans networks built *outside* tnsim, written the way another tool
+would write a grid circuit (one tensor per gate: |0> and <0| vectors, 2x2 single-qubit
+matrices, CZ as a rank-2 diagonal tensor on the two wires' current labels; tensors in a
+random order, labels with random names; :func:`outside_grid`, which uses no tnsim builder),
+through opt_einsum's door: ``opt_einsum.contract_path(eq, *arrays,
+optimize=tnsim.Planner(time_budget=...))``, one line per presentation seed, with
+opt_einsum's own cost count (its ``opt_cost``) and the planning seconds.
+
 Run::
 
     python benchmarks/planners.py              # the full table (long)
     python benchmarks/planners.py --quick      # small instances, short budgets
     python benchmarks/planners.py --only grid --budget-scale 1
     python benchmarks/planners.py --slicing --objective runtime   # slicing of run-time plans
+    python benchmarks/planners.py --door --rows 10 --cycles 12 --budget 120 --orders 3
 """
 
 from __future__ import annotations
 
 import argparse
 import math
+import os
 import platform
 import time
 
@@ -86,6 +96,78 @@ def run_baseline(net, eq, optimize):
     return float(info.opt_cost), cost.flops, cost.width, seconds
 
 
+def outside_grid(rows: int, cols: int, cycles: int, seed: int, sequence: str = "rotation"):
+    """A grid circuit's amplitude network written as another tool would: one tensor per gate.
+
+    Each cycle: a random single-qubit unitary (a 2x2 matrix) on every qubit, then CZ on
+    the pairs of one layer, as a rank-2 diagonal tensor on the two wires' current labels
+    (so each wire label of a CZ is a hyperedge).  ``rotation``: the four aligned layers
+    (horizontal pairs from even, then odd columns; vertical pairs from even, then odd
+    rows) in turn.  |0> vectors start the wires and <0| vectors end them.  The tensors
+    come in a random order and the labels have random names (``seed``).
+
+    Returns ``(equation, arrays)`` for opt_einsum.
+    """
+    if sequence != "rotation":
+        raise ValueError("only the four-layer rotation is written here")
+    rng = np.random.default_rng(seed)
+    n = rows * cols
+    layers = [
+        [(r * cols + c, r * cols + c + 1) for r in range(rows) for c in range(p, cols - 1, 2)]
+        for p in (0, 1)
+    ]
+    layers += [
+        [(r * cols + c, (r + 1) * cols + c) for r in range(p, rows - 1, 2) for c in range(cols)]
+        for p in (0, 1)
+    ]
+    zero = np.array([1.0, 0.0], dtype=complex)
+    cz = np.array([[1, 1], [1, -1]], dtype=complex)
+    wire = list(range(n))
+    nxt = n
+    inputs: list[tuple[int, ...]] = [(q,) for q in range(n)]
+    arrays: list[np.ndarray] = [zero] * n
+    for k in range(cycles):
+        for q in range(n):
+            u = np.linalg.qr(rng.standard_normal((2, 2)) + 1j * rng.standard_normal((2, 2)))[0]
+            inputs.append((wire[q], nxt))
+            arrays.append(u.T)
+            wire[q] = nxt
+            nxt += 1
+        for a, b in layers[k % 4]:
+            inputs.append((wire[a], wire[b]))
+            arrays.append(cz)
+    inputs += [(wire[q],) for q in range(n)]
+    arrays += [zero] * n
+    order = rng.permutation(len(inputs))
+    names = rng.permutation(nxt)
+    sym = [opt_einsum.get_symbol(int(k)) for k in names]
+    eq = ",".join("".join(sym[i] for i in inputs[t]) for t in order) + "->"
+    return eq, [arrays[t] for t in order]
+
+
+def door_table(args) -> None:
+    """Plan outside-built grid networks through opt_einsum's door, one line per presentation."""
+    import tnsim
+
+    print(
+        f"# {args.rows}x{args.rows} grid, {args.cycles} cycles, rotation, outside-built; "
+        f"Planner(time_budget={args.budget:g}); oe = opt_einsum's cost count (log10); "
+        f"{os.cpu_count()} cores, load {os.getloadavg()[0]:.1f}"
+    )
+    print(f"{'order seed':>10} {'tensors':>7} {'oe':>6} {'seconds':>8} {'planner':>10}")
+    for seed in range(args.orders):
+        eq, arrays = outside_grid(args.rows, args.rows, args.cycles, seed)
+        planner = tnsim.Planner(time_budget=args.budget, seed=args.seed)
+        t0 = time.perf_counter()
+        _, info = opt_einsum.contract_path(eq, *arrays, optimize=planner)
+        seconds = time.perf_counter() - t0
+        print(
+            f"{seed:>10} {len(arrays):>7} {math.log10(float(info.opt_cost)):6.2f} "
+            f"{seconds:8.1f} {planner.last_method:>10}  (load {os.getloadavg()[0]:.1f})",
+            flush=True,
+        )
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--quick", action="store_true", help="small instances, short budgets")
@@ -104,9 +186,21 @@ def main() -> None:
         action="store_true",
         help="instead: slicing overhead at 1/16 of the unsliced peak (grids)",
     )
+    ap.add_argument(
+        "--door",
+        action="store_true",
+        help="instead: outside-built grid networks through opt_einsum's door",
+    )
+    ap.add_argument("--rows", type=int, default=10, help="--door: grid side")
+    ap.add_argument("--cycles", type=int, default=12, help="--door: cycles")
+    ap.add_argument("--budget", type=float, default=120.0, help="--door: planning seconds")
+    ap.add_argument("--orders", type=int, default=3, help="--door: presentations (seeds)")
     args = ap.parse_args()
     if args.slicing:
         slicing_table(args)
+        return
+    if args.door:
+        door_table(args)
         return
     print(
         f"# machine: {platform.processor() or platform.machine()}, python "

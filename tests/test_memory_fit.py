@@ -227,3 +227,52 @@ def test_planner_door_on_a_network_built_elsewhere_matches_numpy():
     np.testing.assert_allclose(got, want, rtol=1e-10, atol=1e-14)
     greedy = opt_einsum.contract_path(eq, *arrays, optimize="greedy")[1]
     assert float(info.opt_cost) <= float(greedy.opt_cost)
+
+
+def test_cut_sets_cut_the_network_in_two():
+    from tnsim.plan.hypergraph import Hypergraph
+    from tnsim.plan.search import _State
+    from tnsim.plan.tree import without_labels
+
+    net = _grid_net(4, 4, 6, "rotation")
+    ins, out, size = [tuple(ix) for ix in net.indices], tuple(net.output), dict(net.size)
+    state = _State(ins, out, size, "operations", 10**6, 16)
+    cuts = state.cut_sets(np.random.default_rng(0))
+    assert cuts
+    for cut in cuts:
+        rest, _ = without_labels(ins, out, cut)
+        hg = Hypergraph.of_tensors(rest, size)
+        # Connected components of what is left: more than one.
+        seen, comps = set(), 0
+        for s in range(len(rest)):
+            if s in seen:
+                continue
+            comps += 1
+            stack = [s]
+            seen.add(s)
+            while stack:
+                v = stack.pop()
+                for e in hg.incident[v]:
+                    for u in hg.pins[e]:
+                        if u not in seen:
+                            seen.add(u)
+                            stack.append(u)
+        assert comps >= 2
+
+
+def test_reslicing_the_best_tree_never_makes_the_search_worse():
+    from tnsim.plan.search import _State, _trial
+
+    net = _grid_net(5, 5, 8, "abcdcdab")
+    ins, out, size = [tuple(ix) for ix in net.indices], tuple(net.output), dict(net.size)
+    peak = make_plan(net, max_trials=3).peak_bytes
+    state = _State(ins, out, size, "operations", peak // 64, 16)
+    rng = np.random.default_rng(1)
+    for method in ("sweep", "cuts", "random-greedy"):
+        state.consider(_trial(method, ins, out, size, rng), method)
+    state.plan_around(rng, ["sweep", "cuts"])
+    before = state.sliced_best()[0]
+    state.reslice(None)
+    key, path, _, sliced = state.sliced_best()
+    assert key <= before
+    assert tree_cost(ins, out, size, path, sliced=sliced).peak_bytes <= peak // 64

@@ -75,9 +75,10 @@ class Plan:
         Planning time.
     timings : tuple of (str, float)
         Seconds spent per planning stage: ``"search"`` (planner trials, each
-        tree sliced and scored under a limit), ``"re-planning"`` (exact
-        re-planning of sub-trees), ``"slicing"`` (the final choice of labels,
-        with re-planning around them).
+        tree sliced and scored under a limit), ``"re-slicing"`` (under a limit:
+        the search's best trees sliced again with their sub-trees re-planned
+        after each label), ``"re-planning"`` (exact re-planning of sub-trees),
+        ``"slicing"`` (the final choice of labels, with re-planning around them).
     """
 
     tree: PairTree
@@ -373,11 +374,12 @@ def make_plan(
     return plan
 
 
-SEARCH_SHARE = 0.8
+SEARCH_SHARE = 0.9
 
 
 """Under a time budget and a memory limit, the search (trials, each tree sliced and scored,
-and its re-planning) ends by this share of the budget; the final slicing uses the rest."""
+the best trees sliced again with re-planning, and local re-planning) ends by this share of
+the budget; the final slicing uses the rest."""
 
 
 FINISH_RESERVE = 0.03
@@ -453,7 +455,8 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
     (:func:`slice_with_replanning`; neither way wins everywhere).  Returns
     ``(score, tree, method, (sliced, cost, num_slices))``.
     """
-    fixed, error, plain_best = [], None, None
+    fixed: list[tuple] = []
+    error, plain_best = None, None
     for cand, name, cut in trees:
         if fixed and deadline.passed():
             break
@@ -474,13 +477,19 @@ def _slice_candidates(trees, limit, itemsize, objective, write, deadline: Deadli
     plain_best = plain_best or fixed[0]  # the best tree before slicing
     fixed.sort(key=lambda row: row[0])
     best = fixed[0]
-    # Re-planned while the deadline allows: the best tree before slicing, then the rest
-    # cheapest first; without a deadline, the first REPLANNED of them.
-    order = [plain_best] + [row for row in fixed if row is not plain_best]
+    # Re-planned while the deadline allows: the cheapest, then the best tree before slicing
+    # (under a mild limit, slicing it afterwards often wins), then the rest cheapest first,
+    # each with at most half the time left; without a deadline, the best tree before slicing
+    # first, REPLANNED in all (so that the result is never costlier than that tree sliced
+    # afterwards, whatever the machine).
+    rest = [row for row in fixed if row is not plain_best]
+    order = [*rest[:1], plain_best, *rest[1:]] if deadline.timed else [plain_best, *rest]
     for rank, (_, cand, name, _) in enumerate(order):
         if deadline.passed() or (not deadline.timed and rank >= REPLANNED):
             break
         left = deadline.seconds()
+        if left is not None:
+            left *= 0.5
         seconds = None if left is None else max(0.02, min(1.0, left / 8))
         # From scratch: the adapted tree may want other labels than the search's.
         sliced, path, cost, num = slice_with_replanning(
@@ -504,7 +513,9 @@ REPLANNED = 3
 """Without a time budget, how many candidate trees the final slicing re-plans label by label."""
 
 
-def _args(tree: PairTree):
+def _args(
+    tree: PairTree,
+) -> tuple[tuple[tuple[int, ...], ...], tuple[int, ...], Mapping[int, int]]:
     """``(inputs, output, size)`` of a tree, the first arguments of the slicers."""
     return tree.inputs, tree.output, tree.size
 

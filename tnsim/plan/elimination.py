@@ -138,6 +138,7 @@ def tree_from_order(
                     key = (b.numel(b.merged(group[i], group[j])), i, j)
                     if best is None or key < best:
                         best = key
+            assert best is not None
             _, i, j = best
             x, y = group[i], group[j]
             group = [t for t in group if t not in (x, y)] + [b.join(x, y)]

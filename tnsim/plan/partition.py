@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import heapq
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 
 import networkx as nx
 import numpy as np
@@ -101,7 +101,7 @@ def _split(group, labels, weight, rng, imbalance, noise, refine, num_vectors=3, 
     vecs = _spectral(n, rows, cols, vals, rng, min(n - 2, num_vectors))
     lo = max(1, math.floor(n * (0.5 - imbalance)))
     hi = min(n - 1, math.ceil(n * (0.5 + imbalance)))
-    best = (math.inf, None, 0)
+    best: tuple[float, list[int], int] = (math.inf, list(group), n // 2)
     directions = list(np.eye(vecs.shape[1]))
     for _ in range(mixes):
         directions.append(rng.standard_normal(vecs.shape[1]))
@@ -212,16 +212,29 @@ def _cut_profile(order, labels, weight) -> list[float]:
     return prof
 
 
-_EMBEDDINGS: dict[tuple, list[tuple[list[int], np.ndarray]]] = {}
+_EMBEDDINGS: dict[tuple, list[tuple[list[int], np.ndarray, np.ndarray, np.ndarray]]] = {}
+
+
+DIRECTIONS = 48
+
+
+"""Directions of the spectral embedding scored per network for sweeps (besides the axes)."""
 
 
 def _embedding(labels: Sequence[frozenset[int]], size, num_vectors: int):
-    """Connected components of the tensor graph and each one's spectral embedding (cached).
+    """Connected components of the tensor graph, their spectral embeddings and sweep directions.
 
     The embedding is the ``num_vectors`` lowest non-trivial eigenvectors of the
     component's Laplacian (edge weights: log2 of the label size, shared out over
     a hyperedge's holders), computed with a fixed seed so that it can be reused
-    by every sweep trial on the same network.
+    by every sweep trial on the same network.  Each component also gets
+    candidate directions in that space, best first, with their scores: the
+    log2 of the sum of ``2 ** front`` over the cuts of the order by projection
+    (:func:`_cut_profile`).  On a grid circuit the two lowest eigenvectors span
+    its two grid directions but in an arbitrary rotation (their eigenvalues are
+    nearly equal), and a sweep along a diagonal has fronts twice as wide as one
+    along a grid direction: the scores find the grid directions.  Returns
+    ``(members, vectors, directions, scores)`` per component.
     """
     key = (tuple(tuple(sorted(ix)) for ix in labels), num_vectors)
     if key in _EMBEDDINGS:
@@ -238,22 +251,47 @@ def _embedding(labels: Sequence[frozenset[int]], size, num_vectors: int):
         groups.setdefault(c, []).append(t)
     for members in groups.values():
         if len(members) <= 2:
-            parts.append((members, np.zeros((len(members), 1))))
+            one = np.ones((1, 1))
+            parts.append((members, np.zeros((len(members), 1)), one, np.zeros(1)))
             continue
         r, c, v = _edges(members, labels, weight)
         vecs = _spectral(len(members), r, c, v, rng, min(len(members) - 2, num_vectors))
-        parts.append((members, vecs))
+        dirs, scores = _score_directions([labels[t] for t in members], weight, vecs, rng)
+        parts.append((members, vecs, dirs, scores))
     if len(_EMBEDDINGS) >= 8:
         _EMBEDDINGS.pop(next(iter(_EMBEDDINGS)))
     _EMBEDDINGS[key] = parts
     return parts
 
 
+def _score_directions(labels, weight, vecs: np.ndarray, rng: np.random.Generator):
+    """Candidate sweep directions (rows, best first) and their scores (see :func:`_embedding`)."""
+    k = vecs.shape[1]
+    cands: list[np.ndarray] = [np.eye(k)[a] for a in range(k)]
+    if k >= 2:
+        # The plane of the two lowest eigenvectors, finely: grid directions lie in it.
+        for ang in np.linspace(0.0, math.pi, 25)[1:-1]:
+            d = np.zeros(k)
+            d[0], d[1] = math.cos(ang), math.sin(ang)
+            cands.append(d)
+    for _ in range(DIRECTIONS - len(cands)):
+        r = rng.standard_normal(k)
+        cands.append(r / np.linalg.norm(r))
+    scores: list[float] = []
+    for d in cands:
+        order = np.argsort(vecs @ d, kind="stable").tolist()
+        prof = np.array(_cut_profile(order, labels, weight))
+        top = float(prof.max()) if len(prof) else 0.0
+        scores.append(top + math.log2(float(np.exp2(prof - top).sum())) if len(prof) else 0.0)
+    rank = np.argsort(scores, kind="stable")
+    return np.array(cands)[rank], np.array(scores)[rank]
+
+
 def sweep_order(
     labels: Sequence[frozenset[int]],
-    output: Sequence[int],
+    output: Iterable[int],
     size: Mapping[int, int],
-    position: Sequence[float],
+    position: Sequence[float] | np.ndarray,
     *,
     pull: float = 3.0,
     noise: float = 0.0,
@@ -314,7 +352,7 @@ def sweep_order(
             continue
         inside[t] = True
         order.append(t)
-        touched = set()
+        touched: set[int] = set()
         for i in labels[t]:
             left[i] -= 1
             if left[i] > 0 or i in out:
@@ -340,11 +378,12 @@ def sweep_path(
 ) -> tuple[tuple[int, int], ...]:
     """Plan a sweep: tensors absorbed one by one into a growing front (:func:`sweep_order`).
 
-    The direction of the sweep is one of the network's spectral coordinates
-    (the ``num_vectors`` lowest Laplacian eigenvectors, the lower ones more
-    often; on a grid circuit the first two follow its rows and columns) plus
-    ``mix`` times a random mixture of all of them, with a random sign.  Each connected component is
-    swept on its own; the components are then joined greedily.
+    The direction of the sweep is drawn from directions in the space of the
+    network's ``num_vectors`` lowest Laplacian eigenvectors, those whose
+    projected order has the thinnest fronts more often (see :func:`_embedding`),
+    plus ``mix`` times a random mixture of the eigenvectors, with a random sign.
+    Each connected component is swept on its own; the components are then
+    joined greedily.
 
     Examples
     --------
@@ -355,14 +394,15 @@ def sweep_path(
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     b = PathBuilder(inputs, output, size)
     roots = []
-    for members, vecs in _embedding(b.labels, size, num_vectors):
+    for members, vecs, dirs, scores in _embedding(b.labels, size, num_vectors):
         if len(members) <= 2:
             roots.append(b.join_greedy(members))
             continue
         k = vecs.shape[1]
-        # Lower eigenvectors vary slowest across the network: draw them more often.
-        axis = int(rng.choice(k, p=np.arange(k, 0, -1) / (k * (k + 1) / 2)))
-        direction = np.eye(k)[axis] * rng.choice([-1.0, 1.0])
+        # Directions whose projected order has thin fronts, the best more often: weight
+        # 2 ** -(score - best) (a direction one bit worse is drawn half as often).
+        p = np.exp2(-(scores - scores[0]))
+        direction = dirs[int(rng.choice(len(dirs), p=p / p.sum()))] * rng.choice([-1.0, 1.0])
         direction = direction + mix * rng.standard_normal(k)
         z = vecs @ direction
         position = np.empty(len(members))

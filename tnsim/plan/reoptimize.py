@@ -2,10 +2,10 @@
 
 For an internal node, its sub-tree is cut at a frontier of at most
 ``max_leaves`` nodes (the largest nodes are expanded first); the frontier is a
-small self-contained network whose output is the node's labels.  opt_einsum's
-exact planners (``optimal`` for a few leaves, ``dp`` for more) re-order it and
-the new sub-tree replaces the old one when it costs fewer FLOPs under
-:mod:`tnsim.plan.tree`'s model.  With a size cap, re-planned sub-trees keep
+small self-contained network whose output is the node's labels.  An exact
+planner (:func:`tnsim.plan.exact.exact_path` up to its size, opt_einsum's
+``dp`` beyond) re-orders it and the new sub-tree replaces the old one when it
+costs fewer FLOPs under :mod:`tnsim.plan.tree`'s model.  With a size cap, re-planned sub-trees keep
 every intermediate within ``max(cap, the sub-tree's largest before)``, so
 re-planning never makes a sliced tree need more memory than the cap allows.
 """
@@ -18,6 +18,7 @@ from collections.abc import Mapping, Sequence
 import opt_einsum.paths as oe_paths
 
 from tnsim.plan import clock
+from tnsim.plan.exact import MAX_LEAVES, exact_plan
 from tnsim.plan.tree import linear_to_ssa, step_flops, step_labels, tree_cost
 
 __all__ = ["reoptimize_path"]
@@ -32,13 +33,18 @@ class _Tree:
         for s, (x, y) in enumerate(path):
             self.children[self.n + s] = (x, y)
         self.root = self.n + len(path) - 1 if path else None
+        self._numel: dict[int, int] = {}
         self.flops = {
             v: step_flops(self.labels[x], self.labels[y], self.labels[v], size)
             for v, (x, y) in self.children.items()
         }
 
     def numel(self, v: int) -> int:
-        return math.prod(self.size[i] for i in self.labels[v])
+        # A node id keeps its labels for good (new nodes get new ids): cache the size.
+        got = self._numel.get(v)
+        if got is None:
+            got = self._numel[v] = math.prod(self.size[i] for i in self.labels[v])
+        return got
 
     def frontier(self, v: int, k: int) -> tuple[list[int], list[int]]:
         """Frontier of at most ``k`` nodes under ``v`` and the internal nodes above it."""
@@ -101,6 +107,26 @@ class _Tree:
         )
 
 
+def _best_order(sub_in, sub_out, sizes, cap):
+    """An exact order of a small sub-network and its FLOPs, or ``None`` if none fits ``cap``.
+
+    :func:`~tnsim.plan.exact.exact_plan` up to its size (its cost is the sub-tree's
+    FLOPs: every label of a frontier node is held by another or by the result, so no
+    leaf sums a label of its own), opt_einsum's ``dp`` beyond (costed exactly).
+    """
+    if len(sub_in) <= MAX_LEAVES and len(set().union(*sub_in)) <= 64:
+        return exact_plan(sub_in, sub_out, sizes, max_numel=cap)
+    try:
+        linear = oe_paths.dynamic_programming(list(sub_in), sub_out, sizes, memory_limit=cap)
+    except (ValueError, RuntimeError):
+        return None
+    ssa = linear_to_ssa(linear, len(sub_in))
+    new = tree_cost(sub_in, sub_out, sizes, ssa)
+    if cap is not None and new.largest > cap:
+        return None
+    return ssa, float(new.flops)
+
+
 def _keep(labels, front, ssa, s, k, out) -> frozenset:
     """Labels of step ``s``'s result in a sub-network over ``front`` with output ``out``."""
     node_labels = [labels[t] for t in front]
@@ -143,7 +169,7 @@ def reoptimize_path(
     ...     ins, (), size, bad).flops
     True
     """
-    path = tuple(tuple(p) for p in path)
+    path = tuple((int(x), int(y)) for x, y in path)
     if len(path) < 2:
         return path
     start = clock.now()
@@ -168,15 +194,10 @@ def reoptimize_path(
             cap = None
             if max_numel is not None:
                 cap = max(max_numel, max(t.numel(u) for u in inner))
-            opt = oe_paths.optimal if len(front) <= 5 else oe_paths.dynamic_programming
-            try:
-                linear = opt(list(sub_in), sub_out, sizes, memory_limit=cap)
-            except (ValueError, RuntimeError):
-                continue
-            ssa = linear_to_ssa(linear, len(front))
-            new = tree_cost(sub_in, sub_out, size, ssa)
-            if new.flops < old and (cap is None or new.largest <= cap):
-                t.replace(v, front, inner, ssa)
+            found = _best_order(sub_in, sub_out, sizes, cap)
+            # (Floats: a rounding difference is no improvement.)
+            if found is not None and found[1] < old * (1 - 1e-9):
+                t.replace(v, front, inner, found[0])
                 improved = True
         if not improved:
             break

@@ -25,11 +25,14 @@ from tnsim.fitted import WRITE_FLOPS
 from tnsim.plan import clock
 from tnsim.plan.builder import plan_coarse
 from tnsim.plan.clock import Deadline, TimeLog
+from tnsim.plan.divide import divide_path
 from tnsim.plan.elimination import elimination_path
+from tnsim.plan.hypergraph import Hypergraph, bisect
+from tnsim.plan.ordering import cut_path
 from tnsim.plan.partition import bisection_path, sweep_path
 from tnsim.plan.reoptimize import reoptimize_path
 from tnsim.plan.slicecost import TreeProfile
-from tnsim.plan.slicing import slice_profile
+from tnsim.plan.slicing import slice_profile, slice_with_replanning
 from tnsim.plan.tree import TreeCost, join_pairwise, memory_order, tree_cost, without_labels
 
 __all__ = [
@@ -132,7 +135,7 @@ def random_greedy_path(
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
 
     def choose(queue, remaining):
-        choices = []
+        choices: list = []
         while queue and len(choices) < nbranch:
             cand = heapq.heappop(queue)
             if cand[1] in remaining and cand[2] in remaining:
@@ -152,15 +155,16 @@ def random_greedy_path(
         return chosen
 
     ins = [frozenset(ix) for ix in inputs]
-    if cost_fn == "memory-removed-jitter":
 
-        def cost(size12, size1, size2, k12, k1, k2):
-            return (size12 - size1 - size2) * (1 + 0.01 * rng.standard_normal())
+    def jitter(size12, size1, size2, k12, k1, k2):
+        return (size12 - size1 - size2) * (1 + 0.01 * rng.standard_normal())
 
-    else:
-        cost = cost_fn
     ssa = oe_paths.ssa_greedy_optimize(
-        ins, frozenset(output), dict(size), choose_fn=choose, cost_fn=cost
+        ins,
+        frozenset(output),
+        dict(size),
+        choose_fn=choose,
+        cost_fn=jitter if cost_fn == "memory-removed-jitter" else cost_fn,
     )
     return _pairs(ssa, len(ins))
 
@@ -206,6 +210,24 @@ def _planner(method: str, inputs, output, size, rng: np.random.Generator):
             noise=float(rng.choice([0.0, 0.2, 0.5])),
             seed=rng,
         )
+    if method == "cuts":
+        return cut_path(
+            inputs,
+            output,
+            size,
+            imbalance=float(rng.choice([0.1, 0.3, 0.5, 0.7])),
+            leaf_size=int(rng.choice([4, 6, 8])),
+            seed=rng,
+        )
+    if method == "divide":
+        return divide_path(
+            inputs,
+            output,
+            size,
+            imbalance=float(rng.choice([0.05, 0.2, 0.4, 0.6, 0.8])),
+            leaf_size=int(rng.choice([4, 6, 8, 12])),
+            seed=rng,
+        )
     if method == "sweep":
         return sweep_path(
             inputs,
@@ -219,7 +241,21 @@ def _planner(method: str, inputs, output, size, rng: np.random.Generator):
     raise ValueError(f"unknown planner {method!r}")
 
 
-METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep")
+RESLICE_EVERY = 8
+
+
+"""Under a memory limit, the best sliced tree not yet re-sliced is sliced again from scratch,
+re-planning its sub-trees after each label, after every this many trials (and every tree
+planned around labels is, at once)."""
+
+
+RESLICE_SHARE = 0.1
+
+
+"""Share of the trials' time one such re-slicing may take (never past their end)."""
+
+
+METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep", "cuts", "divide")
 
 
 def _trial(method: str, inputs, output, size, rng: np.random.Generator):
@@ -269,8 +305,8 @@ def search_path(
     inputs, output, size
         The network.
     time_budget : float or None
-        Seconds for the whole search (trials take about 70%, sub-tree
-        re-planning the rest); at least one trial always runs.  ``None``: no
+        Seconds for the whole search (trials take about 70%, 85% under a
+        memory limit, sub-tree re-planning the rest); at least one trial always runs.  ``None``: no
         time limit (then ``max_trials`` defaults to 16), fully reproducible.
     max_trials : int, optional
         Stop after this many trials.
@@ -282,8 +318,11 @@ def search_path(
         Bytes one slice's intermediates may use.  Every tree over it is sliced
         to fit (:func:`~tnsim.plan.slicing.slice_profile`) and scored by its
         sliced cost, all slices together; between trials, trees are also
-        planned on the network with the best slicing's labels removed, and the
-        finalists are re-planned locally with those labels sliced.  The best
+        planned on the network with some labels removed (a prefix of the best
+        slicing's, or a share of a small balanced cut's) and sliced with them
+        first, the best sliced tree is sliced again from scratch with its
+        sub-trees re-planned after each label (every ``RESLICE_EVERY`` trials),
+        and the finalists are re-planned locally with their labels sliced.  The best
         tree *before* slicing is kept too (as the first alternative), re-planned
         as without a limit: so with the same seed and trial budget the result is
         never costlier than that tree sliced afterwards.
@@ -303,7 +342,8 @@ def search_path(
     deadline : Deadline, optional
         A deadline of the caller's that the search never passes (besides ``time_budget``).
     log : TimeLog, optional
-        Gets the seconds spent on trials (``"search"``) and re-planning (``"re-planning"``).
+        Gets the seconds spent on trials (``"search"``), on re-slicing the best trees
+        under a memory limit (``"re-slicing"``) and on re-planning (``"re-planning"``).
 
     Returns
     -------
@@ -329,7 +369,9 @@ def search_path(
     state = _State(inputs, output, size, objective, memory_limit, itemsize)
     trial_end = Deadline(None)
     if total.timed:
-        trial_end.end = start + (0.7 if reoptimize else 1.0) * (total.end - start)
+        # Under a limit the trials include the re-slicing of the best trees: they get more.
+        share = (0.7 if memory_limit is None else 0.85) if reoptimize else 1.0
+        trial_end.end = start + share * (total.end - start)
     trials = 0
     bar = None
     if progress:
@@ -341,6 +383,7 @@ def search_path(
     # generator: the main sequence of trials stays the one a search without a limit runs.
     around = np.random.default_rng([seed, 1])
     longest = 0.0
+    log.add("search", 0.0)  # listed first
     try:
         with log.stage("search"):
             while True:
@@ -355,9 +398,24 @@ def search_path(
                 began = clock.now()
                 state.consider(_trial(method, inputs, output, size, rng), method)
                 trials += 1
-                if state.limit is not None and trials % 3 == 0 and state.sliced_best():
-                    state.plan_around(around, [m for m in methods if m != "greedy"] or methods)
+                planned = None
+                if state.limit is not None and trials % 2 == 0:
+                    pool = [m for m in methods if m != "greedy"] or methods
+                    planned = state.plan_around(around, pool)
                 longest = max(longest, clock.now() - began)
+                if state.limit is not None and (planned or trials % RESLICE_EVERY == 0):
+                    seconds = None
+                    if trial_end.timed:
+                        seconds = min(
+                            RESLICE_SHARE * (trial_end.end - start), trial_end.end - clock.now()
+                        )
+                    if seconds is None or seconds > 0:
+                        began = clock.now()
+                        state.reslice(seconds, planned)
+                        # Counted as its own stage (the "search" stage around it gives it back).
+                        spent = clock.now() - began
+                        log.add("re-slicing", spent)
+                        log.add("search", -spent)
                 if bar is not None:
                     bar.update(1)
                     bar.set_postfix(log10_flops=f"{math.log10(max(state.best_flops(), 1)):.2f}")
@@ -396,6 +454,9 @@ class _State:
         # Rows: (key, path, method, sliced labels); per planner by unsliced key, and by sliced key.
         self.plain: dict[str, tuple] = {}
         self.cut: dict[str, tuple] = {}
+        self.cuts: list[list[int]] | None = None
+        self.resliced: set[tuple[tuple[int, int], ...]] = set()
+        self.holders: dict[int, list[int]] | None = None
 
     # -- scoring ---------------------------------------------------------------------------------
 
@@ -458,17 +519,127 @@ class _State:
 
     # -- trees planned around the slices --------------------------------------------------------
 
-    def plan_around(self, rng: np.random.Generator, pool) -> None:
-        """Plan a tree on the network without (a prefix of) the best slicing's labels."""
+    def plan_around(self, rng: np.random.Generator, pool) -> tuple | None:
+        """Plan a tree on the network with some labels removed; slice it with them first.
+
+        The labels are a prefix of the best slicing so far, or (half the time, and
+        always before there is one) a random share of the labels of a small
+        balanced cut (:meth:`cut_sets`).  A grid-like network can only be sliced
+        cheaply where the sliced labels lie on most of its wide intermediates;
+        fixing part of a narrow cut splits it into two weakly joined halves, which
+        sweeps ordered around the cut then contract with narrow fronts.
+        """
         best = self.sliced_best()
-        labels = best[3]
-        if not labels:
-            return
-        keep = labels[: int(rng.integers(max(1, len(labels) // 2), len(labels) + 1))]
+        labels = best[3] if best is not None else ()
+        cuts = self.cut_sets(rng)
+        if cuts and (not labels or rng.random() < 0.5):
+            cut = cuts[int(rng.integers(len(cuts)))]
+            # Half to four fifths of the cut: fewer leave the halves joined too widely (on
+            # 10x10 grid circuits under 2 GiB the best plans slice 16 to 20 of a cut's 30).
+            k = int(rng.integers(max(1, len(cut) // 2), max(1, (4 * len(cut)) // 5) + 1))
+            if rng.random() < 0.5:
+                keep = self.segment(cut, k, rng)
+            else:
+                keep = [int(i) for i in rng.permutation(cut)[:k]]
+        elif labels:
+            keep = list(labels[: int(rng.integers(max(1, len(labels) // 2), len(labels) + 1))])
+        else:
+            return None
         ins, out = without_labels(self.inputs, self.output, keep)
-        method = str(rng.choice(pool))
+        method = "cuts" if "cuts" in pool and rng.random() < 0.8 else str(rng.choice(pool))
         path = _trial(method, ins, out, self.size, rng)
-        self.consider(path, f"{method}", preset=keep)
+        self.consider(path, method, preset=keep)
+        return path, method
+
+    def reslice(self, seconds: float | None, planned: tuple | None = None) -> None:
+        """Slice a tree again from scratch, re-planning its sub-trees after each label.
+
+        The tree is ``planned`` (``(path, planner)``), or else the best sliced tree
+        not yet re-sliced.  :func:`~tnsim.plan.slicing.slice_with_replanning` runs
+        within ``seconds`` (``None``: no limit); the adapted tree and its labels are
+        considered like a trial's, so they also steer :meth:`plan_around`.  A tree
+        planned around part of a cut often slices far cheaper this way than with
+        the labels it was planned around.
+        """
+        assert self.limit is not None
+        if planned is None:
+            rows = sorted(self.cut.values(), key=lambda r: r[0])
+            rows = [r for r in rows if r[1] not in self.resliced]
+            if not rows:
+                return
+            planned = (rows[0][1], rows[0][2])
+        path, method = planned
+        path = memory_order(self.inputs, self.output, self.size, path)
+        if path in self.resliced:
+            return
+        self.resliced.add(path)
+        sliced, adapted, _, _ = slice_with_replanning(
+            self.inputs,
+            self.output,
+            self.size,
+            path,
+            self.limit,
+            itemsize=self.itemsize,
+            time_budget=None if seconds is None else max(0.02, seconds / 8),
+            total_budget=seconds,
+            write_flops=self.write,
+        )
+        self.resliced.add(adapted)
+        self.consider(adapted, method, preset=sliced)
+
+    def segment(self, cut: Sequence[int], k: int, rng: np.random.Generator) -> list[int]:
+        """``k`` labels of a cut that lie together: breadth first from a random one of them.
+
+        Two labels of the cut are neighbours when a tensor holding one shares a label
+        with a tensor holding the other.  Fixing such a run of a cut's labels opens a
+        slit in a grid-like network, around whose end each slice can be swept with
+        narrow fronts (where labels spread along the whole cut leave it joined).
+        """
+        if self.holders is None:
+            self.holders = {}
+            for t, ix in enumerate(self.inputs):
+                for i in ix:
+                    self.holders.setdefault(i, []).append(t)
+        holders = self.holders
+        near = {i: {u for t in holders[i] for j in self.inputs[t] for u in holders[j]} for i in cut}
+        members = set(cut)
+        start = int(cut[int(rng.integers(len(cut)))])
+        seen = [start]
+        done = {start}
+        k_at = 0
+        while len(seen) < k and k_at < len(seen):
+            i = seen[k_at]
+            k_at += 1
+            for j in sorted(members - done):
+                if near[i] & set(holders[j]):
+                    done.add(j)
+                    seen.append(j)
+        return seen[:k]
+
+    def cut_sets(self, rng: np.random.Generator) -> list[list[int]]:
+        """The sliceable labels of a few small balanced cuts of the network (made once).
+
+        Cuts by :func:`~tnsim.plan.hypergraph.bisect` with the balance at 0.1, 0.3, 0.5.
+        """
+        if self.cuts is None:
+            self.cuts = []
+            hg = Hypergraph.of_tensors(self.inputs, self.size)
+            if hg.num_vertices >= 4 and hg.pins:
+                holders: dict[int, list[int]] = {}
+                for t, ix in enumerate(self.inputs):
+                    for i in ix:
+                        holders.setdefault(i, []).append(t)
+                out = set(self.output)
+                for imbalance in (0.1, 0.3, 0.5):
+                    part = bisect(hg, imbalance, rng)
+                    cut = sorted(
+                        i
+                        for i, hs in holders.items()
+                        if i not in out and len({part[t] for t in hs}) > 1
+                    )
+                    if cut:
+                        self.cuts.append(cut)
+        return self.cuts
 
     # -- local re-planning ----------------------------------------------------------------------
 

@@ -208,6 +208,7 @@ def _next_label(inputs, output, size, path, sliced, cost, itemsize, candidates, 
         key = (gain <= 0, ratio, trial.peak_bytes, i)
         if best is None or key < best[0]:
             best = (key, i, trial)
+    assert best is not None
     return best[1], best[2]
 
 
