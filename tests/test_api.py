@@ -42,6 +42,19 @@ def test_import_is_lazy_and_version_comes_from_metadata():
     assert version[0].isdigit()
 
 
+def test_help_loads_no_heavy_module():
+    # Start-up of the command line (issue 14: ``tnsim --help`` within 0.2 s) depends on
+    # loading no numerical library; a top-level import of numpy in a module the parser
+    # needs (tnsim.units did) brings back ~60 ms.
+    code = (
+        "import sys; from tnsim.cli import build_parser; build_parser().format_help(); "
+        "print(sorted({m.split('.')[0] for m in sys.modules} & "
+        "{'numpy', 'scipy', 'networkx', 'opt_einsum', 'tqdm'}))"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"
+
+
 def test_amplitude_return_type_follows_the_scaled_flag():
     from tnsim.queries.amplitudes import amplitude
 

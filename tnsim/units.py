@@ -11,11 +11,9 @@ from __future__ import annotations
 import math
 import numbers
 import re
-
-import numpy as np
+import sys
 
 from tnsim.errors import InputError
-from tnsim.validate import quote
 
 __all__ = ["format_bytes", "parse_memory"]
 
@@ -38,6 +36,21 @@ _UNITS = {
 
 
 _PATTERN = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([a-zA-Z]*)\s*$")
+
+
+def _quote(value: object) -> str:
+    """:func:`tnsim.validate.quote`, imported only on an error path (it loads numpy)."""
+    from tnsim.validate import quote as shown
+
+    return shown(value)
+
+
+def _is_bool(value: object) -> bool:
+    """Whether ``value`` is a Python or numpy boolean (numpy is not imported for this)."""
+    if isinstance(value, bool):
+        return True
+    np = sys.modules.get("numpy")  # a numpy boolean exists only once numpy is loaded
+    return np is not None and isinstance(value, np.bool_)
 
 
 def parse_memory(value: int | float | str) -> int:
@@ -67,11 +80,11 @@ def parse_memory(value: int | float | str) -> int:
     >>> parse_memory(2048)
     2048
     """
-    if isinstance(value, (bool, np.bool_)):
+    if _is_bool(value):
         raise InputError(f"memory limit must be bytes or text such as '4GiB', got {value!r}")
     if isinstance(value, numbers.Integral):
         if value < 1:
-            raise InputError(f"memory limit must be at least 1 byte, got {quote(value)}")
+            raise InputError(f"memory limit must be at least 1 byte, got {_quote(value)}")
         return int(value)
     if isinstance(value, numbers.Real):
         number, unit = float(value), ""
@@ -79,15 +92,15 @@ def parse_memory(value: int | float | str) -> int:
         match = _PATTERN.match(value) if len(value) <= 100 else None
         if match is None or match.group(2).lower() not in _UNITS:
             raise InputError(
-                f"cannot read memory limit {quote(value)}; give bytes or a number with a unit "
+                f"cannot read memory limit {_quote(value)}; give bytes or a number with a unit "
                 "such as '4GiB', '512MiB' or '8GB'"
             )
         number, unit = float(match.group(1)), match.group(2).lower()
     else:
-        raise InputError(f"memory limit must be bytes or text such as '4GiB', got {quote(value)}")
+        raise InputError(f"memory limit must be bytes or text such as '4GiB', got {_quote(value)}")
     total = number * _UNITS[unit]
     if not math.isfinite(total) or total < 1:
-        raise InputError(f"memory limit must be at least 1 byte, got {quote(value)}")
+        raise InputError(f"memory limit must be at least 1 byte, got {_quote(value)}")
     return int(total)
 
 

@@ -6,8 +6,11 @@ imports none of them.
 
 from __future__ import annotations
 
-from tnsim.circuits.circuit import Circuit
-from tnsim.circuits.noise import NoisyCircuit
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # kept out of start-up (``tnsim --help`` loads no circuit code)
+    from tnsim.circuits.circuit import Circuit
+    from tnsim.circuits.noise import NoisyCircuit
 
 __all__ = ["NOISE_HELP", "add_noise_argument", "noisy_circuit"]
 
