@@ -523,9 +523,7 @@ def _args(
 def _reoptimize_sliced(tree, sliced, cost, limit, itemsize, objective, seconds):
     """Re-plan sub-trees of the sliced tree; keep the result if it still fits."""
     ins, out = without_labels(tree.inputs, tree.output, sliced)
-    new = reoptimize_path(
-        ins, out, tree.size, tree.path, max_leaves=8, passes=1, time_budget=seconds
-    )
+    new = reoptimize_path(ins, out, tree.size, tree.path, frontier=8, passes=1, time_budget=seconds)
     new_cost = tree_cost(ins, out, tree.size, new, itemsize=itemsize)
     if score(new_cost, objective) < score(cost, objective) and new_cost.peak_bytes <= limit:
         return PairTree(tree.inputs, tree.output, tree.size, new), new_cost

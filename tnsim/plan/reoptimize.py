@@ -1,7 +1,7 @@
 """Local improvement of a contraction tree: re-plan small sub-trees exactly.
 
 For an internal node, its sub-tree is cut at a frontier of at most
-``max_leaves`` nodes (the largest nodes are expanded first); the frontier is a
+``frontier`` nodes (the largest nodes are expanded first); the frontier is a
 small self-contained network whose output is the node's labels.  An exact
 planner (:func:`tnsim.plan.exact.exact_path` up to its size, opt_einsum's
 ``dp`` beyond) re-orders it and the new sub-tree replaces the old one when it
@@ -145,13 +145,13 @@ def reoptimize_path(
     size: Mapping[int, int],
     path: Sequence[tuple[int, int]],
     *,
-    max_leaves: int = 8,
+    frontier: int = 8,
     passes: int = 2,
     time_budget: float | None = None,
     min_fraction: float = 1e-6,
     max_numel: int | None = None,
 ) -> tuple[tuple[int, int], ...]:
-    """Improve an SSA path by re-planning sub-trees of up to ``max_leaves`` leaves exactly.
+    """Improve an SSA path by re-planning sub-trees of up to ``frontier`` leaves exactly.
 
     Nodes are visited from the most expensive down, skipping steps cheaper
     than ``min_fraction`` of the total; a pass stops early once
@@ -184,7 +184,7 @@ def reoptimize_path(
                 break
             if v not in t.children:
                 continue
-            front, inner = t.frontier(v, max_leaves)
+            front, inner = t.frontier(v, frontier)
             if len(front) < 3:
                 continue
             old = sum(t.flops[u] for u in inner)

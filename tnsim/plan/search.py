@@ -678,7 +678,7 @@ class _State:
                 self.output,
                 self.size,
                 path,
-                max_leaves=leaves,
+                frontier=leaves,
                 passes=4,
                 time_budget=total.left(),
             )

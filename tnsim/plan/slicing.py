@@ -221,7 +221,7 @@ def slice_with_replanning(
     *,
     itemsize: int = 16,
     candidates: int = 24,
-    max_leaves: int = 8,
+    frontier: int = 8,
     passes: int = 3,
     time_budget: float | None = None,
     write_flops: float = 0.0,
@@ -230,7 +230,7 @@ def slice_with_replanning(
 ) -> tuple[tuple[int, ...], tuple[tuple[int, int], ...], TreeCost, int]:
     """Slice one label at a time, re-planning the tree's sub-trees after each.
 
-    After each label is fixed, sub-trees of up to ``max_leaves`` leaves are
+    After each label is fixed, sub-trees of up to ``frontier`` leaves are
     re-planned exactly in up to ``passes`` passes
     (:func:`~tnsim.plan.reoptimize.reoptimize_path`) with no new intermediate
     above a third of the limit, then the steps are put in memory order: the
@@ -286,7 +286,7 @@ def slice_with_replanning(
                 out,
                 size,
                 path,
-                max_leaves=max_leaves,
+                frontier=frontier,
                 passes=passes,
                 time_budget=seconds,
                 max_numel=cap,
