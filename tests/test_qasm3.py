@@ -727,7 +727,11 @@ def test_other_includes_are_refused(tmp_path, files, include, fragment):
 
 
 @pytest.mark.skipif(not hasattr(os, "symlink"), reason="needs symbolic links")
-def test_an_include_linking_out_of_the_folder_is_refused(tmp_path):
+@pytest.mark.parametrize(
+    ("header", "register"), [(H3, "qubit q;"), ("OPENQASM 2.0;\n", "qreg q[1];")]
+)
+def test_an_include_linking_out_of_the_folder_is_refused(tmp_path, header, register):
+    # One rule for both readers (tnsim.circuits.qasm.files.include_path).
     outside = tmp_path / "outside"
     outside.mkdir()
     (outside / "secret.inc").write_text("gate secret a { x a; }\n")
@@ -735,7 +739,7 @@ def test_an_include_linking_out_of_the_folder_is_refused(tmp_path):
     inside.mkdir()
     (inside / "defs.inc").symlink_to(outside / "secret.inc")
     main_file = inside / "main.qasm"
-    main_file.write_text(H3 + 'include "defs.inc";\nqubit q;\n')
+    main_file.write_text(header + f'include "defs.inc";\n{register}\n')
     with pytest.raises(QasmError, match="links leading elsewhere"):
         read_qasm(main_file)
 

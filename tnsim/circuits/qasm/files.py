@@ -7,7 +7,7 @@ from pathlib import Path
 
 from tnsim.errors import InputError, QasmError
 
-__all__ = ["looks_like_missing_file", "names_file", "read_text"]
+__all__ = ["IncludeRefused", "include_path", "looks_like_missing_file", "names_file", "read_text"]
 
 
 def read_text(path: Path) -> str:
@@ -22,6 +22,40 @@ def read_text(path: Path) -> str:
         line = data.count(b"\n", 0, exc.start) + 1
         column = exc.start - (data.rfind(b"\n", 0, exc.start) + 1) + 1
         raise QasmError("the file is not UTF-8 text", str(path), line, column) from None
+
+
+class IncludeRefused(Exception):
+    """An include that cannot be read; the reader reports it at the include's position."""
+
+
+def include_path(directory: Path | None, filename: str, builtin: str) -> Path:
+    """The real path of the include ``filename`` beside the circuit file in ``directory``.
+
+    Only a plain file name of a file in that very folder is accepted, links
+    resolved before the check (a link leading elsewhere is refused); program
+    text read from a string (``directory`` ``None``) includes nothing but the
+    built-in library ``builtin``.  Raises :class:`IncludeRefused` with what to
+    do.  One rule for the OpenQASM 2.0 and 3 readers.
+    """
+    if directory is None:
+        raise IncludeRefused(
+            f"cannot include '{filename}' when reading text: only {builtin} is built in; "
+            "read the program from a file with the include beside it, or paste the gate "
+            "definitions into the program"
+        )
+    if not filename or filename in (".", "..") or any(c in filename for c in "/\\\0:"):
+        raise IncludeRefused(
+            f"include '{filename}' must be a plain file name of a file beside the circuit "
+            "file (no directories)"
+        )
+    folder = Path(os.path.realpath(directory))
+    path = Path(os.path.realpath(directory / filename))
+    if path.parent != folder or not path.is_file():
+        raise IncludeRefused(
+            f"include file '{filename}' not found beside the circuit file (looked in "
+            f"{folder}; links leading elsewhere are not followed); only {builtin} is built in"
+        )
+    return path
 
 
 def names_file(text: str) -> bool:

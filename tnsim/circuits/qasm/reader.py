@@ -17,7 +17,13 @@ from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.qasm.arith import constant, parse_expression
 from tnsim.circuits.qasm.definitions import QELIB1
 from tnsim.circuits.qasm.fast import read_simple_statements
-from tnsim.circuits.qasm.files import looks_like_missing_file, names_file, read_text
+from tnsim.circuits.qasm.files import (
+    IncludeRefused,
+    include_path,
+    looks_like_missing_file,
+    names_file,
+    read_text,
+)
 from tnsim.circuits.qasm.header import UNITARY_ONLY
 from tnsim.circuits.qasm.lexer import Source, Token, describe
 from tnsim.circuits.qasm.program import Program
@@ -170,34 +176,11 @@ class _Parser(StatementParser):
         self.program.include_stack.pop()
 
     def resolve_include(self, filename: str, tok: Token) -> Path:
-        if self.directory is None:
-            raise self.error(
-                f"cannot include '{filename}' when reading text: only qelib1.inc is built in; "
-                "read the program from a file with the include beside it, or paste the gate "
-                "definitions into the program",
-                tok,
-            )
-        if not filename or filename in (".", "..") or any(c in filename for c in "/\\\0:"):
-            raise self.error(
-                f"include '{filename}' must be a plain file name of a file beside the circuit "
-                "file (no directories)",
-                tok,
-            )
-        path = self.directory / filename
-        if not path.is_file():
-            raise self.error(
-                f"include file '{filename}' not found (looked for {path}); only qelib1.inc is "
-                "built in, other includes must sit beside the circuit file",
-                tok,
-            )
-        real = path.resolve()  # symbolic links followed: the file actually read
-        if real.parent != self.directory.resolve():
-            raise self.error(
-                f"include '{filename}' is a link to a file outside the circuit's folder; "
-                "includes must sit beside the circuit file: copy the file there",
-                tok,
-            )
-        return real
+        """The real path of an include beside the circuit file (see :func:`include_path`)."""
+        try:
+            return include_path(self.directory, filename, "qelib1.inc")
+        except IncludeRefused as exc:
+            raise self.error(str(exc), tok) from None
 
 
 def read_qasm(

@@ -17,7 +17,13 @@ from collections.abc import Mapping
 from pathlib import Path
 
 from tnsim.circuits.circuit import Circuit
-from tnsim.circuits.qasm.files import looks_like_missing_file, names_file, read_text
+from tnsim.circuits.qasm.files import (
+    IncludeRefused,
+    include_path,
+    looks_like_missing_file,
+    names_file,
+    read_text,
+)
 from tnsim.circuits.qasm.lexer import Source, Token, describe
 from tnsim.circuits.qasm3.expr import MathError, evaluate
 from tnsim.circuits.qasm3.fast import read_simple_statements
@@ -225,30 +231,11 @@ class _Parser(StatementParser):
         self.program.include_stack.pop()
 
     def resolve_include(self, filename: str, tok: Token) -> Path:
-        """The real path of an include beside the circuit file (links resolved, then checked)."""
-        if self.directory is None:
-            raise self.error(
-                f"cannot include '{filename}' when reading text: only stdgates.inc is built in; "
-                "read the program from a file with the include beside it, or paste the gate "
-                "definitions into the program",
-                tok,
-            )
-        if not filename or filename in (".", "..") or any(c in filename for c in "/\\\0:"):
-            raise self.error(
-                f"include '{filename}' must be a plain file name of a file beside the circuit "
-                "file (no directories)",
-                tok,
-            )
-        folder = Path(os.path.realpath(self.directory))
-        path = Path(os.path.realpath(self.directory / filename))
-        if path.parent != folder or not path.is_file():
-            raise self.error(
-                f"include file '{filename}' not found beside the circuit file (looked in "
-                f"{folder}; links leading elsewhere are not followed); only stdgates.inc is "
-                "built in",
-                tok,
-            )
-        return path
+        """The real path of an include beside the circuit file (see :func:`include_path`)."""
+        try:
+            return include_path(self.directory, filename, "stdgates.inc")
+        except IncludeRefused as exc:
+            raise self.error(str(exc), tok) from None
 
 
 def read_qasm3(
