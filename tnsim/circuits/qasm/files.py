@@ -50,10 +50,15 @@ def include_path(directory: Path | None, filename: str, builtin: str) -> Path:
         )
     folder = Path(os.path.realpath(directory))
     path = Path(os.path.realpath(directory / filename))
-    if path.parent != folder or not path.is_file():
+    if not path.is_file():
         raise IncludeRefused(
             f"include file '{filename}' not found beside the circuit file (looked in "
-            f"{folder}; links leading elsewhere are not followed); only {builtin} is built in"
+            f"{folder}); only {builtin} is built in"
+        )
+    if path.parent != folder:
+        raise IncludeRefused(
+            f"include '{filename}' is a link to a file outside the circuit's folder (links "
+            "leading elsewhere are not followed); copy the file beside the circuit file"
         )
     return path
 
