@@ -4,10 +4,23 @@ from __future__ import annotations
 
 import os
 from pathlib import Path
+from typing import Any
 
+from tnsim.circuits.qasm.lexer import Source, Token
 from tnsim.errors import InputError, QasmError
 
-__all__ = ["IncludeRefused", "include_path", "looks_like_missing_file", "names_file", "read_text"]
+__all__ = [
+    "MAX_INCLUDE_DEPTH",
+    "IncludeRefused",
+    "IncludesBeside",
+    "include_path",
+    "looks_like_missing_file",
+    "names_file",
+    "read_text",
+]
+
+MAX_INCLUDE_DEPTH = 8
+"""Deepest allowed chain of included files."""
 
 
 def read_text(path: Path) -> str:
@@ -61,6 +74,44 @@ def include_path(directory: Path | None, filename: str, builtin: str) -> Path:
             "leading elsewhere are not followed); copy the file beside the circuit file"
         )
     return path
+
+
+class IncludesBeside:
+    """Reading ``include "file";`` for a statement parser of either language version.
+
+    Mixed into a reader's parser, whose constructor takes ``(source, directory,
+    program)`` and whose ``parse(main=False)`` reads an included file's
+    definitions; :attr:`BUILTIN` names the library that needs no file.
+    """
+
+    BUILTIN = ""
+    directory: Path | None
+    program: Any
+    error: Any
+
+    def include_file(self, filename: str, tok: Token) -> None:
+        """Read the definitions of a file beside the circuit file."""
+        path = self.resolve_include(filename, tok)
+        key = str(path)
+        if key in self.program.include_stack:
+            raise self.error(f"'{filename}' includes itself (directly or indirectly)", tok)
+        if len(self.program.include_stack) >= MAX_INCLUDE_DEPTH:
+            raise self.error(f"includes nest deeper than {MAX_INCLUDE_DEPTH} files", tok)
+        try:
+            text = read_text(path)
+        except InputError as exc:
+            raise self.error(f"cannot include '{filename}': {exc}", tok) from None
+        self.program.include_stack.append(key)
+        reader: Any = type(self)  # the reader's parser: (source, directory, program)
+        reader(Source(text, key), path.parent, self.program).parse(main=False)
+        self.program.include_stack.pop()
+
+    def resolve_include(self, filename: str, tok: Token) -> Path:
+        """The real path of an include beside the circuit file (see :func:`include_path`)."""
+        try:
+            return include_path(self.directory, filename, self.BUILTIN)
+        except IncludeRefused as exc:
+            raise self.error(str(exc), tok) from None
 
 
 def names_file(text: str) -> bool:

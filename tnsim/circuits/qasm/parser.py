@@ -3,55 +3,19 @@
 from __future__ import annotations
 
 from tnsim.circuits.qasm.arith import Code, parse_expression
+from tnsim.circuits.qasm.cursor import TokenCursor
 from tnsim.circuits.qasm.definitions import BUILTINS, Gate
 from tnsim.circuits.qasm.header import EXTENSION_DEFINITIONS, QELIB1_GATES, RESERVED
-from tnsim.circuits.qasm.lexer import Lexer, Source, Token, describe
+from tnsim.circuits.qasm.lexer import Token, describe
 from tnsim.circuits.qasm.program import Arg, Program
-from tnsim.errors import QasmError
 
 __all__ = ["TokenParser"]
 
 
-class TokenParser:
+class TokenParser(TokenCursor):
     """Reads the tokens of one file (or text) into ``program``; the helpers all parsers use."""
 
-    def __init__(self, source: Source, program: Program):
-        self.source, self.program = source, program
-        self.lexer = Lexer(source)
-        self.tok = self.lexer.next()
-        self.recording: list[tuple[str, str]] | None = None
-
-    def advance(self) -> Token:
-        """Return the current token and move to the next one."""
-        tok = self.tok
-        if self.recording is not None:
-            self.recording.append((tok.kind, tok.text))
-        if tok.kind != "eof":
-            self.tok = self.lexer.next()
-        return tok
-
-    def error(self, message: str, tok: Token | None = None) -> QasmError:
-        """A :class:`QasmError` located at ``tok`` (default: the current token)."""
-        tok = self.tok if tok is None else tok
-        return self.source.error(message, tok.offset)
-
-    def at(self, text: str) -> bool:
-        """Whether the current token's text is ``text``."""
-        return self.tok.text == text and self.tok.kind in ("sym", "id")
-
-    def expect(self, text: str, context: str = "") -> Token:
-        """Consume a token whose text is ``text``, or raise an error naming ``context``."""
-        if not self.at(text):
-            hint = " (every statement ends with ';')" if text == ";" else ""
-            where = f" {context}" if context else ""
-            raise self.error(f"expected '{text}'{where}, found {describe(self.tok)}{hint}")
-        return self.advance()
-
-    def expect_id(self, what: str) -> Token:
-        """Consume an identifier token, or raise an error naming ``what``."""
-        if self.tok.kind != "id":
-            raise self.error(f"expected {what}, found {describe(self.tok)}")
-        return self.advance()
+    program: Program
 
     def expect_int(self, what: str) -> tuple[int, Token]:
         """Consume a non-negative integer literal; return its value and token."""

@@ -18,8 +18,8 @@ from tnsim.circuits.qasm.arith import constant, parse_expression
 from tnsim.circuits.qasm.definitions import QELIB1
 from tnsim.circuits.qasm.fast import read_simple_statements
 from tnsim.circuits.qasm.files import (
-    IncludeRefused,
-    include_path,
+    MAX_INCLUDE_DEPTH,
+    IncludesBeside,
     looks_like_missing_file,
     names_file,
     read_text,
@@ -35,12 +35,11 @@ __all__ = ["DEFAULT_MAX_OPS", "MAX_INCLUDE_DEPTH", "read_qasm"]
 DEFAULT_MAX_OPS = 10_000_000
 """Default cap on the number of operations a program may expand to."""
 
-MAX_INCLUDE_DEPTH = 8
-"""Deepest allowed chain of included files."""
 
-
-class _Parser(StatementParser):
+class _Parser(IncludesBeside, StatementParser):
     """Recursive-descent parser for one file (or text) of a program."""
+
+    BUILTIN = "qelib1.inc"
 
     def __init__(self, source: Source, directory: Path | None, program: Program):
         super().__init__(source, program)
@@ -159,28 +158,6 @@ class _Parser(StatementParser):
                     tok,
                 )
             self.program.gates[name] = gate
-
-    def include_file(self, filename: str, tok: Token) -> None:
-        path = self.resolve_include(filename, tok)
-        key = os.path.abspath(path)
-        if key in self.program.include_stack:
-            raise self.error(f"'{filename}' includes itself (directly or indirectly)", tok)
-        if len(self.program.include_stack) >= MAX_INCLUDE_DEPTH:
-            raise self.error(f"includes nest deeper than {MAX_INCLUDE_DEPTH} files", tok)
-        try:
-            text = read_text(path)
-        except InputError as exc:
-            raise self.error(f"cannot include '{filename}': {exc}", tok) from None
-        self.program.include_stack.append(key)
-        _Parser(Source(text, str(path)), path.parent, self.program).parse(main=False)
-        self.program.include_stack.pop()
-
-    def resolve_include(self, filename: str, tok: Token) -> Path:
-        """The real path of an include beside the circuit file (see :func:`include_path`)."""
-        try:
-            return include_path(self.directory, filename, "qelib1.inc")
-        except IncludeRefused as exc:
-            raise self.error(str(exc), tok) from None
 
 
 def read_qasm(

@@ -217,26 +217,6 @@ class DefinitionParser(TokenParser):
             raise self.refuse(self.tok, "gate durations (timing)")
         return codes
 
-    def formal_args(self, formal: dict[str, int], owner: str) -> list[Token]:
-        """Parse the qubit arguments of a call inside a gate body."""
-        args = []
-        while True:
-            tok = self.expect_id(f"a qubit argument of gate '{owner}'")
-            if tok.text not in formal:
-                raise self.error(
-                    f"'{tok.text}' is not a qubit argument of gate '{owner}' "
-                    f"(its arguments: {', '.join(formal)})",
-                    tok,
-                )
-            if self.at("["):
-                raise self.error(
-                    "qubit arguments inside a gate body are the gate's own names, without indices"
-                )
-            args.append(tok)
-            if not self.at(","):
-                return args
-            self.advance()
-
     def make_gate(self, name: Token, n_params: int, n_qubits: int, body, tokens) -> Gate:
         """Build the :class:`Gate` record of a parsed definition."""
         line, column = self.source.where(name.offset)

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from tnsim.circuits.parameters import AngleExpr
-from tnsim.circuits.qasm.lexer import Source, Token, describe
+from tnsim.circuits.qasm.cursor import TokenCursor
+from tnsim.circuits.qasm.lexer import Token
 from tnsim.circuits.qasm3.expr import (
     CONSTANTS,
     FUNCTIONS,
@@ -92,51 +93,17 @@ RESERVED = KEYWORDS | frozenset(CONSTANTS) | frozenset(FUNCTIONS)
 """Every name a program cannot declare."""
 
 
-class TokenParser:
+class TokenParser(TokenCursor):
     """Reads the tokens of one file (or text) into ``program``; helpers every parser uses."""
 
-    def __init__(self, source: Source, program: Program):
-        self.source, self.program = source, program
-        self.lexer = Lexer(source)
-        self.tok = self.lexer.next()
-        self.recording: list[tuple[str, str]] | None = None
+    program: Program
+
+    LEXER = Lexer
 
     @property
     def constants(self) -> dict:
         """Names of constants and inputs with their values (substituted while parsing)."""
         return self.program.constants
-
-    def advance(self) -> Token:
-        """Return the current token and move to the next one."""
-        tok = self.tok
-        if self.recording is not None:
-            self.recording.append((tok.kind, tok.text))
-        if tok.kind != "eof":
-            self.tok = self.lexer.next()
-        return tok
-
-    def error(self, message: str, tok: Token | None = None) -> QasmError:
-        """A :class:`QasmError` located at ``tok`` (default: the current token)."""
-        tok = self.tok if tok is None else tok
-        return self.source.error(message, tok.offset)
-
-    def at(self, text: str) -> bool:
-        """Whether the current token's text is ``text`` (a symbol or a word)."""
-        return self.tok.text == text and self.tok.kind in ("sym", "id")
-
-    def expect(self, text: str, context: str = "") -> Token:
-        """Consume a token whose text is ``text``, or raise an error naming ``context``."""
-        if not self.at(text):
-            hint = " (every statement ends with ';')" if text == ";" else ""
-            where = f" {context}" if context else ""
-            raise self.error(f"expected '{text}'{where}, found {describe(self.tok)}{hint}")
-        return self.advance()
-
-    def expect_id(self, what: str) -> Token:
-        """Consume an identifier token, or raise an error naming ``what``."""
-        if self.tok.kind != "id":
-            raise self.error(f"expected {what}, found {describe(self.tok)}")
-        return self.advance()
 
     def new_name(self, tok: Token, kind: str) -> None:
         """Refuse a name that is reserved or already declared."""

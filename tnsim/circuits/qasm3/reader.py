@@ -18,8 +18,8 @@ from pathlib import Path
 
 from tnsim.circuits.circuit import Circuit
 from tnsim.circuits.qasm.files import (
-    IncludeRefused,
-    include_path,
+    MAX_INCLUDE_DEPTH,
+    IncludesBeside,
     looks_like_missing_file,
     names_file,
     read_text,
@@ -43,9 +43,6 @@ __all__ = [
 
 DEFAULT_MAX_OPS = 10_000_000
 """Default cap on the operations (and loop iterations) a program may expand to."""
-
-MAX_INCLUDE_DEPTH = 8
-"""Deepest allowed chain of included files."""
 
 STANDARD_INCLUDES = ("stdgates.inc",)
 """Includes served from tnsim's own tables; no file is read for them."""
@@ -76,8 +73,10 @@ def _version_ok(text: str) -> bool:
     return major == "3" and (not minor or minor.isdigit())
 
 
-class _Parser(StatementParser):
+class _Parser(IncludesBeside, StatementParser):
     """Recursive-descent parser for one file (or text) of a program."""
+
+    BUILTIN = "stdgates.inc"
 
     def __init__(self, source: Source, directory: Path | None, program: Program):
         super().__init__(source, program)
@@ -213,29 +212,6 @@ class _Parser(StatementParser):
                 )
             self.program.gates[name] = gate
             self.program.kinds[name] = "gate (stdgates.inc)"
-
-    def include_file(self, filename: str, tok: Token) -> None:
-        """Read the definitions of a file beside the circuit file."""
-        path = self.resolve_include(filename, tok)
-        key = str(path)
-        if key in self.program.include_stack:
-            raise self.error(f"'{filename}' includes itself (directly or indirectly)", tok)
-        if len(self.program.include_stack) >= MAX_INCLUDE_DEPTH:
-            raise self.error(f"includes nest deeper than {MAX_INCLUDE_DEPTH} files", tok)
-        try:
-            text = read_text(path)
-        except InputError as exc:
-            raise self.error(f"cannot include '{filename}': {exc}", tok) from None
-        self.program.include_stack.append(key)
-        _Parser(Source(text, str(path)), path.parent, self.program).parse(main=False)
-        self.program.include_stack.pop()
-
-    def resolve_include(self, filename: str, tok: Token) -> Path:
-        """The real path of an include beside the circuit file (see :func:`include_path`)."""
-        try:
-            return include_path(self.directory, filename, "stdgates.inc")
-        except IncludeRefused as exc:
-            raise self.error(str(exc), tok) from None
 
 
 def read_qasm3(
