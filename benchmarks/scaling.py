@@ -27,6 +27,14 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     ``tnsim.forecast`` gives them); run only if it is short.  Then a 7 x 7, 12-cycle
     amplitude sliced to fit 64 MiB, run: forecast against measured time.
 
+``workspace``
+    Slices of the 10 x 10, 12-cycle ABCDCDAB grid amplitude under 2 GiB (planned
+    with 4 untimed trials, or ``--trials``), run one by one in this process:
+    first with fresh memory for every large array, then through the slots of
+    :mod:`tnsim.execution.workspace` reused by every slice.  Reports the seconds
+    of each slice, the medians (the first slice of each kind left out) and
+    whether the values are bit-for-bit equal.
+
 ``sliced``
     One amplitude of an 8 x 8 grid circuit of 10 cycles (complex128, all-zero
     bitstring), planned and run three times: without a memory limit, and under
@@ -290,6 +298,64 @@ def section_sliced() -> None:
         _sliced_row(network, limit, f"1/{share} of the peak", baseline, NO_REUSE[0])
 
 
+def section_workspace() -> None:
+    """Slices run with fresh memory for every large array, then through reused slots."""
+    import statistics
+
+    import numpy as np
+
+    import tnsim.execution.workspace as workspace
+    from tnsim.circuits.families import grid_circuit
+    from tnsim.execution.slices import SliceJob, contract_slices, release_workspace
+    from tnsim.execution.steps import compile_tree
+    from tnsim.execution.timemodel import forecast_run
+    from tnsim.network.builders import amplitude_network
+    from tnsim.network.simplify import absorb_small
+    from tnsim.plan.driver import make_plan
+    from tnsim.units import format_bytes
+
+    rows, cols, cycles, limit, count = (5, 5, 8, 2**16, 4) if QUICK[0] else (10, 10, 12, 2**31, 6)
+    if QUICK[0]:
+        workspace.MIN_SLOT_BYTES = 4096  # slots for the smoke test's small arrays
+    circuit = grid_circuit(rows, cols, cycles, seed=0, sequence="abcdcdab")
+    network = absorb_small(amplitude_network(circuit, "0" * (rows * cols)))
+    plan, planning = _timed(
+        lambda: make_plan(network, memory_limit=limit, max_trials=TRIALS[0] or 4, seed=0)
+    )
+    steps = compile_tree(plan.tree, plan.sliced)
+    work = workspace.plan_workspace(plan.tree, steps, network.dtype, limit)
+    forecast = forecast_run(plan.tree, plan.sliced, network.dtype, memory_limit=limit, reuse=False)
+    print(
+        f"workspace: grid {rows}x{cols}, {cycles} cycles, ABCDCDAB, complex128, under "
+        f"{format_bytes(limit)}: {plan.num_slices} slices, peak {format_bytes(plan.peak_bytes)} "
+        f"(planned in {planning:.0f} s); slots "
+        + (f"{len(work.sizes)} of {format_bytes(sum(work.sizes) * 16)}" if work else "none")
+        + f", with the small arrays {format_bytes(work.peak_bytes) if work else '-'}"
+    )
+    times = {}
+    values = {}
+    for room in (0, limit):
+        job = SliceJob(tuple(network.arrays), plan.tree, plan.sliced, room=room)
+        got = []
+        for k in range(count):
+            j = k % plan.num_slices
+            value, seconds = _timed(lambda j=j: contract_slices(job, j, j + 1))
+            got.append(seconds)
+            values.setdefault(room, []).append(value.mantissa.tobytes())
+        release_workspace()
+        times[room] = got
+        print(
+            f"workspace: {'slots' if room else 'fresh memory'}: seconds per slice "
+            + ", ".join(f"{t:.2f}" for t in got)
+        )
+    plain, slots = statistics.median(times[0][1:]), statistics.median(times[limit][1:])
+    print(
+        f"workspace: median of slices 2..{count}: fresh {plain:.2f} s, slots {slots:.2f} s "
+        f"= {plain / slots:.2f} x faster; forecast {forecast.seconds / plan.num_slices:.2f} s "
+        f"per slice; bit-for-bit equal: {values[0] == values[limit]}"
+    )
+
+
 QUICK = [False]
 NO_REUSE = [False]
 TRIALS = [0]
@@ -301,6 +367,7 @@ SECTIONS = {
     "workers": section_workers,
     "grid": section_grid,
     "sliced": section_sliced,
+    "workspace": section_workspace,
 }
 
 

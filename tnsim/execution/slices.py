@@ -15,7 +15,7 @@ import os
 import time
 from collections.abc import Callable, Sequence
 from concurrent.futures import Executor
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -35,13 +35,14 @@ from tnsim.execution.options import ContractionRecord, MemoryLimit, Progress, re
 from tnsim.execution.progress import SliceProgress
 from tnsim.execution.steps import PairStep, compile_tree, count_flops, peak_memory
 from tnsim.execution.treerun import contract_tree
+from tnsim.execution.workspace import Workspace, plan_workspace
 from tnsim.network.graph import TensorGraph
 from tnsim.network.scaled import Scaled
 from tnsim.plan.store import network_fingerprint
 from tnsim.plan.tree import PairTree
 from tnsim.units import format_bytes
 
-__all__ = ["SliceJob", "contract_slices", "execute"]
+__all__ = ["SliceJob", "contract_slices", "execute", "release_workspace"]
 
 
 def _slicer(
@@ -77,7 +78,9 @@ class SliceJob:
     Sent once to each worker process; :func:`contract_slices` runs a chunk of it.
     With slice-invariant reuse (:mod:`tnsim.execution.invariant`) the tree is
     the reduced one, some of its leaves are precomputed intermediates, and
-    ``exponent`` is their power-of-two scale, added to every slice.
+    ``exponent`` is their power-of-two scale, added to every slice.  ``room``
+    is the bytes a worker may keep for buffers its slices reuse
+    (:mod:`tnsim.execution.workspace`; 0: none).
     """
 
     arrays: tuple[np.ndarray, ...]
@@ -85,6 +88,7 @@ class SliceJob:
     sliced: tuple[int, ...]
     backend: str = "numpy"
     exponent: int = 0
+    room: int = 0
 
     @property
     def dims(self) -> tuple[int, ...]:
@@ -101,18 +105,31 @@ class SliceJob:
 _COMPILED: dict = {}
 
 
-def _compiled(job: SliceJob) -> tuple[list[PairStep], list[tuple[int, ...]], list]:
-    """Steps, sliced labels and leaf slicer of ``job``, compiled once per worker."""
+def _compiled(
+    job: SliceJob,
+) -> tuple[list[PairStep], list[tuple[int, ...]], list, Workspace | None]:
+    """Steps, sliced labels, leaf slicer and workspace of ``job``, made once per worker."""
     if _COMPILED.get("job") is not job:
+        _COMPILED.clear()  # the last job's buffers go first
         gone = set(job.sliced)
         labels = [tuple(i for i in ix if i not in gone) for ix in job.tree.inputs]
+        steps = compile_tree(job.tree, job.sliced)
+        work = None
+        if job.room > 0 and job.backend == "numpy" and steps:
+            work = plan_workspace(job.tree, steps, job.arrays[0].dtype, job.room)
         _COMPILED.update(
             job=job,
-            steps=compile_tree(job.tree, job.sliced),
+            steps=steps,
             labels=labels,
             slicer=_slicer(job.tree.inputs, job.sliced),
+            work=work,
         )
-    return _COMPILED["steps"], _COMPILED["labels"], _COMPILED["slicer"]
+    return _COMPILED["steps"], _COMPILED["labels"], _COMPILED["slicer"], _COMPILED["work"]
+
+
+def release_workspace() -> None:
+    """Drop this process's compiled job and its buffers (after a run)."""
+    _COMPILED.clear()
 
 
 def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
@@ -123,13 +140,15 @@ def contract_slices(job: SliceJob, start: int, stop: int) -> Scaled:
     SliceError
         If a slice fails; the message names the slice.
     """
-    steps, labels, slicer = _compiled(job)
+    steps, labels, slicer, work = _compiled(job)
     total: Scaled | None = None
     for k in range(start, stop):
         try:
             values = np.unravel_index(k, job.dims) if job.sliced else ()
             arrays = _slice_arrays(job.arrays, slicer, values)
-            part = contract_tree(arrays, job.tree, steps, labels, backend=job.backend)
+            part = contract_tree(
+                arrays, job.tree, steps, labels, backend=job.backend, workspace=work
+            )
         except Exception as exc:
             raise SliceError(f"{job.describe(k)} failed: {type(exc).__name__}: {exc}") from exc
         if job.exponent:
@@ -364,6 +383,9 @@ class _Run:
         if todo and self.reuse:
             itemsize = np.dtype(network.dtype).itemsize
             job, once, per_slice = with_reuse(job, self.steps, itemsize, self.limit // pool)
+        inputs = {id(a) for a in network.arrays}
+        kept = sum(a.nbytes for a in job.arrays if id(a) not in inputs)
+        job = replace(job, room=max(self.limit // pool - kept, 0))
         done_slices = sum(bounds[i][1] - bounds[i][0] for i in done)
         bar = SliceProgress(
             self.progress, num_slices, len(bounds), per_slice, done_slices, len(done)
@@ -385,6 +407,7 @@ class _Run:
             )
         finally:
             bar.close()
+            release_workspace()
         total = sums.total()
         if opts.log is not None:
             ran = sum(bounds[i][1] - bounds[i][0] for i in todo)

@@ -15,6 +15,7 @@ import numpy as np
 from tnsim.execution.backends import ArrayBackend, get_backend
 from tnsim.execution.blas import blas_threads, set_blas_threads
 from tnsim.execution.steps import PairStep, apply_owned, compile_tree
+from tnsim.execution.workspace import Workspace, apply_in
 from tnsim.fitted import SMALL_PRODUCT
 from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
 from tnsim.plan.tree import PairTree
@@ -29,6 +30,7 @@ def contract_tree(
     labels: Sequence[Sequence[int]] | None = None,
     *,
     backend: ArrayBackend | str | None = None,
+    workspace: Workspace | None = None,
 ) -> Scaled:
     """Contract ``arrays`` along ``tree`` with a running power-of-two scale.
 
@@ -46,6 +48,10 @@ def contract_tree(
     backend : str or ArrayBackend, optional
         Array library of the pairwise contractions (default numpy, see
         :mod:`tnsim.execution.backends`).
+    workspace : Workspace, optional
+        Slots for the large intermediates (:func:`tnsim.execution.workspace.plan_workspace`
+        for these ``steps``; numpy only): the run writes them there instead of
+        into fresh memory.  The result is the same.
 
     Returns
     -------
@@ -57,7 +63,7 @@ def contract_tree(
     labels = list(tree.inputs if labels is None else labels)
     ops = get_backend(backend)
     if ops.is_numpy:
-        root, exponent = _run_numpy(arrays, tree, steps)
+        root, exponent = _run_numpy(arrays, tree, steps, workspace)
     else:
         root, exponent = _run_other(ops, arrays, tree, steps, labels)
     final = steps[-1].out_labels if steps else tuple(labels[0])
@@ -70,13 +76,13 @@ def contract_tree(
     return Scaled(root, exponent + e)
 
 
-def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
+def _run_numpy(arrays, tree, steps, workspace: Workspace | None) -> tuple[np.ndarray, int]:
     nodes: list[np.ndarray | None] = list(arrays)
     exponent = 0
     full = blas_threads()
     current = full
     try:
-        for (x, y), step in zip(tree.path, steps):
+        for s, ((x, y), step) in enumerate(zip(tree.path, steps)):
             (nb, nl, nk), nr = step.mat_a, step.mat_b[2]
             want = 1 if nb * nl * nk * nr < SMALL_PRODUCT else full
             if want != current:
@@ -84,7 +90,10 @@ def _run_numpy(arrays, tree, steps) -> tuple[np.ndarray, int]:
                 current = want
             pair = [nodes[x], nodes[y]]
             nodes[x] = nodes[y] = None
-            c = apply_owned(step, pair)
+            if workspace is None:
+                c = apply_owned(step, pair)
+            else:
+                c = apply_in(step, pair, workspace.steps[s], workspace)
             c, e = normalize_owned(c, SLACK)
             exponent += e
             nodes.append(c)
