@@ -302,8 +302,6 @@ def section_workspace() -> None:
     """Slices run with fresh memory for every large array, then through reused slots."""
     import statistics
 
-    import numpy as np
-
     import tnsim.execution.workspace as workspace
     from tnsim.circuits.families import grid_circuit
     from tnsim.execution.slices import SliceJob, contract_slices, release_workspace
@@ -339,7 +337,7 @@ def section_workspace() -> None:
         got = []
         for k in range(count):
             j = k % plan.num_slices
-            value, seconds = _timed(lambda j=j: contract_slices(job, j, j + 1))
+            value, seconds = _timed(lambda j=j, job=job: contract_slices(job, j, j + 1))
             got.append(seconds)
             values.setdefault(room, []).append(value.mantissa.tobytes())
         release_workspace()
