@@ -5,8 +5,8 @@ to numpy, each large intermediate (a step's result, an operand's reordered
 copy) is a fresh allocation, which the operating system backs page by page on
 first touch: on the development machine writing a fresh 512 MiB array took
 three times as long as writing an existing one, and a slice of the 10x10 grid
-amplitude under 2 GiB ran in 3.5-4.1 s instead of 1.0 s (``benchmarks/scaling.py
-workspace``).
+amplitude under 2 GiB (65,536 slices) ran in 4.6-4.9 s against 1.5-1.8 s with the
+slots below (``benchmarks/scaling.py workspace`` measures both side by side).
 
 :func:`plan_workspace` walks the compiled steps once, in the executor's order,
 and gives every large array a *slot*: a buffer it shares with arrays whose
