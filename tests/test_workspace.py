@@ -9,9 +9,9 @@ from hypothesis import strategies as st
 
 import tnsim.execution.workspace as workspace
 from tnsim.execution.slices import SliceJob, contract_slices, execute, release_workspace
-from tnsim.execution.steps import compile_tree, peak_memory
+from tnsim.execution.steps import apply_owned, compile_tree, peak_memory
 from tnsim.execution.treerun import contract_tree
-from tnsim.execution.workspace import apply_in, plan_workspace
+from tnsim.execution.workspace import plan_workspace
 from tnsim.plan.driver import make_plan
 from tnsim.plan.random_networks import random_arrays, random_network
 from tnsim.plan.search import search_path
@@ -112,7 +112,7 @@ def test_the_root_never_takes_a_slot():
     assert plan_workspace(tree, compile_tree(tree), np.complex128, 2**40, min_bytes=1) is None
 
 
-def test_apply_in_writes_the_product_into_its_slot():
+def test_apply_owned_writes_the_product_into_its_slot():
     size = {0: 256, 1: 4, 2: 256}
     tree = PairTree(((0, 1), (1, 2), (2,)), (0,), size, ((0, 1), (3, 2)))
     steps = compile_tree(tree)
@@ -120,7 +120,7 @@ def test_apply_in_writes_the_product_into_its_slot():
     assert work is not None and work.steps[0].out >= 0
     rng = np.random.default_rng(0)
     a, b = rng.standard_normal((256, 4)) + 0j, rng.standard_normal((4, 256)) + 0j
-    c = apply_in(steps[0], [a, b], work.steps[0], work)
+    c = apply_owned(steps[0], [a, b], work.into(0))
     assert np.shares_memory(c, work.buffers[work.steps[0].out])
     np.testing.assert_array_equal(c, a @ b)  # numpy's matmul is the reference (same bits)
 

@@ -137,25 +137,42 @@ def apply_step(step: PairStep, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return apply_owned(step, [a, b])
 
 
-def apply_owned(step: PairStep, pair: list) -> np.ndarray:
+def apply_owned(
+    step: PairStep, pair: list, into: tuple[np.ndarray | None, ...] | None = None
+) -> np.ndarray:
     """:func:`apply_step` on operands handed over in a list, which is emptied.
 
     Holding the only references, it lets each operand go as soon as its
     reordered copy exists, so the step never holds an operand and its copy
     together with the other operand's copy (see :func:`peak_memory`).
+    ``into`` gives flat buffers for the left operand's reordered copy, the
+    right one's and the result (``None`` for any of them: numpy's memory; see
+    :mod:`tnsim.execution.workspace`); a buffer is given for a copy only where
+    numpy would copy, so the values are the same bits either way.
     """
     a, b = pair
     pair.clear()
-    if step.pre_a:
-        a = a.sum(axis=step.pre_a)
-    if step.pre_b:
-        b = b.sum(axis=step.pre_b)
+    buf_a, buf_b, buf_out = (None, None, None) if into is None else into
     nb, nl, nk = step.mat_a
-    a = a.reshape(step.view_a).transpose(step.perm_a)
+    nr = step.mat_b[2]
+    a = _reordered(a, step.pre_a, step.view_a, step.perm_a, buf_a)
     a = a.reshape(nb, nk, nl).swapaxes(1, 2) if step.trans_a else a.reshape(step.mat_a)
-    b = b.reshape(step.view_b).transpose(step.perm_b)
-    b = b.reshape(nb, step.mat_b[2], nk).swapaxes(1, 2) if step.trans_b else b.reshape(step.mat_b)
-    return np.matmul(a, b).reshape(step.out_shape)
+    b = _reordered(b, step.pre_b, step.view_b, step.perm_b, buf_b)
+    b = b.reshape(nb, nr, nk).swapaxes(1, 2) if step.trans_b else b.reshape(step.mat_b)
+    out = None if buf_out is None else buf_out[: nb * nl * nr].reshape(nb, nl, nr)
+    return np.matmul(a, b, out=out).reshape(step.out_shape)
+
+
+def _reordered(a: np.ndarray, pre, view, perm, buf: np.ndarray | None) -> np.ndarray:
+    """An operand summed over ``pre`` and permuted (copied into ``buf`` when one is given)."""
+    if pre:
+        a = a.sum(axis=pre)
+    a = a.reshape(view).transpose(perm)
+    if buf is None:
+        return a
+    dst = buf[: a.size].reshape(a.shape)
+    np.copyto(dst, a)
+    return dst
 
 
 def compile_tree(tree: PairTree, removed: Iterable[int] = ()) -> list[PairStep]:

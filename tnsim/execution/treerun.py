@@ -15,7 +15,7 @@ import numpy as np
 from tnsim.execution.backends import ArrayBackend, get_backend
 from tnsim.execution.blas import blas_threads, set_blas_threads
 from tnsim.execution.steps import PairStep, apply_owned, compile_tree
-from tnsim.execution.workspace import Workspace, apply_in
+from tnsim.execution.workspace import Workspace
 from tnsim.fitted import SMALL_PRODUCT
 from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
 from tnsim.plan.tree import PairTree
@@ -93,7 +93,7 @@ def _run_numpy(arrays, tree, steps, workspace: Workspace | None) -> tuple[np.nda
             if workspace is None:
                 c = apply_owned(step, pair)
             else:
-                c = apply_in(step, pair, workspace.steps[s], workspace)
+                c = apply_owned(step, pair, workspace.into(s))
             c, e = normalize_owned(c, SLACK)
             exponent += e
             nodes.append(c)

@@ -36,7 +36,6 @@ __all__ = [
     "MIN_SLOT_BYTES",
     "StepSlots",
     "Workspace",
-    "apply_in",
     "plan_workspace",
     "reorder_copies",
 ]
@@ -77,11 +76,18 @@ class Workspace:
     dtype: np.dtype
     buffers: list[np.ndarray] = field(default_factory=list, repr=False)
 
-    def buffer(self, slot: int, shape: Sequence[int]) -> np.ndarray:
-        """A C-ordered array of ``shape`` in slot ``slot`` (all slots allocated at first call)."""
+    def into(self, step: int) -> tuple[np.ndarray | None, ...]:
+        """Flat buffers of step ``step``'s copies and result, for ``apply_owned``.
+
+        All slots are allocated at the first call (see
+        :func:`~tnsim.execution.steps.apply_owned`).
+        """
         if not self.buffers:
             self.buffers = [np.empty(n, self.dtype) for n in self.sizes]
-        return self.buffers[slot][: math.prod(shape)].reshape(shape)
+        slots = self.steps[step]
+        return tuple(
+            None if k < 0 else self.buffers[k] for k in (slots.copy_a, slots.copy_b, slots.out)
+        )
 
 
 class _Slots:
@@ -118,9 +124,9 @@ def plan_workspace(
 ) -> Workspace | None:
     """Slots for the large arrays of ``steps``, or ``None`` if they do not fit ``room`` bytes.
 
-    Follows :func:`apply_in`: an intermediate operand that must be reordered
-    gets its copy in a slot (and gives its own slot back once copied); a
-    result gets a slot, except the root's (it outlives the slice).  Leaves
+    Follows :func:`~tnsim.execution.steps.apply_owned`: an intermediate
+    operand that must be reordered gets its copy in a slot (and gives its own
+    slot back once copied); a result gets a slot, except the root's (it outlives the slice).  Leaves
     (inputs, sliced views, kept slice-invariant arrays) and pre-summed
     operands are handled by numpy as before, and counted beside the slots.
 
@@ -245,33 +251,3 @@ def _let_go(source: tuple[int, int], slots: _Slots, memory: _NumpyMemory) -> Non
         slots.give(slot)
     else:
         memory.live -= numel
-
-
-def apply_in(step: PairStep, pair: list, slots: StepSlots, work: Workspace) -> np.ndarray:
-    """:func:`tnsim.execution.steps.apply_owned` with large arrays written into ``work``'s slots.
-
-    The operands are handed over in ``pair`` (emptied); each is let go as soon
-    as its reordered copy exists.
-    """
-    a, b = pair
-    pair.clear()
-    nb, nl, nk = step.mat_a
-    nr = step.mat_b[2]
-    a = _operand(a, step.pre_a, step.view_a, step.perm_a, slots.copy_a, work)
-    a = a.reshape(nb, nk, nl).swapaxes(1, 2) if step.trans_a else a.reshape(step.mat_a)
-    b = _operand(b, step.pre_b, step.view_b, step.perm_b, slots.copy_b, work)
-    b = b.reshape(nb, nr, nk).swapaxes(1, 2) if step.trans_b else b.reshape(step.mat_b)
-    out = None if slots.out < 0 else work.buffer(slots.out, (nb, nl, nr))
-    return np.matmul(a, b, out=out).reshape(step.out_shape)
-
-
-def _operand(a, pre, view, perm, slot: int, work: Workspace) -> np.ndarray:
-    """An operand summed (``pre``) and reordered (into ``slot`` when it has one)."""
-    if pre:
-        a = a.sum(axis=pre)
-    a = a.reshape(view).transpose(perm)
-    if slot < 0:
-        return a
-    dst = work.buffer(slot, a.shape)
-    np.copyto(dst, a)
-    return dst
