@@ -35,6 +35,13 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     of each slice, the medians (the first slice of each kind left out) and
     whether the values are bit-for-bit equal.
 
+``rescale``
+    The slices of ``workspace`` (with slots), alternately with every intermediate
+    scanned for its scale and with the scan skipped where a bound proves it
+    needless (``tnsim.network.scaled.rescale_bounded``).  Reports the seconds of
+    each slice, the medians (the first slice left out) and whether the values are
+    bit-for-bit equal.
+
 ``sliced``
     One amplitude of an 8 x 8 grid circuit of 10 cycles (complex128, all-zero
     bitstring), planned and run three times: without a memory limit, and under
@@ -298,35 +305,60 @@ def section_sliced() -> None:
         _sliced_row(network, limit, f"1/{share} of the peak", baseline, NO_REUSE[0])
 
 
-def section_workspace() -> None:
-    """Slices run with fresh memory for every large array, then through reused slots."""
-    import statistics
+def _big_slices():
+    """The 10 x 10, 12-cycle ABCDCDAB amplitude under 2 GiB (smoke: 5 x 5), planned untimed.
 
+    Returns the network, the plan, the limit, the slices to time, and the planning seconds.
+    """
     import tnsim.execution.workspace as workspace
     from tnsim.circuits.families import grid_circuit
-    from tnsim.execution.slices import SliceJob, contract_slices, release_workspace
-    from tnsim.execution.steps import compile_tree
-    from tnsim.execution.timemodel import forecast_run
     from tnsim.network.builders import amplitude_network
     from tnsim.network.simplify import absorb_small
     from tnsim.plan.driver import make_plan
-    from tnsim.units import format_bytes
 
     rows, cols, cycles, limit, count = (5, 5, 8, 2**16, 4) if QUICK[0] else (10, 10, 12, 2**31, 6)
     if QUICK[0]:
         workspace.MIN_SLOT_BYTES = 4096  # slots for the smoke test's small arrays
+    if PLANS[0]:  # the all-zero amplitude of a circuit file, with the plan kept for it
+        from tnsim.circuits.qasm.dispatch import read_qasm
+        from tnsim.plan.store import PlanBook
+
+        circuit, plans = PLANS[0]
+        net = read_qasm(circuit)
+        network = absorb_small(amplitude_network(net, "0" * net.num_qubits))
+        plan = PlanBook(plans).get(network)
+        if plan is None:
+            raise SystemExit(f"{plans} keeps no plan for the all-zero amplitude of {circuit}")
+        print(f"{circuit}, plan from {plans}: {plan.num_slices} slices, peak {plan.peak_bytes} B")
+        return network, plan, limit, count
     circuit = grid_circuit(rows, cols, cycles, seed=0, sequence="abcdcdab")
     network = absorb_small(amplitude_network(circuit, "0" * (rows * cols)))
     plan, planning = _timed(
         lambda: make_plan(network, memory_limit=limit, max_trials=TRIALS[0] or 4, seed=0)
     )
+    print(
+        f"grid {rows}x{cols}, {cycles} cycles, ABCDCDAB, complex128, under {limit} bytes: "
+        f"{plan.num_slices} slices, peak {plan.peak_bytes} bytes (planned in {planning:.0f} s)"
+    )
+    return network, plan, limit, count
+
+
+def section_workspace() -> None:
+    """Slices run with fresh memory for every large array, then through reused slots."""
+    import statistics
+
+    import tnsim.execution.workspace as workspace
+    from tnsim.execution.slices import SliceJob, contract_slices, release_workspace
+    from tnsim.execution.steps import compile_tree
+    from tnsim.execution.timemodel import forecast_run
+    from tnsim.units import format_bytes
+
+    network, plan, limit, count = _big_slices()
     steps = compile_tree(plan.tree, plan.sliced)
     work = workspace.plan_workspace(plan.tree, steps, network.dtype, limit)
     forecast = forecast_run(plan.tree, plan.sliced, network.dtype, memory_limit=limit, reuse=False)
     print(
-        f"workspace: grid {rows}x{cols}, {cycles} cycles, ABCDCDAB, complex128, under "
-        f"{format_bytes(limit)}: {plan.num_slices} slices, peak {format_bytes(plan.peak_bytes)} "
-        f"(planned in {planning:.0f} s); slots "
+        "workspace: slots "
         + (f"{len(work.sizes)} of {format_bytes(sum(work.sizes) * 16)}" if work else "none")
         + f", with the small arrays {format_bytes(work.peak_bytes) if work else '-'}"
     )
@@ -354,9 +386,44 @@ def section_workspace() -> None:
     )
 
 
+def section_rescale() -> None:
+    """Slices with every intermediate scanned for its scale, against bounded rescaling."""
+    import statistics
+
+    import tnsim.execution.treerun as treerun
+    from tnsim.execution.slices import SliceJob, contract_slices, release_workspace
+
+    network, plan, limit, count = _big_slices()
+    job = SliceJob(tuple(network.arrays), plan.tree, plan.sliced, room=limit)
+    default = treerun.BOUNDED_MIN
+    modes = {"scan every result": 1 << 62, "bounded": default}
+    times: dict[str, list[float]] = {m: [] for m in modes}
+    values: dict[str, list[bytes]] = {m: [] for m in modes}
+    try:
+        for k in range(count):  # the two kinds alternate, slice by slice, in one process
+            for mode, least in modes.items():
+                treerun.BOUNDED_MIN = least
+                j = k % plan.num_slices
+                value, seconds = _timed(lambda j=j: contract_slices(job, j, j + 1))
+                times[mode].append(seconds)
+                values[mode].append(value.mantissa.tobytes() + str(value.exponent).encode())
+    finally:
+        treerun.BOUNDED_MIN = default
+        release_workspace()
+    for mode in modes:
+        print(f"rescale: {mode}: seconds per slice " + ", ".join(f"{t:.2f}" for t in times[mode]))
+    full, bounded = (statistics.median(times[m][1:]) for m in modes)
+    print(
+        f"rescale: median of slices 2..{count} (slots reused): scanning every result "
+        f"{full:.2f} s, bounded {bounded:.2f} s = {full / bounded:.2f} x faster; "
+        f"bit-for-bit equal: {values['scan every result'] == values['bounded']}"
+    )
+
+
 QUICK = [False]
 NO_REUSE = [False]
 TRIALS = [0]
+PLANS: list = [None]
 SHARES = [50, 1000]
 
 SECTIONS = {
@@ -366,6 +433,7 @@ SECTIONS = {
     "grid": section_grid,
     "sliced": section_sliced,
     "workspace": section_workspace,
+    "rescale": section_rescale,
 }
 
 
@@ -391,7 +459,15 @@ def main(argv=None) -> int:
         help="sliced: plan with this many search trials and no time limit (same plans under "
         "any load; default: the planner's own timed search, as a user gets it)",
     )
+    parser.add_argument(
+        "--plans",
+        nargs=2,
+        metavar=("CIRCUIT", "PLANFILE"),
+        help="workspace, rescale: the all-zero amplitude of CIRCUIT (OpenQASM) with the plan "
+        "PLANFILE keeps for it (a checkpoint folder's plans.json), instead of the grid",
+    )
     args = parser.parse_args(argv)
+    PLANS[0] = args.plans
     unknown = sorted(set(args.sections) - set(SECTIONS))
     if unknown:
         parser.error(f"unknown sections {unknown}; choose from {', '.join(SECTIONS)}")

@@ -1,13 +1,16 @@
 """Running one contraction tree: pairwise steps as batched matmul, with a running scale.
 
 Intermediates are rescaled by exact powers of two (:mod:`tnsim.network.scaled`)
-so the result keeps its log-magnitude however small it is.  numpy runs the
+so the result keeps its log-magnitude however small it is; a large
+intermediate is read for its scale only where a bound on it leaves a rescale
+possible (:func:`~tnsim.network.scaled.rescale_bounded`).  numpy runs the
 compiled steps directly; other array libraries go through opt_einsum's
 backend dispatch (:mod:`tnsim.execution.backends`).
 """
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -17,7 +20,14 @@ from tnsim.execution.blas import blas_threads, set_blas_threads
 from tnsim.execution.steps import PairStep, apply_owned, compile_tree
 from tnsim.execution.workspace import Workspace
 from tnsim.fitted import SMALL_PRODUCT
-from tnsim.network.scaled import SLACK, Scaled, normalize, normalize_owned
+from tnsim.network.scaled import (
+    SLACK,
+    Scaled,
+    normalize,
+    normalize_owned,
+    peak_log2,
+    rescale_bounded,
+)
 from tnsim.plan.tree import PairTree
 
 __all__ = ["contract_tree", "run_steps"]
@@ -76,8 +86,16 @@ def contract_tree(
     return Scaled(root, exponent + e)
 
 
+#: Results of at least this many elements are rescaled by :func:`rescale_bounded` from a
+#: bound on their largest component (the whole array is read only where a rescale may
+#: be due); smaller ones are always scanned, which gives their bound exactly.
+BOUNDED_MIN = 1 << 15
+
+
 def _run_numpy(arrays, tree, steps, workspace: Workspace | None) -> tuple[np.ndarray, int]:
     nodes: list[np.ndarray | None] = list(arrays)
+    # Upper bounds on log2 of each node's largest component (inf: not known yet).
+    bounds = [math.inf] * (len(nodes) + len(steps))
     exponent = 0
     full = blas_threads()
     current = full
@@ -89,12 +107,15 @@ def _run_numpy(arrays, tree, steps, workspace: Workspace | None) -> tuple[np.nda
                 set_blas_threads(want)
                 current = want
             pair = [nodes[x], nodes[y]]
+            bound = math.inf
+            if nb * nl * nr >= BOUNDED_MIN:
+                bound = _product_bound(pair, step, bounds[x], bounds[y])
             nodes[x] = nodes[y] = None
             if workspace is None:
                 c = apply_owned(step, pair)
             else:
                 c = apply_owned(step, pair, workspace.into(s))
-            c, e = normalize_owned(c, SLACK)
+            c, e, bounds[len(nodes)] = rescale_bounded(c, bound, SLACK)
             exponent += e
             nodes.append(c)
     finally:
@@ -104,6 +125,26 @@ def _run_numpy(arrays, tree, steps, workspace: Workspace | None) -> tuple[np.nda
     if root is None:  # every step's result is appended: the last node is never cleared
         raise AssertionError("the contraction lost its root")
     return root, exponent
+
+
+def _product_bound(pair: list, step: PairStep, bound_a: float, bound_b: float) -> float:
+    """An upper bound on ``log2`` of the largest component of ``apply_owned(step, pair)``.
+
+    Each component of the result sums ``K`` products of operand entries (``K``: the
+    summed dimension times what each operand sums out first), and a component of
+    a complex product is at most twice the product of the largest components, so
+    the peak is at most ``2 K`` times the operands' peaks, with room for rounding.
+    Unknown bounds (``inf``) of leaves are measured here.
+    """
+    a, b = pair
+    (nb, nl, nk), nr = step.mat_a, step.mat_b[2]
+    if math.isinf(bound_a) and bound_a > 0:
+        bound_a = peak_log2(a)
+    if math.isinf(bound_b) and bound_b > 0:
+        bound_b = peak_log2(b)
+    terms = nk * (a.size // (nb * nl * nk)) * (b.size // (nb * nk * nr))
+    eps = float(np.finfo(a.dtype).eps)
+    return bound_a + bound_b + math.log2(2 * terms) + math.log2(1 + 4 * terms * eps)
 
 
 def run_steps(

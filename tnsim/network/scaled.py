@@ -8,6 +8,12 @@ so that component lies in ``[0.5, 1)``, and ``e`` is added to the exponent.
 Floating-point products are unchanged by exact power-of-two scalings, so the
 rescaling does not alter a result's bits; results keep their log-magnitude
 and phase even where the value itself underflows.
+
+Finding the largest component reads the whole intermediate.  For large ones
+:func:`rescale_bounded` skips that pass where it cannot lead to a rescale: an
+upper bound on the peak (from the operands' peaks) proves it below
+``2**SLACK``, and the first few thousand components prove it above
+``2**-SLACK``.  The result is the same bits either way.
 """
 
 from __future__ import annotations
@@ -17,7 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Scaled", "normalize"]
+__all__ = ["Scaled", "normalize", "normalize_owned", "peak_log2", "rescale_bounded"]
 
 
 @dataclass(frozen=True)
@@ -108,19 +114,84 @@ def normalize_owned(array: np.ndarray, slack: int = 0) -> tuple[np.ndarray, int]
     With ``slack``, an array whose peak exponent ``e`` has ``|e| <= slack`` is
     left as it is (``e = 0`` is returned).
     """
+    array, e, _ = rescale_bounded(array, math.inf, slack)
+    return array, e
+
+
+#: Components read from the start of an intermediate to show that its peak is not too small.
+SAMPLE = 1 << 12
+
+
+def rescale_bounded(
+    array: np.ndarray, bound: float, slack: int = SLACK
+) -> tuple[np.ndarray, int, float]:
+    """:func:`normalize_owned`, reading the whole array only where a rescale may be due.
+
+    ``bound`` is an upper bound on ``log2`` of the array's largest component
+    (``math.inf``: none known).  Below ``slack`` it proves the peak is under
+    ``2**slack``; if the first :data:`SAMPLE` components then reach
+    ``2**(-slack - 1)``, the peak exponent lies within ``slack`` and the array is
+    left as it is without being read further.  Otherwise the whole array is
+    scanned as :func:`normalize_owned` does.  Either way the array and ``e`` are
+    the same.
+
+    Returns
+    -------
+    array : numpy.ndarray
+        The array, rescaled in place where due.
+    e : int
+        Its exponent (``array_before = array * 2**e``).
+    bound : float
+        An upper bound on ``log2`` of the returned array's largest component
+        (``-inf``: all zero; ``inf``: not finite).
+
+    Examples
+    --------
+    >>> x = np.array([3.0, -1.0])
+    >>> rescale_bounded(x.copy(), math.inf, 0)
+    (array([ 0.75, -0.25]), 2, 0.0)
+    >>> rescale_bounded(x.copy(), 2.0, 32)  # proven in range: not scanned
+    (array([ 3., -1.]), 0, 2.0)
+    """
     flat = array.reshape(-1)
     if np.iscomplexobj(flat):
         flat = flat.view(flat.real.dtype)
     if flat.size == 0:
-        return array, 0
+        return array, 0, -math.inf
+    if bound < slack:
+        head = flat[:SAMPLE]
+        if float(max(head.max(), -head.min())) >= math.ldexp(1.0, -slack - 1):
+            return array, 0, bound
     peak = float(max(flat.max(), -flat.min()))
-    if peak == 0.0 or not math.isfinite(peak):
-        return array, 0
+    if peak == 0.0:
+        return array, 0, -math.inf
+    if not math.isfinite(peak):
+        return array, 0, math.inf
     e = math.frexp(peak)[1]
     if abs(e) <= slack:
-        return array, 0
+        return array, 0, float(e)
     if -100 <= e <= 100:  # 2**-e is a normal number even in float32: multiply (SIMD, exact)
         np.multiply(flat, flat.dtype.type(math.ldexp(1.0, -e)), out=flat)
-    elif e:
+    else:
         np.ldexp(flat, -e, out=flat)
-    return array, e
+    return array, e, 0.0
+
+
+def peak_log2(array: np.ndarray) -> float:
+    """``log2`` of the largest component of ``array`` in magnitude.
+
+    ``-inf`` when it is all zero (or empty), ``inf`` when it is not finite.
+
+    Examples
+    --------
+    >>> peak_log2(np.array([0.25 - 4j, 1.0]))
+    2.0
+    """
+    array = np.asarray(array)
+    if array.size == 0:
+        return -math.inf
+    parts = (array.real, array.imag) if np.iscomplexobj(array) else (array,)
+    peak = max(float(max(p.max(), -p.min())) for p in parts)  # any layout (sliced views)
+    if peak == 0.0:
+        return -math.inf
+    return math.log2(peak) if math.isfinite(peak) else math.inf
