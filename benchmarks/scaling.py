@@ -40,7 +40,8 @@ Sections (FLOPs are real floating-point operations, complex multiply-add = 8):
     scanned for its scale and with the scan skipped where a bound proves it
     needless (``tnsim.network.scaled.rescale_bounded``).  Reports the seconds of
     each slice, the medians (the first slice left out) and whether the values are
-    bit-for-bit equal.
+    bit-for-bit equal.  With ``--plans CIRCUIT PLANFILE`` (``workspace`` too): the
+    plan a checkpoint folder keeps for the all-zero amplitude of CIRCUIT.
 
 ``sliced``
     One amplitude of an 8 x 8 grid circuit of 10 cycles (complex128, all-zero
@@ -386,38 +387,50 @@ def section_workspace() -> None:
     )
 
 
-def section_rescale() -> None:
-    """Slices with every intermediate scanned for its scale, against bounded rescaling."""
+def _alternate(name: str, setting, modes: dict) -> None:
+    """Slices of :func:`_big_slices` run with ``setting`` at each of ``modes``, alternately.
+
+    ``setting`` is ``(module, attribute)``; ``modes`` maps a name to its value.
+    Prints the seconds of each slice, the medians (the first slice left out)
+    and whether every mode gives the same bits.
+    """
     import statistics
 
-    import tnsim.execution.treerun as treerun
     from tnsim.execution.slices import SliceJob, contract_slices, release_workspace
 
     network, plan, limit, count = _big_slices()
     job = SliceJob(tuple(network.arrays), plan.tree, plan.sliced, room=limit)
-    default = treerun.BOUNDED_MIN
-    modes = {"scan every result": 1 << 62, "bounded": default}
+    module, attribute = setting
+    default = getattr(module, attribute)
     times: dict[str, list[float]] = {m: [] for m in modes}
     values: dict[str, list[bytes]] = {m: [] for m in modes}
     try:
-        for k in range(count):  # the two kinds alternate, slice by slice, in one process
-            for mode, least in modes.items():
-                treerun.BOUNDED_MIN = least
+        for k in range(count):  # the modes alternate, slice by slice, in one process
+            for mode, value in modes.items():
+                setattr(module, attribute, value)
                 j = k % plan.num_slices
-                value, seconds = _timed(lambda j=j: contract_slices(job, j, j + 1))
+                out, seconds = _timed(lambda j=j: contract_slices(job, j, j + 1))
                 times[mode].append(seconds)
-                values[mode].append(value.mantissa.tobytes() + str(value.exponent).encode())
+                values[mode].append(out.mantissa.tobytes() + str(out.exponent).encode())
     finally:
-        treerun.BOUNDED_MIN = default
+        setattr(module, attribute, default)
         release_workspace()
     for mode in modes:
-        print(f"rescale: {mode}: seconds per slice " + ", ".join(f"{t:.2f}" for t in times[mode]))
-    full, bounded = (statistics.median(times[m][1:]) for m in modes)
+        print(f"{name}: {mode}: seconds per slice " + ", ".join(f"{t:.2f}" for t in times[mode]))
+    (first, base), (second, new) = ((m, statistics.median(times[m][1:])) for m in modes)
+    same = len({tuple(v) for v in values.values()}) == 1
     print(
-        f"rescale: median of slices 2..{count} (slots reused): scanning every result "
-        f"{full:.2f} s, bounded {bounded:.2f} s = {full / bounded:.2f} x faster; "
-        f"bit-for-bit equal: {values['scan every result'] == values['bounded']}"
+        f"{name}: median of slices 2..{count} (slots reused): {first} {base:.2f} s, "
+        f"{second} {new:.2f} s = {base / new:.2f} x faster; bit-for-bit equal: {same}"
     )
+
+
+def section_rescale() -> None:
+    """Slices with every intermediate scanned for its scale, against bounded rescaling."""
+    import tnsim.execution.treerun as treerun
+
+    modes = {"scanning every result": 1 << 62, "bounded": treerun.BOUNDED_MIN}
+    _alternate("rescale", (treerun, "BOUNDED_MIN"), modes)
 
 
 QUICK = [False]
