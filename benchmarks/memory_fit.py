@@ -25,6 +25,7 @@ Run::
     python benchmarks/memory_fit.py                       # full (about an hour on 2 cores)
     python benchmarks/memory_fit.py --only 10x10x12-abcdcdab --budget 120
     python benchmarks/memory_fit.py --limits 1/1,1/1024,2GiB     # selected limits
+    python benchmarks/memory_fit.py --grids 5x5x24,6x6x20 --limits 1/1,1/1024   # other grids
     python benchmarks/memory_fit.py --quick --out /tmp/smoke
 """
 
@@ -53,9 +54,10 @@ GiB = 2**30
 FRACTIONS = (1, 4, 16, 64, 256, 1024, 4096)
 
 
-def instances(quick: bool, only: str | None):
-    """``(name, network, budget scale)`` of each grid instance."""
-    shapes = [(6, 6, 8)] if quick else [(8, 8, 12), (10, 10, 12)]
+def instances(quick: bool, only: str | None, shapes=None):
+    """``(name, network, budget scale)`` of each grid instance (``shapes``: rows, cols, cycles)."""
+    if shapes is None:
+        shapes = [(6, 6, 8)] if quick else [(8, 8, 12), (10, 10, 12)]
     for rows, cols, cycles in shapes:
         for seq in ("rotation", "abcdcdab"):
             name = f"{rows}x{cols}x{cycles}-{seq}"
@@ -96,7 +98,7 @@ def random_greedy(net, limit: int | None, trials: int, seed: int = 0):
 
 def run(args) -> list[dict]:
     rows = []
-    for name, net, scale in instances(args.quick, args.only):
+    for name, net, scale in instances(args.quick, args.only, args.grids):
         budget = args.budget * scale
         t = time.perf_counter()
         base = make_plan(net, time_budget=budget, objective=args.objective, seed=args.seed)
@@ -214,10 +216,21 @@ def main(argv=None) -> int:
     parser.add_argument(
         "--limits", help="only these limits, e.g. 1/1,1/1024,2GiB (labels as printed)"
     )
+    parser.add_argument(
+        "--grids",
+        help="other grid shapes, ROWSxCOLSxCYCLES separated by commas (e.g. 5x5x24,6x6x20)",
+    )
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results"))
     parser.add_argument("--plot", help="PNG of overhead against limit (default OUT/memory_fit.png)")
     args = parser.parse_args(argv)
+    if args.grids:
+        try:
+            args.grids = [tuple(int(v) for v in g.split("x")) for g in args.grids.split(",")]
+        except ValueError:
+            parser.error(f"--grids {args.grids!r}: give ROWSxCOLSxCYCLES, e.g. 5x5x24,6x6x20")
+        if any(len(g) != 3 or min(g) < 1 for g in args.grids):
+            parser.error(f"--grids: each shape is three positive numbers, got {args.grids}")
     if args.budget is None:
         args.budget = 4.0 if args.quick else 120.0
     if args.rg_trials is None:
