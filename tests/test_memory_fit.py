@@ -276,3 +276,33 @@ def test_reslicing_the_best_tree_never_makes_the_search_worse():
     key, path, _, sliced = state.sliced_best()
     assert key <= before
     assert tree_cost(ins, out, size, path, sliced=sliced).peak_bytes <= peak // 64
+
+
+def test_reslicing_backs_off_while_it_finds_nothing(monkeypatch):
+    # Re-slicing that never improves the best sliced tree is tried ever more rarely
+    # (every 2nd, 4th, ... due turn, up to RESLICE_BACKOFF); one that improves it resets.
+    import tnsim.plan.search as search
+
+    net = _grid_net(4, 4, 6, "abcdcdab")
+    ins, out, size = [tuple(ix) for ix in net.indices], tuple(net.output), dict(net.size)
+    limit = make_plan(net, max_trials=2).peak_bytes // 16
+    calls: list[int] = []
+
+    def idle(self, seconds, planned=None):
+        calls.append(1)
+
+    monkeypatch.setattr(search._State, "reslice", idle)
+    kwargs = {"time_budget": None, "max_trials": 64, "memory_limit": limit, "reoptimize": False}
+    search.search_path(ins, out, size, **kwargs)
+    backed_off = len(calls)
+    calls.clear()
+    monkeypatch.setattr(search, "RESLICE_BACKOFF", 1)  # every due turn
+    search.search_path(ins, out, size, **kwargs)
+    assert len(calls) == 32  # every second trial plans around labels and is due
+    assert backed_off == 5  # due turns 1, 3, 7, 15 and 31 of the 32
+    # A re-slicing that always finds a better tree keeps its turn every time.
+    monkeypatch.setattr(search, "RESLICE_BACKOFF", 16)
+    calls.clear()
+    monkeypatch.setattr(search._State, "best_flops", lambda self: 1e30 / (1 + len(calls)))
+    search.search_path(ins, out, size, **kwargs)
+    assert len(calls) == 32

@@ -255,6 +255,13 @@ RESLICE_SHARE = 0.1
 """Share of the trials' time one such re-slicing may take (never past their end)."""
 
 
+RESLICE_BACKOFF = 16
+
+
+"""After each re-slicing that finds no better sliced tree, the next one waits twice as many
+turns, up to this many (one that finds one resets the wait)."""
+
+
 METHODS = ("greedy", "random-greedy", "elimination", "bisection", "sweep", "cuts", "divide")
 
 
@@ -321,7 +328,9 @@ def search_path(
         planned on the network with some labels removed (a prefix of the best
         slicing's, or a share of a small balanced cut's) and sliced with them
         first, the best sliced tree is sliced again from scratch with its
-        sub-trees re-planned after each label (every ``RESLICE_EVERY`` trials),
+        sub-trees re-planned after each label (every ``RESLICE_EVERY`` trials;
+        each re-slicing that finds nothing better doubles the wait for the next,
+        up to ``RESLICE_BACKOFF`` turns, so the trials get the time),
         and the finalists are re-planned locally with their labels sliced.  The best
         tree *before* slicing is kept too (as the first alternative), re-planned
         as without a limit: so with the same seed and trial budget the result is
@@ -383,6 +392,7 @@ def search_path(
     # generator: the main sequence of trials stays the one a search without a limit runs.
     around = np.random.default_rng([seed, 1])
     longest = 0.0
+    gap, waited = 1, 0  # re-slice at every gap-th due turn
     log.add("search", 0.0)  # listed first
     try:
         with log.stage("search"):
@@ -403,7 +413,11 @@ def search_path(
                     pool = [m for m in methods if m != "greedy"] or methods
                     planned = state.plan_around(around, pool)
                 longest = max(longest, clock.now() - began)
-                if state.limit is not None and (planned or trials % RESLICE_EVERY == 0):
+                due = state.limit is not None and (planned or trials % RESLICE_EVERY == 0)
+                if due:
+                    waited += 1
+                if due and waited >= gap:
+                    waited = 0
                     seconds = None
                     if trial_end.timed:
                         seconds = min(
@@ -411,7 +425,10 @@ def search_path(
                         )
                     if seconds is None or seconds > 0:
                         began = clock.now()
+                        before = state.best_flops()
                         state.reslice(seconds, planned)
+                        # Back off while re-slicing finds nothing better: trials get the time.
+                        gap = 1 if state.best_flops() < before else min(2 * gap, RESLICE_BACKOFF)
                         # Counted as its own stage (the "search" stage around it gives it back).
                         spent = clock.now() - began
                         log.add("re-slicing", spent)
