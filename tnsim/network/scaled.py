@@ -95,13 +95,30 @@ def normalize(array: np.ndarray) -> tuple[np.ndarray, int]:
     flat = array.reshape(-1)
     if np.iscomplexobj(flat):
         flat = flat.view(flat.real.dtype)
-    peak = float(np.max(np.abs(flat)))
+    peak = _largest(flat)
     if peak == 0.0 or not math.isfinite(peak):
         return array, 0
     e = math.frexp(peak)[1]
     if e == 0:
         return array, 0
     return np.ldexp(flat, -e).view(array.dtype).reshape(array.shape), e
+
+
+def _largest(array: np.ndarray) -> float:
+    """The largest real or imaginary part of ``array`` in magnitude, any layout.
+
+    ``nan`` if any part is ``nan``; ``0.0`` for an empty array.
+    """
+    if array.size == 0:
+        return 0.0
+    parts: tuple[np.ndarray, ...] = (array,)
+    if np.iscomplexobj(array):
+        if array.flags.c_contiguous:
+            parts = (array.reshape(-1).view(array.real.dtype),)
+        else:  # a strided view (a sliced leaf): its parts one by one
+            parts = (array.real, array.imag)
+    peaks = [float(max(p.max(), -p.min())) for p in parts]
+    return math.nan if any(math.isnan(p) for p in peaks) else max(peaks)
 
 
 #: Intermediates whose largest component lies in ``[2**-SLACK, 2**SLACK]`` are not rescaled.
@@ -158,11 +175,9 @@ def rescale_bounded(
         flat = flat.view(flat.real.dtype)
     if flat.size == 0:
         return array, 0, -math.inf
-    if bound < slack:
-        head = flat[:SAMPLE]
-        if float(max(head.max(), -head.min())) >= math.ldexp(1.0, -slack - 1):
-            return array, 0, bound
-    peak = float(max(flat.max(), -flat.min()))
+    if bound < slack and _largest(flat[:SAMPLE]) >= math.ldexp(1.0, -slack - 1):
+        return array, 0, bound
+    peak = _largest(flat)
     if peak == 0.0:
         return array, 0, -math.inf
     if not math.isfinite(peak):
@@ -187,11 +202,7 @@ def peak_log2(array: np.ndarray) -> float:
     >>> peak_log2(np.array([0.25 - 4j, 1.0]))
     2.0
     """
-    array = np.asarray(array)
-    if array.size == 0:
-        return -math.inf
-    parts = (array.real, array.imag) if np.iscomplexobj(array) else (array,)
-    peak = max(float(max(p.max(), -p.min())) for p in parts)  # any layout (sliced views)
+    peak = _largest(np.asarray(array))
     if peak == 0.0:
         return -math.inf
     return math.log2(peak) if math.isfinite(peak) else math.inf
