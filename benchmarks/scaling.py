@@ -309,7 +309,8 @@ def section_sliced() -> None:
 def _big_slices():
     """The 10 x 10, 12-cycle ABCDCDAB amplitude under 2 GiB (smoke: 5 x 5), planned untimed.
 
-    Returns the network, the plan, the limit, the slices to time, and the planning seconds.
+    With ``--plans``, the circuit file's all-zero amplitude and the plan its plan file keeps.
+    Returns the network, the plan, the limit and the number of slices to time.
     """
     import tnsim.execution.workspace as workspace
     from tnsim.circuits.families import grid_circuit
@@ -390,9 +391,9 @@ def section_workspace() -> None:
 def _alternate(name: str, setting, modes: dict) -> None:
     """Slices of :func:`_big_slices` run with ``setting`` at each of ``modes``, alternately.
 
-    ``setting`` is ``(module, attribute)``; ``modes`` maps a name to its value.
-    Prints the seconds of each slice, the medians (the first slice left out)
-    and whether every mode gives the same bits.
+    ``setting`` is ``(module, attribute)``; ``modes`` maps two names to their values,
+    the reference first.  Prints the seconds of each slice, the medians (the first
+    slice left out), the second mode's speed-up and whether both give the same bits.
     """
     import statistics
 
